@@ -1,0 +1,30 @@
+"""Manipulability Workbench: map Jacobian-based measures of robot arms over joint space, slices of
+a cell, candidate mounting spots and paths.
+
+Public API (see README)::
+
+    from workbench import load_arm, measures
+    arm = load_arm("arms/demo_s6.toml")
+    J = arm.jacobian(q, frame="tcp")          # (..., 6, n)
+    m = measures(J, rows="translation")
+"""
+from __future__ import annotations
+
+__version__ = "0.1.0"
+
+__all__ = ["load_arm", "measures", "pose_measures", "Arm", "__version__"]
+
+
+def load_arm(path, base_link=None, tip_link=None):
+    """Load an arm file (.toml) or URDF (.urdf) -> :class:`workbench.kinematics.Arm`."""
+    from .arm import read_arm_model
+    from .kinematics import Arm
+
+    return Arm(read_arm_model(path, base_link=base_link, tip_link=tip_link))
+
+
+# The function ``measures`` shadows the module of the same name on purpose (DESIGN §6:
+# ``from workbench import measures``); the module stays importable as ``workbench.measures``
+# through sys.modules.
+from .measures import measures, pose_measures  # noqa: E402
+from .kinematics import Arm  # noqa: E402

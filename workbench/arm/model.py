@@ -1,0 +1,185 @@
+"""The arm model: pure data (joints, fixed transforms, limits, masses), no kinematics.
+
+Internal units are SI: metres, radians, seconds, newtons, kilograms.
+
+Chain convention
+----------------
+Every joint ``i`` has a fixed ``origin`` transform from the previous joint frame (or from the
+arm's base frame for the first joint) to its own frame at zero joint value, and a unit ``axis``
+expressed in its own frame. The joint's motion is a rotation about (revolute) or a translation
+along (prismatic) that axis, so that::
+
+    T_i(q) = T_{i-1}(q) @ origin_i @ motion_i(q_i)          T_{-1} = I (the arm base)
+    flange = T_{n-1}(q) @ end
+    tcp    = flange @ tool
+    world  = mount @ (any of the above)
+
+The frame after joint ``i``'s motion is "joint frame i"; the link moved by joint ``i`` is rigidly
+attached to it (its centre of mass ``com`` is given in that frame). Standard DH, modified DH and
+general origin/axis descriptions are all turned into this one chain by :mod:`workbench.arm.files`.
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from functools import cached_property
+
+import numpy as np
+
+from ..errors import WorkbenchError
+
+__all__ = ["Joint", "ArmModel", "REVOLUTE", "PRISMATIC", "ArmError"]
+
+REVOLUTE = "revolute"
+PRISMATIC = "prismatic"
+_KIND_CODE = {REVOLUTE: 0, PRISMATIC: 1}
+
+
+class ArmError(WorkbenchError):
+    """A bad arm description: the message names what is wrong and where."""
+
+
+@dataclass(frozen=True, eq=False)
+class Joint:
+    """One joint of a serial chain (SI units).
+
+    Parameters
+    ----------
+    name : str
+        Unique joint name.
+    kind : {"revolute", "prismatic"}
+    origin : (4, 4) ndarray
+        Fixed transform from the previous joint frame (or the base) to this joint's frame at q = 0.
+    axis : (3,) ndarray
+        Unit joint axis in this joint's frame.
+    lower, upper : float
+        Limits in rad (revolute) or m (prismatic); ``-inf``/``inf`` when unlimited.
+    max_speed : float or None
+        Largest joint speed, rad/s or m/s.
+    max_effort : float or None
+        Largest joint torque (N m) or force (N).
+    mass : float or None
+        Mass (kg) of the link moved by this joint.
+    com : (3,) ndarray or None
+        Centre of mass of that link in this joint's frame (m).
+    """
+
+    name: str
+    kind: str
+    origin: np.ndarray
+    axis: np.ndarray
+    lower: float = -np.inf
+    upper: float = np.inf
+    max_speed: float | None = None
+    max_effort: float | None = None
+    mass: float | None = None
+    com: np.ndarray | None = None
+
+    @property
+    def revolute(self) -> bool:
+        return self.kind == REVOLUTE
+
+
+@dataclass(frozen=True, eq=False)
+class ArmModel:
+    """A serial arm: joints plus fixed end (flange), tool (TCP) and mount transforms.
+
+    ``source`` keeps the parsed arm-file content (file units) so the file can be written back
+    losslessly; it is ``None`` for arms built in code.
+    """
+
+    name: str
+    joints: tuple[Joint, ...]
+    end: np.ndarray = field(default_factory=lambda: np.eye(4))
+    tool: np.ndarray = field(default_factory=lambda: np.eye(4))
+    mount: np.ndarray = field(default_factory=lambda: np.eye(4))
+    home: np.ndarray | None = None
+    description: str = ""
+    tool_mass: float = 0.0
+    tool_com: np.ndarray = field(default_factory=lambda: np.zeros(3))
+    source: dict | None = None
+    path: str | None = None
+
+    # ---- array views used by the kernels (computed once) -------------------------------
+    @property
+    def n(self) -> int:
+        """Number of joints (degrees of freedom)."""
+        return len(self.joints)
+
+    @cached_property
+    def names(self) -> tuple[str, ...]:
+        return tuple(j.name for j in self.joints)
+
+    @cached_property
+    def origins(self) -> np.ndarray:
+        """(n, 4, 4) fixed joint origins."""
+        return np.ascontiguousarray(np.array([j.origin for j in self.joints], dtype=float).reshape(self.n, 4, 4))
+
+    @cached_property
+    def axes(self) -> np.ndarray:
+        """(n, 3) unit joint axes, each in its own joint frame."""
+        return np.ascontiguousarray(np.array([j.axis for j in self.joints], dtype=float).reshape(self.n, 3))
+
+    @cached_property
+    def kinds(self) -> np.ndarray:
+        """(n,) int8: 0 revolute, 1 prismatic."""
+        return np.array([_KIND_CODE[j.kind] for j in self.joints], dtype=np.int8)
+
+    @cached_property
+    def lower(self) -> np.ndarray:
+        return np.array([j.lower for j in self.joints], dtype=float)
+
+    @cached_property
+    def upper(self) -> np.ndarray:
+        return np.array([j.upper for j in self.joints], dtype=float)
+
+    @cached_property
+    def max_speed(self) -> np.ndarray:
+        """(n,) joint speed limits; NaN where not given."""
+        return np.array([np.nan if j.max_speed is None else j.max_speed for j in self.joints], dtype=float)
+
+    @cached_property
+    def max_effort(self) -> np.ndarray:
+        """(n,) joint torque/force limits; NaN where not given."""
+        return np.array([np.nan if j.max_effort is None else j.max_effort for j in self.joints], dtype=float)
+
+    @cached_property
+    def masses(self) -> np.ndarray:
+        """(n,) link masses; NaN where not given."""
+        return np.array([np.nan if j.mass is None else j.mass for j in self.joints], dtype=float)
+
+    @cached_property
+    def coms(self) -> np.ndarray:
+        """(n, 3) link centres of mass in their joint frames; zeros where not given."""
+        return np.array([np.zeros(3) if j.com is None else j.com for j in self.joints], dtype=float).reshape(self.n, 3)
+
+    @cached_property
+    def home_q(self) -> np.ndarray:
+        """(n,) home pose (zeros clipped into the limits when the file gives none)."""
+        if self.home is not None:
+            return np.asarray(self.home, dtype=float)
+        return np.clip(np.zeros(self.n), self.lower, self.upper)
+
+    @property
+    def has_masses(self) -> bool:
+        return bool(np.all(np.isfinite(self.masses)))
+
+    @cached_property
+    def tcp_offset(self) -> np.ndarray:
+        """(4, 4) fixed transform from the last joint frame to the TCP (end @ tool)."""
+        return self.end @ self.tool
+
+    def joint_index(self, name_or_index) -> int:
+        """0-based joint index from a joint name or a 0-based integer."""
+        if isinstance(name_or_index, (int, np.integer)):
+            k = int(name_or_index)
+            if not 0 <= k < self.n:
+                raise ArmError(f"joint index {k} is out of range: this arm has joints 0..{self.n - 1}")
+            return k
+        try:
+            return self.names.index(str(name_or_index))
+        except ValueError:
+            raise ArmError(f"no joint named {name_or_index!r}: joints are {', '.join(self.names)}") from None
+
+    def limit_span(self) -> np.ndarray:
+        """(n,) upper - lower (inf for unlimited joints)."""
+        return self.upper - self.lower

@@ -1,0 +1,1 @@
+"""The layout report (PDF and HTML)."""

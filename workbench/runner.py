@@ -1,0 +1,1 @@
+"""Chunk scheduling of studies (in-process, local processes, Dask), progress and cancel."""
