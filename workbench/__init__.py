@@ -23,8 +23,15 @@ def load_arm(path, base_link=None, tip_link=None):
     return Arm(read_arm_model(path, base_link=base_link, tip_link=tip_link))
 
 
-# The function ``measures`` shadows the module of the same name on purpose (DESIGN §6:
-# ``from workbench import measures``); the module stays importable as ``workbench.measures``
-# through sys.modules.
-from .measures import measures, pose_measures  # noqa: E402
-from .kinematics import Arm  # noqa: E402
+
+
+def __getattr__(name):  # lazy, so that importing workbench (or workbench.arm) stays light
+    if name == "pose_measures":
+        from .measures import pose_measures
+
+        return pose_measures
+    if name == "Arm":
+        from .kinematics import Arm
+
+        return Arm
+    raise AttributeError(f"module 'workbench' has no attribute {name!r}")

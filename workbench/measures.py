@@ -14,6 +14,9 @@ characteristic length of robotic manipulators", ASME 1992) so that the units do 
 """
 from __future__ import annotations
 
+import sys
+import types
+
 import numpy as np
 
 from .kinematics import kernels
@@ -91,3 +94,14 @@ def pose_measures(arm, q, frame="tcp", rows="full", length=None, world=False) ->
         length = arm.nominal_reach()
     sv = arm.singular_values(q, frame=frame, rows=rows, length=length, world=world)
     return measures_from_sv(sv)
+
+
+class _CallableModule(types.ModuleType):
+    """``from workbench import measures`` gives this module; calling it calls :func:`measures`
+    (DESIGN §6: ``m = measures(J, rows="translation")``)."""
+
+    def __call__(self, J, rows="full", length=1.0):
+        return measures(J, rows=rows, length=length)
+
+
+sys.modules[__name__].__class__ = _CallableModule
