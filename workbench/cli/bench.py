@@ -1,0 +1,43 @@
+"""``workbench bench [--json] [--quick] [--only NAME ...]``"""
+from __future__ import annotations
+
+import json
+import sys
+
+
+def add_parser(sub):
+    p = sub.add_parser("bench", help="throughput of this machine against plain references, as ratios",
+                       description="Run the engine and plain references on the same inputs in one process "
+                                   "and print rates, ratios and PASS/FAIL against the project's bars.")
+    p.add_argument("--json", action="store_true", help="print machine-readable JSON")
+    p.add_argument("--quick", action="store_true", help="smaller sizes (seconds, not minutes)")
+    p.add_argument("--only", nargs="+", metavar="NAME", help="run only these entries")
+    return p
+
+
+def run(args) -> int:
+    from ..bench import ENTRIES, format_results, run_benches
+    from ..errors import WorkbenchError
+
+    names = args.only
+    known = {n for n, _ in ENTRIES}
+    if names:
+        bad = [n for n in names if n not in known]
+        if bad:
+            raise WorkbenchError(f"--only: unknown bench entry {bad[0]!r}; entries are {', '.join(sorted(known))}")
+    results = run_benches(names, quick=args.quick, log=lambda s: print(s, file=sys.stderr))
+    if args.json:
+        print(json.dumps(results, indent=2, default=_jsonable))
+    else:
+        print(format_results(results))
+    return 0
+
+
+def _jsonable(o):
+    import numpy as np
+
+    if isinstance(o, np.generic):
+        return o.item()
+    if isinstance(o, np.ndarray):
+        return o.tolist()
+    return str(o)
