@@ -1,0 +1,764 @@
+"""Cell files: work points, paths, equipment boxes and the mount candidate region (our TOML schema).
+
+Schema (lengths in the file's ``length_unit``, "m" or "mm"; angles in degrees; the cell frame has
+z up, the floor at z = 0)::
+
+    [cell]
+    name = "Tray loading cell"         # required
+    description = "..."                # optional
+    length_unit = "m"                  # "m" (default) or "mm"
+
+    [[point]]                          # a work point (at least one)
+    name = "rack_1"                    # unique
+    xyz = [0.9, 0.5, 0.8]              # TCP position in the cell frame
+    orientation = "fixed"              # "fixed" (rpy), "axis" (tool z axis only) or "free" (position only)
+    rpy = [180, 0, 0]                  # for "fixed": TCP orientation (roll, pitch, yaw; R = Rz Ry Rx)
+    axis = [0, 0, -1]                  # for "axis": direction of the tool z axis in the cell frame
+    tolerance = 0.001                  # optional: position tolerance (length unit), default 1 mm
+    angle_tolerance = 0.5              # optional: orientation tolerance (deg), default 0.5
+
+    [[path]]                           # optional: a tool path through named points
+    name = "seam"
+    speed = 250                        # tool speed along the path, mm/s (always mm/s), > 0
+    through = ["a", "b", "c"]          # a polyline through named points ...
+    # ... or explicit segments from a start point (lines and circular arcs through a via point):
+    # start = "a"
+    # segments = [{line = "b"}, {arc = "c", via = "m"}]
+    orientation = "fixed"              # optional: "fixed" (slerp between the points' rpy), "axis"
+                                       # or "free"; default: the rule of the start point
+
+    [[box]]                            # optional: fixed equipment, drawn only (no collision checks)
+    name = "conveyor"
+    center = [1.0, -0.6, 0.4]
+    size = [2.0, 0.5, 0.8]             # full edge lengths along the box's own x, y, z
+    yaw = 0                            # optional, deg about z
+
+    [mount]                            # the candidate region of the mount search
+    x = [-0.5, 0.5]                    # range of the base origin x (length unit)
+    y = [-0.5, 0.5]
+    step = 0.1                         # grid step (or step_x / step_y)
+    heights = [0.0, 0.3]               # base origin z values (pedestal heights; ceiling height)
+    yaws = [0, 90, 180, 270]           # base yaw about the cell z axis, deg
+    style = "floor"                    # "floor", "wall", "ceiling", or a tilt in degrees;
+                                       # may be a list of these
+
+    [placement]                        # optional: the chosen mount (used by path audit and load map)
+    xyz = [0.2, 0.0, 0.3]
+    rpy = [0, 0, 90]
+
+Mount styles: a candidate base frame is ``T(x, y, h) @ Rz(yaw) @ Ry(tilt)`` with tilt 0 (floor,
+base z up), 90 (wall: base z horizontal, pointing along the yaw direction), 180 (ceiling, base z
+down) or the given tilt in degrees.
+
+:func:`read_cell_file` validates everything and raises :class:`CellFileError` with one line naming
+the file, the table/key and, where it can be found, the line.
+"""
+from __future__ import annotations
+
+import hashlib
+import math
+import os
+import re
+import tomllib
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from ..arm.transforms import inverse_transform, make_transform, rot_y, rot_z, translation
+from ..errors import WorkbenchError
+
+__all__ = ["CellFileError", "Cell", "WorkPoint", "Path", "Segment", "Box", "MountRegion",
+           "read_cell_file", "parse_cell_text", "mount_transforms", "style_tilt", "PathSamples",
+           "sample_path", "candidate_grid", "relative_targets", "ORIENTATION_RULES",
+           "MAX_MOUNT_CANDIDATES"]
+
+ORIENTATION_RULES = ("fixed", "axis", "free")
+STYLE_TILTS = {"floor": 0.0, "wall": 90.0, "ceiling": 180.0}
+MAX_MOUNT_CANDIDATES = 2_000_000
+_DEG = math.pi / 180.0
+_UNITS = {"m": 1.0, "mm": 1e-3}
+_TOP = {"cell", "point", "path", "box", "mount", "placement"}
+_CELL_KEYS = {"name", "description", "length_unit"}
+_POINT_KEYS = {"name", "xyz", "orientation", "rpy", "axis", "tolerance", "angle_tolerance"}
+_PATH_KEYS = {"name", "speed", "through", "start", "segments", "orientation"}
+_BOX_KEYS = {"name", "center", "size", "yaw"}
+_MOUNT_KEYS = {"x", "y", "step", "step_x", "step_y", "heights", "yaws", "style"}
+_PLACE_KEYS = {"xyz", "rpy"}
+
+
+class CellFileError(WorkbenchError):
+    """A bad cell file; the message names the file, the table/key, the line and what is expected."""
+
+
+# ----------------------------------------------------------------------------------------------
+# the model
+
+
+@dataclass(frozen=True, eq=False)
+class WorkPoint:
+    """A work point (SI units).
+
+    Attributes
+    ----------
+    pose : (4, 4) ndarray
+        TCP target in the cell frame; for "axis" its z column is the tool axis, for "free" the
+        rotation is the identity and not used.
+    rule : {"fixed", "axis", "free"}
+    tolerance : float
+        Position tolerance, m.
+    angle_tolerance : float
+        Orientation tolerance, rad.
+    """
+
+    name: str
+    pose: np.ndarray
+    rule: str
+    tolerance: float = 1e-3
+    angle_tolerance: float = 0.5 * _DEG
+
+    @property
+    def position(self) -> np.ndarray:
+        return self.pose[:3, 3]
+
+
+@dataclass(frozen=True)
+class Segment:
+    """One path segment: a line to ``to`` or a circular arc to ``to`` through ``via``."""
+
+    kind: str  # "line" | "arc"
+    to: str
+    via: str | None = None
+
+
+@dataclass(frozen=True)
+class Path:
+    """A tool path: start point name, segments, tool speed (m/s) and orientation rule."""
+
+    name: str
+    start: str
+    segments: tuple[Segment, ...]
+    speed: float
+    rule: str
+
+    def point_names(self) -> list[str]:
+        out = [self.start]
+        for s in self.segments:
+            if s.via:
+                out.append(s.via)
+            out.append(s.to)
+        return out
+
+
+@dataclass(frozen=True, eq=False)
+class Box:
+    """Fixed equipment for drawing: centre (m), full sizes (m), yaw (rad)."""
+
+    name: str
+    center: np.ndarray
+    size: np.ndarray
+    yaw: float = 0.0
+
+    def corners(self) -> np.ndarray:
+        """(8, 3) corner positions in the cell frame (m)."""
+        s = np.array([[sx, sy, sz] for sx in (-1, 1) for sy in (-1, 1) for sz in (-1, 1)], float) * self.size / 2
+        c, si = math.cos(self.yaw), math.sin(self.yaw)
+        R = np.array([[c, -si, 0], [si, c, 0], [0, 0, 1.0]])
+        return s @ R.T + self.center
+
+
+@dataclass(frozen=True, eq=False)
+class MountRegion:
+    """Candidate mounts: grids of x, y (m), heights (m), yaws (rad) and style tilts (rad)."""
+
+    xs: np.ndarray
+    ys: np.ndarray
+    heights: np.ndarray
+    yaws: np.ndarray
+    styles: tuple[str, ...]
+    tilts: np.ndarray
+
+    @property
+    def shape(self) -> tuple[int, int, int, int, int]:
+        """(styles, heights, yaws, ny, nx)."""
+        return (len(self.tilts), len(self.heights), len(self.yaws), len(self.ys), len(self.xs))
+
+    @property
+    def count(self) -> int:
+        return int(np.prod(self.shape))
+
+
+@dataclass(frozen=True, eq=False)
+class Cell:
+    """A parsed, validated cell (SI units). ``text`` is the file text, ``sha256`` its fingerprint."""
+
+    name: str
+    points: tuple[WorkPoint, ...]
+    paths: tuple[Path, ...] = ()
+    boxes: tuple[Box, ...] = ()
+    mount: MountRegion | None = None
+    placement: np.ndarray | None = None
+    description: str = ""
+    length_unit: str = "m"
+    text: str = ""
+    path: str | None = None
+    lines: dict = field(default_factory=dict)
+
+    @property
+    def sha256(self) -> str:
+        return hashlib.sha256(self.text.encode("utf-8")).hexdigest()
+
+    def point(self, name: str) -> WorkPoint:
+        for p in self.points:
+            if p.name == name:
+                return p
+        raise CellFileError(f"{self.path or '<cell>'}: no work point named {name!r}")
+
+    def get_path(self, name: str | None) -> "Path":
+        if not self.paths:
+            raise CellFileError(f"{self.path or '<cell>'}: the cell has no [[path]] tables; a path audit needs one")
+        if name is None:
+            return self.paths[0]
+        for p in self.paths:
+            if p.name == name:
+                return p
+        raise CellFileError(f"{self.path or '<cell>'}: no path named {name!r}; paths are "
+                            f"{', '.join(p.name for p in self.paths)}")
+
+    def point_poses(self) -> np.ndarray:
+        """(P, 4, 4) work point poses in the cell frame."""
+        return np.array([p.pose for p in self.points])
+
+    def summary(self) -> str:
+        s = f"{self.name}: {len(self.points)} work points, {len(self.paths)} paths, {len(self.boxes)} boxes"
+        if self.mount is not None:
+            s += f", {self.mount.count} mount candidates"
+        return s
+
+
+# ----------------------------------------------------------------------------------------------
+# reading and validation
+
+
+class _Ctx:
+    """Error context: file name and the text (to find the line of a key)."""
+
+    def __init__(self, name: str, text: str):
+        self.name = name
+        self.lines = text.splitlines()
+
+    def line_of(self, table: str | None, index: int | None, key: str | None) -> int | None:
+        """1-based line of ``key`` inside the ``index``-th ``[[table]]`` (or ``[table]``); best effort."""
+        start = 0
+        if table is not None:
+            hdr = re.compile(r"^\s*\[\[\s*" + re.escape(table) + r"\s*\]\]" if index is not None
+                             else r"^\s*\[\s*" + re.escape(table) + r"\s*\]")
+            count = -1
+            found = None
+            for i, ln in enumerate(self.lines):
+                if hdr.match(ln):
+                    count += 1
+                    if index is None or count == index:
+                        found = i
+                        break
+            if found is None:
+                return None
+            start = found
+            if key is None:
+                return found + 1
+        if key is None:
+            return None
+        kre = re.compile(r"^\s*" + re.escape(key) + r"\s*=")
+        for i in range(start + (1 if table else 0), len(self.lines)):
+            ln = self.lines[i]
+            if table is not None and i > start and re.match(r"^\s*\[", ln):
+                break
+            if kre.match(ln):
+                return i + 1
+        return None
+
+    def err(self, msg: str, table=None, index=None, key=None) -> CellFileError:
+        where = self.name
+        if table is not None:
+            where += f": [[{table}]] {index + 1}" if index is not None else f": [{table}]"
+        if key is not None:
+            where += f" '{key}'"
+        line = self.line_of(table, index, key)
+        if line is not None:
+            where += f" (line {line})"
+        return CellFileError(f"{where}: {msg}")
+
+
+def _num(ctx, v, table, index, key, positive=False, nonneg=False):
+    if isinstance(v, bool) or not isinstance(v, (int, float)):
+        raise ctx.err(f"expected a number, got {v!r}", table, index, key)
+    v = float(v)
+    if not math.isfinite(v):
+        raise ctx.err(f"expected a finite number, got {v!r}", table, index, key)
+    if positive and v <= 0:
+        raise ctx.err(f"expected a number > 0, got {v:g}", table, index, key)
+    if nonneg and v < 0:
+        raise ctx.err(f"expected a number >= 0, got {v:g}", table, index, key)
+    return v
+
+
+def _vec(ctx, v, table, index, key, size=3):
+    if not isinstance(v, (list, tuple)) or len(v) != size:
+        raise ctx.err(f"expected a list of {size} numbers, got {v!r}", table, index, key)
+    return np.array([_num(ctx, x, table, index, key) for x in v], dtype=float)
+
+
+def _numlist(ctx, v, table, key, nonempty=True):
+    if isinstance(v, (int, float)) and not isinstance(v, bool):
+        v = [v]
+    if not isinstance(v, (list, tuple)):
+        raise ctx.err(f"expected a list of numbers, got {v!r}", table, None, key)
+    if nonempty and not v:
+        raise ctx.err("the list is empty: the candidate region needs at least one value", table, None, key)
+    return np.array([_num(ctx, x, table, None, key) for x in v], dtype=float)
+
+
+def _keys(ctx, tbl, allowed, table, index=None):
+    if not isinstance(tbl, dict):
+        raise ctx.err(f"expected a table, got {type(tbl).__name__}", table, index)
+    unknown = sorted(set(tbl) - allowed)
+    if unknown:
+        raise ctx.err(f"unknown key; allowed keys: {', '.join(sorted(allowed))}", table, index, unknown[0])
+
+
+def _tool_z_frame(axis: np.ndarray) -> np.ndarray:
+    """A rotation (3, 3) whose z column is the unit ``axis`` (x chosen deterministically)."""
+    z = axis / np.linalg.norm(axis)
+    ref = np.array([1.0, 0, 0]) if abs(z[0]) < 0.9 else np.array([0, 1.0, 0])
+    x = ref - z * (ref @ z)
+    x /= np.linalg.norm(x)
+    y = np.cross(z, x)
+    return np.stack([x, y, z], axis=1)
+
+
+def read_cell_file(path) -> Cell:
+    """Read and validate a cell file -> :class:`Cell` (SI units).
+
+    Raises
+    ------
+    CellFileError
+        One line naming the file, table/key, line and what is expected.
+    """
+    path = os.fspath(path)
+    try:
+        with open(path, "rb") as fh:
+            raw = fh.read()
+    except IsADirectoryError:
+        raise CellFileError(f"{path}: is a directory, expected a cell file (.toml)") from None
+    except FileNotFoundError:
+        raise CellFileError(f"{path}: no such file") from None
+    except OSError as exc:
+        raise CellFileError(f"{path}: cannot be read ({exc.strerror})") from None
+    try:
+        text = raw.decode("utf-8")
+    except UnicodeDecodeError:
+        raise CellFileError(f"{path}: not UTF-8 text; expected a TOML cell file") from None
+    return parse_cell_text(text, source_name=path)
+
+
+def parse_cell_text(text: str, source_name: str = "<cell>") -> Cell:
+    """Parse and validate cell-file text (see the module docstring for the schema)."""
+    ctx = _Ctx(source_name, text)
+    try:
+        data = tomllib.loads(text)
+    except tomllib.TOMLDecodeError as exc:
+        raise CellFileError(f"{source_name}: malformed TOML: {exc}") from None
+    _keys(ctx, data, _TOP, None)
+    if "cell" not in data:
+        raise CellFileError(f"{source_name}: missing table [cell] (with at least 'name')")
+    c = data["cell"]
+    _keys(ctx, c, _CELL_KEYS, "cell")
+    name = c.get("name")
+    if not isinstance(name, str) or not name.strip():
+        raise ctx.err(f"expected a non-empty string, got {name!r}", "cell", None, "name")
+    unit = c.get("length_unit", "m")
+    if unit not in _UNITS:
+        raise ctx.err(f"expected 'm' or 'mm', got {unit!r}", "cell", None, "length_unit")
+    L = _UNITS[unit]
+    desc = c.get("description", "")
+    if not isinstance(desc, str):
+        raise ctx.err("expected a string", "cell", None, "description")
+
+    # ---- work points
+    raw_pts = data.get("point", [])
+    if not isinstance(raw_pts, list) or not raw_pts:
+        raise CellFileError(f"{source_name}: no [[point]] tables; a cell needs at least one work point")
+    points = []
+    for i, p in enumerate(raw_pts):
+        _keys(ctx, p, _POINT_KEYS, "point", i)
+        pname = p.get("name")
+        if not isinstance(pname, str) or not pname.strip():
+            raise ctx.err(f"expected a non-empty string, got {pname!r}", "point", i, "name")
+        if any(q.name == pname for q in points):
+            raise ctx.err(f"duplicate work point name {pname!r}", "point", i, "name")
+        if "xyz" not in p:
+            raise ctx.err("missing key 'xyz' (the TCP position)", "point", i)
+        xyz = _vec(ctx, p["xyz"], "point", i, "xyz") * L
+        rule = p.get("orientation", "fixed" if "rpy" in p else ("axis" if "axis" in p else "free"))
+        if rule not in ORIENTATION_RULES:
+            raise ctx.err(f"expected one of fixed, axis, free, got {rule!r}", "point", i, "orientation")
+        T = np.eye(4)
+        T[:3, 3] = xyz
+        if rule == "fixed":
+            if "rpy" not in p:
+                raise ctx.err("orientation 'fixed' needs 'rpy' (degrees)", "point", i, "orientation")
+            T[:3, :3] = make_transform(np.zeros(3), _vec(ctx, p["rpy"], "point", i, "rpy") * _DEG)[:3, :3]
+        elif rule == "axis":
+            if "axis" not in p:
+                raise ctx.err("orientation 'axis' needs 'axis' (tool z direction)", "point", i, "orientation")
+            ax = _vec(ctx, p["axis"], "point", i, "axis")
+            if np.linalg.norm(ax) < 1e-9:
+                raise ctx.err("zero-length axis; expected a direction", "point", i, "axis")
+            T[:3, :3] = _tool_z_frame(ax)
+        tol = _num(ctx, p.get("tolerance", 1e-3 / L), "point", i, "tolerance", positive=True) * L
+        atol = _num(ctx, p.get("angle_tolerance", 0.5), "point", i, "angle_tolerance", positive=True) * _DEG
+        points.append(WorkPoint(pname.strip(), T, rule, tol, atol))
+    names = {p.name for p in points}
+
+    # ---- paths
+    raw_paths = data.get("path", [])
+    if not isinstance(raw_paths, list):
+        raise CellFileError(f"{source_name}: 'path' must be an array of tables ([[path]])")
+    paths = []
+    for i, p in enumerate(raw_paths):
+        _keys(ctx, p, _PATH_KEYS, "path", i)
+        pname = p.get("name")
+        if not isinstance(pname, str) or not pname.strip():
+            raise ctx.err(f"expected a non-empty string, got {pname!r}", "path", i, "name")
+        if any(q.name == pname for q in paths):
+            raise ctx.err(f"duplicate path name {pname!r}", "path", i, "name")
+        if "speed" not in p:
+            raise ctx.err("missing key 'speed' (tool speed in mm/s)", "path", i)
+        speed = _num(ctx, p["speed"], "path", i, "speed")
+        if speed <= 0:
+            raise ctx.err(f"tool speed must be > 0 mm/s, got {speed:g}", "path", i, "speed")
+        if ("through" in p) == ("start" in p):
+            raise ctx.err("give either 'through' (a polyline) or 'start' with 'segments'", "path", i)
+        segs = []
+        if "through" in p:
+            thr = p["through"]
+            if not isinstance(thr, list) or len(thr) < 2 or not all(isinstance(s, str) for s in thr):
+                raise ctx.err(f"expected a list of at least 2 point names, got {thr!r}", "path", i, "through")
+            start = thr[0]
+            segs = [Segment("line", s) for s in thr[1:]]
+            key = "through"
+        else:
+            start = p["start"]
+            if not isinstance(start, str):
+                raise ctx.err(f"expected a point name, got {start!r}", "path", i, "start")
+            raw_segs = p.get("segments")
+            if not isinstance(raw_segs, list) or not raw_segs:
+                raise ctx.err("expected a non-empty list like [{line = \"b\"}, {arc = \"c\", via = \"m\"}]",
+                              "path", i, "segments")
+            for s in raw_segs:
+                if not isinstance(s, dict) or not ({"line"} == set(s) or {"arc", "via"} == set(s)):
+                    raise ctx.err(f"each segment is {{line = NAME}} or {{arc = NAME, via = NAME}}, got {s!r}",
+                                  "path", i, "segments")
+                if "line" in s:
+                    segs.append(Segment("line", s["line"]))
+                else:
+                    segs.append(Segment("arc", s["arc"], s["via"]))
+            key = "segments"
+        path = Path(pname.strip(), start, tuple(segs), speed * 1e-3, "free")
+        for nm in path.point_names():
+            if not isinstance(nm, str) or nm not in names:
+                raise ctx.err(f"path goes through {nm!r}, which is not a work point name "
+                              f"(known: {', '.join(sorted(names))})", "path", i, key if nm != start or key == "through" else "start")
+        by = {q.name: q for q in points}
+        prev = by[start].position
+        for s in segs:
+            nxt = by[s.to].position
+            if np.linalg.norm(nxt - prev) < 1e-9:
+                raise ctx.err(f"segment to {s.to!r} has zero length", "path", i, key)
+            if s.kind == "arc":
+                mid = by[s.via].position
+                if np.linalg.norm(np.cross(mid - prev, nxt - prev)) < 1e-9 * max(1.0, np.linalg.norm(nxt - prev)) ** 2:
+                    raise ctx.err(f"arc to {s.to!r} via {s.via!r}: the three points are on one line", "path", i, key)
+            prev = nxt
+        rule = p.get("orientation", by[start].rule)
+        if rule not in ORIENTATION_RULES:
+            raise ctx.err(f"expected one of fixed, axis, free, got {rule!r}", "path", i, "orientation")
+        rank = {"free": 0, "axis": 1, "fixed": 2}
+        for nm in path.point_names():
+            if rank[by[nm].rule] < rank[rule]:
+                raise ctx.err(f"orientation {rule!r} needs every point of the path to give one; "
+                              f"point {nm!r} is {by[nm].rule!r}", "path", i, "orientation")
+        paths.append(Path(pname.strip(), start, tuple(segs), speed * 1e-3, rule))
+
+    # ---- boxes
+    raw_boxes = data.get("box", [])
+    if not isinstance(raw_boxes, list):
+        raise CellFileError(f"{source_name}: 'box' must be an array of tables ([[box]])")
+    boxes = []
+    for i, b in enumerate(raw_boxes):
+        _keys(ctx, b, _BOX_KEYS, "box", i)
+        bname = b.get("name", f"box {i + 1}")
+        if not isinstance(bname, str):
+            raise ctx.err("expected a string", "box", i, "name")
+        for k in ("center", "size"):
+            if k not in b:
+                raise ctx.err(f"missing key '{k}'", "box", i)
+        size = _vec(ctx, b["size"], "box", i, "size") * L
+        if np.any(size <= 0):
+            raise ctx.err("every size must be > 0", "box", i, "size")
+        boxes.append(Box(bname, _vec(ctx, b["center"], "box", i, "center") * L, size,
+                         _num(ctx, b.get("yaw", 0.0), "box", i, "yaw") * _DEG))
+
+    # ---- mount region
+    mount = None
+    if "mount" in data:
+        m = data["mount"]
+        _keys(ctx, m, _MOUNT_KEYS, "mount")
+        axes = {}
+        for ax in ("x", "y"):
+            if ax not in m:
+                raise ctx.err(f"missing key '{ax}' ([min, max] or a single value)", "mount")
+            r = _numlist(ctx, m[ax], "mount", ax)
+            if len(r) == 1:
+                r = np.array([r[0], r[0]])
+            if len(r) != 2:
+                raise ctx.err(f"expected [min, max], got {m[ax]!r}", "mount", None, ax)
+            if r[1] < r[0]:
+                raise ctx.err(f"empty candidate region: min {r[0]:g} > max {r[1]:g}", "mount", None, ax)
+            skey = f"step_{ax}" if f"step_{ax}" in m else "step"
+            if r[1] > r[0]:
+                if skey not in m:
+                    raise ctx.err(f"missing key 'step' (grid step, {unit})", "mount")
+                step = _num(ctx, m[skey], "mount", None, skey, positive=True)
+                n = int(math.floor((r[1] - r[0]) / step + 1e-9)) + 1
+                vals = r[0] + step * np.arange(n)
+            else:
+                vals = r[:1]
+            axes[ax] = vals * L
+        heights = _numlist(ctx, m.get("heights", [0.0]), "mount", "heights") * L
+        yaws = _numlist(ctx, m.get("yaws", [0.0]), "mount", "yaws") * _DEG
+        st = m.get("style", "floor")
+        st_list = st if isinstance(st, list) else [st]
+        if not st_list:
+            raise ctx.err("empty candidate region: the style list is empty", "mount", None, "style")
+        styles, tilts = [], []
+        for s in st_list:
+            if isinstance(s, str) and s in STYLE_TILTS:
+                styles.append(s)
+                tilts.append(STYLE_TILTS[s] * _DEG)
+            elif isinstance(s, (int, float)) and not isinstance(s, bool) and math.isfinite(s):
+                styles.append(f"tilt {float(s):g} deg")
+                tilts.append(float(s) * _DEG)
+            else:
+                raise ctx.err(f"expected floor, wall, ceiling or a tilt in degrees, got {s!r}", "mount", None, "style")
+        mount = MountRegion(axes["x"], axes["y"], heights, yaws, tuple(styles), np.array(tilts))
+        if mount.count > MAX_MOUNT_CANDIDATES:
+            raise ctx.err(f"{mount.count} candidates; at most {MAX_MOUNT_CANDIDATES} (use a coarser step)",
+                          "mount", None, "step")
+
+    placement = None
+    if "placement" in data:
+        pl = data["placement"]
+        _keys(ctx, pl, _PLACE_KEYS, "placement")
+        placement = make_transform(_vec(ctx, pl.get("xyz", [0, 0, 0]), "placement", None, "xyz") * L,
+                                   _vec(ctx, pl.get("rpy", [0, 0, 0]), "placement", None, "rpy") * _DEG)
+
+    return Cell(name.strip(), tuple(points), tuple(paths), tuple(boxes), mount, placement, desc, unit,
+                text, source_name)
+
+
+# ----------------------------------------------------------------------------------------------
+# mount candidates
+
+
+def style_tilt(style) -> float:
+    """Tilt (rad) of a mount style name or a tilt given in degrees."""
+    if isinstance(style, str):
+        if style not in STYLE_TILTS:
+            raise WorkbenchError(f"mount style: expected floor, wall, ceiling or a tilt in degrees, got {style!r}")
+        return STYLE_TILTS[style] * _DEG
+    return float(style) * _DEG
+
+
+def mount_transforms(x, y, h, yaw, tilt=0.0) -> np.ndarray:
+    """Base-in-cell transforms ``T(x, y, h) @ Rz(yaw) @ Ry(tilt)`` (broadcast) -> (..., 4, 4).
+
+    Parameters
+    ----------
+    x, y, h : array_like
+        Base origin in the cell frame, m.
+    yaw, tilt : array_like
+        Rotation about the cell z axis, then about the rotated y axis, rad.
+    """
+    x, y, h, yaw, tilt = np.broadcast_arrays(*(np.asarray(v, float) for v in (x, y, h, yaw, tilt)))
+    return translation(x, y, h) @ rot_z(yaw) @ rot_y(tilt)
+
+
+def candidate_grid(region: MountRegion) -> np.ndarray:
+    """(S, H, Y, ny, nx, 4, 4) mount transforms of every candidate of ``region``."""
+    S = region.tilts[:, None, None, None, None]
+    H = region.heights[None, :, None, None, None]
+    Yw = region.yaws[None, None, :, None, None]
+    yy = region.ys[None, None, None, :, None]
+    xx = region.xs[None, None, None, None, :]
+    return mount_transforms(xx, yy, H, Yw, S)
+
+
+# ----------------------------------------------------------------------------------------------
+# path sampling
+
+
+@dataclass(frozen=True, eq=False)
+class PathSamples:
+    """Samples along a path (cell frame, SI units).
+
+    Attributes
+    ----------
+    s : (N,) ndarray
+        Distance along the path, m.
+    poses : (N, 4, 4) ndarray
+        TCP targets (rotation meaningful per ``rule``).
+    tangent : (N, 3) ndarray
+        Unit tangent of the path.
+    omega_per_m : (N, 3) ndarray
+        Tool angular velocity per unit path speed (rad/m) from the orientation interpolation.
+    segment : (N,) int ndarray
+        Segment index of each sample.
+    corners : (K,) ndarray
+        Path distances of the segment ends (m).
+    """
+
+    s: np.ndarray
+    poses: np.ndarray
+    tangent: np.ndarray
+    omega_per_m: np.ndarray
+    segment: np.ndarray
+    corners: np.ndarray
+    rule: str
+    speed: float
+    name: str
+
+    @property
+    def length(self) -> float:
+        return float(self.corners[-1]) if len(self.corners) else 0.0
+
+
+def _rotvec(R):
+    from scipy.spatial.transform import Rotation
+
+    return Rotation.from_matrix(R).as_rotvec()
+
+
+def _rot_from_rotvec(v):
+    from scipy.spatial.transform import Rotation
+
+    return Rotation.from_rotvec(v).as_matrix()
+
+
+def _align(a, b):
+    """Smallest rotation (3, 3) taking unit vector a to unit vector b."""
+    a = a / np.linalg.norm(a)
+    b = b / np.linalg.norm(b)
+    v = np.cross(a, b)
+    c = float(a @ b)
+    sn = float(np.linalg.norm(v))
+    if sn < 1e-12:
+        if c > 0:
+            return np.eye(3)
+        return _tool_z_frame(a) @ np.diag([1.0, -1.0, -1.0]) @ _tool_z_frame(a).T
+    return _rot_from_rotvec(v / sn * math.atan2(sn, c))
+
+
+def sample_path(cell: Cell, path: Path, spacing: float) -> PathSamples:
+    """Sample ``path`` of ``cell`` every ``spacing`` metres (at least 2 samples per segment).
+
+    Lines are straight; arcs are circles through start, via and end. Orientation: "fixed" turns
+    at a constant rate about one axis from each segment's start orientation to its end orientation
+    (slerp); "axis" turns the tool axis likewise by the smallest rotation; "free" keeps the start's.
+    """
+    if not (isinstance(spacing, (int, float)) and math.isfinite(spacing) and spacing > 0):
+        raise WorkbenchError(f"path audit 'spacing': expected a positive length in metres, got {spacing!r}")
+    by = {p.name: p for p in cell.points}
+    s_all, P_all, R_all, t_all, w_all, seg_all = [], [], [], [], [], []
+    corners = [0.0]
+    s0 = 0.0
+    prev = by[path.start]
+    R_prev = prev.pose[:3, :3]
+    for k, seg in enumerate(path.segments):
+        nxt = by[seg.to]
+        a, b = prev.position, nxt.position
+        if seg.kind == "line":
+            length = float(np.linalg.norm(b - a))
+            m = max(2, int(math.ceil(length / spacing)) + 1)
+            u = np.linspace(0.0, 1.0, m)
+            pos = a + u[:, None] * (b - a)
+            tan = np.tile((b - a) / length, (m, 1))
+        else:
+            c3 = by[seg.via].position
+            # circle through a, c3, b
+            ab, ac = b - a, c3 - a
+            nrm = np.cross(ab, ac)
+            nn = nrm @ nrm
+            centre = a + (np.cross(nrm, ab) * (ac @ ac) + np.cross(ac, nrm) * (ab @ ab)) / (2 * nn)
+            radius = float(np.linalg.norm(a - centre))
+            axis = -nrm / math.sqrt(nn)  # (ac x ab): a -> via -> b turns positively about it
+            e1 = (a - centre) / radius
+            e2 = np.cross(axis, e1)
+
+            def ang(p):
+                d = p - centre
+                return math.atan2(d @ e2, d @ e1) % (2 * math.pi)
+
+            th_b = ang(b)  # the arc from a (0) runs positively about axis through via then to b
+            length = radius * th_b
+            m = max(2, int(math.ceil(length / spacing)) + 1)
+            th = np.linspace(0.0, th_b, m)
+            pos = centre + radius * (np.cos(th)[:, None] * e1 + np.sin(th)[:, None] * e2)
+            tan = -np.sin(th)[:, None] * e1 + np.cos(th)[:, None] * e2
+            u = th / th_b
+        R_next = nxt.pose[:3, :3]
+        if path.rule == "fixed":
+            rv = _rotvec(R_next @ R_prev.T)
+        elif path.rule == "axis":
+            rv = _rotvec(_align(R_prev[:, 2], R_next[:, 2]))
+        else:
+            rv = np.zeros(3)
+        Rs = _rot_from_rotvec(u[:, None] * rv) @ R_prev
+        w = np.tile(rv / length, (m, 1))
+        if path.rule == "axis":
+            R_end = Rs[-1]
+        elif path.rule == "fixed":
+            R_end = R_next
+        else:
+            R_end = R_prev
+        sl = s0 + u * length if seg.kind == "line" else s0 + th * radius
+        start = 0 if k == 0 else 1  # the joint sample is shared with the previous segment
+        s_all.append(sl[start:]); P_all.append(pos[start:]); R_all.append(Rs[start:])
+        t_all.append(tan[start:]); w_all.append(w[start:]); seg_all.append(np.full(m - start, k))
+        s0 += length
+        corners.append(s0)
+        prev, R_prev = nxt, R_end
+    s = np.concatenate(s_all)
+    N = len(s)
+    poses = np.tile(np.eye(4), (N, 1, 1))
+    poses[:, :3, :3] = np.concatenate(R_all)
+    poses[:, :3, 3] = np.concatenate(P_all)
+    return PathSamples(s, poses, np.concatenate(t_all), np.concatenate(w_all), np.concatenate(seg_all),
+                       np.array(corners), path.rule, path.speed, path.name)
+
+
+def relative_targets(mounts: np.ndarray, poses: np.ndarray) -> np.ndarray:
+    """Targets in the arm base frame: ``inverse(mount) @ pose``.
+
+    Parameters
+    ----------
+    mounts : (..., 4, 4)
+        Base-in-cell transforms.
+    poses : (P, 4, 4)
+        Work point poses in the cell frame.
+
+    Returns
+    -------
+    (..., P, 4, 4) ndarray
+    """
+    inv = inverse_transform(np.asarray(mounts, float))
+    return np.einsum("...ij,pjk->...pik", inv, np.asarray(poses, float))
