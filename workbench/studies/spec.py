@@ -36,8 +36,6 @@ _TOP_KEYS = {"study", "settings"}
 
 #: where cell-file readers may live ("module:function(path) -> cell"); the first that imports wins
 CELL_READERS = (
-    "workbench.arm.cell:read_cell_file",
-    "workbench.cell:read_cell_file",
     "workbench.studies.cell:read_cell_file",
 )
 

@@ -1,0 +1,459 @@
+"""Joint sweep: Jacobian measures over a grid (or random samples) of joint space.
+
+Three modes (``mode`` in the ``[settings]`` table of a study file):
+
+``"grid"`` (default)
+    1, 2 or 3 chosen ``joints`` swept over ``ranges`` with ``steps`` points each (end points
+    included); the other joints stay at ``pose`` (default: the arm's home pose).
+``"reduce"``
+    A coarse grid over *all* joints (``coarse_steps`` points for each joint not chosen) reduced
+    onto the 2 chosen joints: per cell of the chosen joints' grid, the min / max / mean of each
+    measure over the coarse grid of the others, plus the joint values at the best and the worst
+    cell (by ``best_by``).
+``"samples"``
+    ``samples`` uniform random poses inside the joint limits (seeded by ``seed``), giving a point
+    cloud of the chosen frame's position with the measures at each point.
+
+Measures per cell (see :mod:`workbench.measures`): manipulability, condition, inverse_condition,
+min_sv of the chosen ``frame`` and task ``rows`` (translational rows divided by the characteristic
+length ``length`` when rows mix translation and rotation; default the arm's nominal reach), and the
+joint-limit margin (:meth:`workbench.kinematics.Arm.limit_margin`). Computed by the fused compiled
+path :func:`workbench.measures.pose_measures`, batched over the chunk.
+
+File units: revolute joint values in degrees, prismatic in metres, ``length`` in metres.
+"""
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+
+from ..kinematics.rows import parse_rows
+from ..measures import pose_measures
+from .base import Axis, Chunk, Field, Plan, StudyError, StudyKind, Table, block_rng
+
+__all__ = ["JointSweep", "JointSweepSettings", "MAX_CELLS", "MAX_POSES"]
+
+#: the largest grid a study may describe (the runner also checks memory and disk)
+MAX_CELLS = 10_000_000_000
+#: the largest number of poses (cells x coarse poses) of a reduce study
+MAX_POSES = 100_000_000_000
+_MODES = ("grid", "reduce", "samples")
+_REDUCE_OPS = ("min", "max", "mean")
+_SCALARS = ("manipulability", "condition", "inverse_condition", "min_sv", "limit_margin")
+#: status bits
+NEAR_SINGULAR = 1
+OUTSIDE_LIMITS = 2
+_KEYS = {"mode", "joints", "ranges", "steps", "pose", "frame", "rows", "length", "coarse_steps",
+         "reduce", "best_by", "samples", "seed", "near_singular", "store_sv", "store_tcp", "dtype"}
+#: poses per chunk the planner aims at before the runner calibrates
+_POSES_PER_CHUNK = 32768
+
+
+@dataclass(frozen=True, eq=False)
+class JointSweepSettings:
+    """Validated joint-sweep settings (SI units; joint indices 0-based)."""
+
+    mode: str
+    joints: tuple          # chosen joint indices
+    ranges: tuple          # ((lo, hi), ...) rad / m, one per chosen joint
+    steps: tuple           # points per chosen joint
+    pose: np.ndarray       # (n,) fixed pose, rad / m
+    frame: str
+    rows: tuple            # row indices
+    rows_name: str
+    length: float          # characteristic length, m
+    coarse_steps: tuple    # per other joint (reduce mode)
+    reduce: tuple          # subset of ("min", "max", "mean")
+    best_by: str
+    samples: int
+    seed: int
+    near_singular: float   # inverse-condition threshold of the status flag
+    store_sv: bool
+    store_tcp: bool
+    dtype: str
+
+
+def _err(where, key, msg):
+    return StudyError(f"{where} {key}: {msg}")
+
+
+def _is_num(v):
+    return isinstance(v, (int, float)) and not isinstance(v, bool) and math.isfinite(v)
+
+
+def _is_int(v):
+    return isinstance(v, int) and not isinstance(v, bool)
+
+
+class JointSweep(StudyKind):
+    """Measures over a grid or random samples of joint space (see the module docstring)."""
+
+    name = "joint_sweep"
+    title = "Joint sweep"
+
+    # ------------------------------------------------------------------------------------------
+    def default_settings(self, arm) -> dict:
+        names = list(arm.names)
+        j = names[1:3] if len(names) >= 3 else names[:2]
+        ranges = []
+        for name in j:
+            k = names.index(name)
+            ranges.append([float(v) for v in self._file_limits(arm, k)])
+        return {"mode": "grid", "joints": j, "ranges": ranges, "steps": [101] * len(j),
+                "frame": "tcp", "rows": "full"}
+
+    @staticmethod
+    def _to_file(arm, k, v):
+        return np.degrees(v) if arm.kinds[k] == 0 else v
+
+    @staticmethod
+    def _to_si(arm, k, v):
+        return np.radians(v) if arm.kinds[k] == 0 else v
+
+    def _file_limits(self, arm, k):
+        lo, hi = arm.lower[k], arm.upper[k]
+        big = 180.0 if arm.kinds[k] == 0 else 1.0
+        lo = self._to_file(arm, k, lo) if np.isfinite(lo) else -big
+        hi = self._to_file(arm, k, hi) if np.isfinite(hi) else big
+        return round(float(lo), 9), round(float(hi), 9)
+
+    # ------------------------------------------------------------------------------------------
+    def validate(self, settings, arm, cell=None, where: str = "[settings]") -> JointSweepSettings:
+        s = dict(settings or {})
+        unknown = sorted(set(s) - _KEYS)
+        if unknown:
+            raise _err(where, unknown[0], f"unknown setting; allowed: {', '.join(sorted(_KEYS))}")
+        n = arm.n
+        mode = s.get("mode", "grid")
+        if mode not in _MODES:
+            raise _err(where, "mode", f"expected one of {', '.join(_MODES)}, got {mode!r}")
+
+        # chosen joints
+        joints_raw = s.get("joints")
+        if mode == "samples":
+            joints_raw = joints_raw if joints_raw is not None else []
+        elif joints_raw is None:
+            raise _err(where, "joints", f"missing; expected a list of {'2' if mode == 'reduce' else '1 to 3'} "
+                                        f"joint names of {', '.join(arm.names)}")
+        if isinstance(joints_raw, str):
+            joints_raw = [joints_raw]
+        if not isinstance(joints_raw, list):
+            raise _err(where, "joints", f"expected a list of joint names, got {joints_raw!r}")
+        joints = []
+        for j in joints_raw:
+            if _is_int(j) and 1 <= j <= n:
+                joints.append(j - 1)
+            elif isinstance(j, str) and j in arm.names:
+                joints.append(arm.names.index(j))
+            else:
+                raise _err(where, "joints", f"unknown joint {j!r}; expected names of {', '.join(arm.names)} "
+                                            f"or numbers 1..{n}")
+        if len(set(joints)) != len(joints):
+            raise _err(where, "joints", f"a joint is listed twice in {joints_raw!r}")
+        if mode == "grid" and not 1 <= len(joints) <= 3:
+            raise _err(where, "joints", f"a grid sweep takes 1, 2 or 3 joints, got {len(joints)}")
+        if mode == "reduce" and len(joints) != 2:
+            raise _err(where, "joints", f"a reduce sweep takes exactly 2 joints, got {len(joints)}")
+
+        # ranges and steps of the chosen joints
+        ranges, steps = [], []
+        if mode != "samples":
+            r_raw = s.get("ranges")
+            if r_raw is None:
+                r_raw = [list(self._file_limits(arm, k)) for k in joints]
+            if (not isinstance(r_raw, list) or len(r_raw) != len(joints)
+                    or not all(isinstance(r, list) and len(r) == 2 and all(_is_num(v) for v in r) for r in r_raw)):
+                raise _err(where, "ranges", f"expected {len(joints)} pairs [from, to] (degrees for revolute "
+                                            f"joints, metres for prismatic), got {r_raw!r}")
+            st_raw = s.get("steps", [101] * len(joints))
+            if _is_int(st_raw):
+                st_raw = [st_raw] * len(joints)
+            if not isinstance(st_raw, list) or len(st_raw) != len(joints) or not all(_is_int(v) for v in st_raw):
+                raise _err(where, "steps", f"expected {len(joints)} whole numbers of grid points, got {st_raw!r}")
+            for k, (lo, hi), st in zip(joints, r_raw, st_raw):
+                name = arm.names[k]
+                if st < 1:
+                    raise _err(where, "steps", f"joint {name}: expected at least 1 point, got {st}")
+                if hi < lo:
+                    raise _err(where, "ranges", f"joint {name}: empty range [{lo}, {hi}]; expected from <= to")
+                if hi == lo and st > 1:
+                    raise _err(where, "ranges", f"joint {name}: empty range [{lo}, {hi}] with {st} steps; "
+                                                f"expected from < to (or steps = 1)")
+                ranges.append((float(self._to_si(arm, k, lo)), float(self._to_si(arm, k, hi))))
+                steps.append(int(st))
+
+        # fixed pose
+        pose_raw = s.get("pose")
+        if pose_raw is None:
+            pose = np.asarray(arm.home_q, dtype=float).copy()
+        else:
+            if not isinstance(pose_raw, list) or len(pose_raw) != n or not all(_is_num(v) for v in pose_raw):
+                raise _err(where, "pose", f"expected {n} joint values (degrees / metres), got {pose_raw!r}")
+            pose = np.array([self._to_si(arm, k, float(v)) for k, v in enumerate(pose_raw)])
+
+        frame = s.get("frame", "tcp")
+        if not isinstance(frame, str):
+            raise _err(where, "frame", f"expected a frame name, got {frame!r}")
+        try:
+            arm.resolve_frame(frame)
+        except Exception as exc:  # ArmError: name the study key
+            raise _err(where, "frame", str(exc).split(": ", 1)[-1]) from None
+        rows_raw = s.get("rows", "full")
+        try:
+            rows = parse_rows(rows_raw)
+        except Exception as exc:
+            raise _err(where, "rows", str(exc).split(": ", 1)[-1]) from None
+        rows_name = rows_raw if isinstance(rows_raw, str) else ",".join(str(r) for r in rows_raw)
+        length = s.get("length")
+        if length is None:
+            length = float(arm.nominal_reach())
+        elif not _is_num(length) or length <= 0:
+            raise _err(where, "length", f"expected a positive characteristic length in metres, got {length!r}")
+
+        others = [k for k in range(n) if k not in joints]
+        coarse = ()
+        if mode == "reduce":
+            c_raw = s.get("coarse_steps", 5)
+            if _is_int(c_raw):
+                c_raw = [c_raw] * len(others)
+            if not isinstance(c_raw, list) or len(c_raw) != len(others) or not all(_is_int(v) and v >= 1 for v in c_raw):
+                raise _err(where, "coarse_steps", f"expected a whole number >= 1 or {len(others)} of them "
+                                                  f"(one per joint not swept), got {s.get('coarse_steps')!r}")
+            coarse = tuple(int(v) for v in c_raw)
+        red = s.get("reduce", list(_REDUCE_OPS))
+        if isinstance(red, str):
+            red = [red]
+        if not isinstance(red, list) or not red or not all(r in _REDUCE_OPS for r in red):
+            raise _err(where, "reduce", f"expected a non-empty list of {', '.join(_REDUCE_OPS)}, got {red!r}")
+        best_by = s.get("best_by", "inverse_condition")
+        if best_by not in _SCALARS:
+            raise _err(where, "best_by", f"expected one of {', '.join(_SCALARS)}, got {best_by!r}")
+        samples = s.get("samples", 10000)
+        if mode == "samples" and (not _is_int(samples) or samples < 1):
+            raise _err(where, "samples", f"expected a whole number of samples >= 1, got {samples!r}")
+        seed = s.get("seed", 0)
+        if not _is_int(seed) or seed < 0:
+            raise _err(where, "seed", f"expected a whole number >= 0, got {seed!r}")
+        ns = s.get("near_singular", 0.01)
+        if not _is_num(ns) or not 0 <= ns <= 1:
+            raise _err(where, "near_singular", f"expected an inverse-condition threshold in [0, 1], got {ns!r}")
+        flags = {}
+        for key, default in (("store_sv", False), ("store_tcp", mode == "samples")):
+            v = s.get(key, default)
+            if not isinstance(v, bool):
+                raise _err(where, key, f"expected true or false, got {v!r}")
+            flags[key] = v
+        dtype = s.get("dtype", "float64")
+        if dtype not in ("float64", "float32"):
+            raise _err(where, "dtype", f"expected 'float64' or 'float32', got {dtype!r}")
+
+        cells = samples if mode == "samples" else int(np.prod(steps, dtype=object))
+        if cells > MAX_CELLS:
+            key = "samples" if mode == "samples" else "steps"
+            raise _err(where, key, f"{float(cells):.3g} cells is more than this tool maps in one study "
+                                   f"({MAX_CELLS:.0e}); use fewer steps")
+        if mode == "reduce":
+            poses = cells * int(np.prod(coarse, dtype=object))
+            if poses > MAX_POSES:
+                raise _err(where, "coarse_steps", f"{float(poses):.3g} poses is more than {MAX_POSES:.0e}; "
+                                                  f"use fewer coarse steps")
+        return JointSweepSettings(mode=mode, joints=tuple(joints), ranges=tuple(ranges), steps=tuple(steps),
+                                  pose=pose, frame=frame, rows=tuple(rows), rows_name=str(rows_name),
+                                  length=float(length), coarse_steps=coarse, reduce=tuple(red),
+                                  best_by=best_by, samples=int(samples), seed=int(seed),
+                                  near_singular=float(ns), store_sv=flags["store_sv"],
+                                  store_tcp=flags["store_tcp"], dtype=dtype)
+
+    # ------------------------------------------------------------------------------------------
+    def plan(self, spec, arm, cell=None, chunk_cells=None) -> Plan:
+        where = f"{spec.where}: [settings]"
+        st = self.validate(spec.settings, arm, cell, where=where)
+        n = arm.n
+        dt = st.dtype
+        unit_of = lambda k: "rad" if arm.kinds[k] == 0 else "m"  # noqa: E731
+        data = {"joint_names": tuple(arm.names), "kinds": np.asarray(arm.kinds).copy()}
+        if st.mode == "samples":
+            axes = (Axis("sample", np.arange(st.samples, dtype=float), "", "sample number"),)
+            lo = np.where(np.isfinite(arm.lower), arm.lower, -np.pi)
+            hi = np.where(np.isfinite(arm.upper), arm.upper, np.pi)
+            data.update(lo=lo, hi=hi)
+        else:
+            axes = tuple(Axis(arm.names[k], np.linspace(lo, hi, s), unit_of(k), f"joint {arm.names[k]}")
+                         for k, (lo, hi), s in zip(st.joints, st.ranges, st.steps))
+        m = len(st.rows)
+        desc = {
+            "manipulability": "product of singular values (Yoshikawa 1985); 0 at a singularity",
+            "condition": "s1 / sm; 1 is isotropic, inf at a singularity",
+            "inverse_condition": "sm / s1 in [0, 1]; 0 singular, 1 isotropic",
+            "min_sv": "smallest singular value; 0 at a singularity",
+            "limit_margin": "smallest distance to a joint limit as a fraction of the half range (1 mid, 0 at a limit)",
+        }
+        fields = []
+        if st.mode == "reduce":
+            others = [k for k in range(n) if k not in st.joints]
+            grids = [np.linspace(lo, hi, c) if c > 1 else np.array([arm.home_q[k]])
+                     for k, c in zip(others, st.coarse_steps)
+                     for lo, hi in [(arm.lower[k] if np.isfinite(arm.lower[k]) else -np.pi,
+                                     arm.upper[k] if np.isfinite(arm.upper[k]) else np.pi)]]
+            mesh = np.meshgrid(*grids, indexing="ij") if grids else []
+            coarse = np.stack([g.ravel() for g in mesh], axis=-1) if grids else np.zeros((1, 0))
+            data.update(others=np.array(others, dtype=np.int64), coarse=coarse)
+            for name in _SCALARS:
+                for op in st.reduce:
+                    fields.append(Field(f"{name}_{op}", (), dt, "", f"{op} over the other joints of: {desc[name]}"))
+            fields.append(Field("best_q", (n,), "float64", "rad/m", f"joint values with the highest {st.best_by}",
+                                kind="pose"))
+            fields.append(Field("worst_q", (n,), "float64", "rad/m", f"joint values with the lowest {st.best_by}",
+                                kind="pose"))
+            poses_per_cell = coarse.shape[0]
+        else:
+            for name in _SCALARS:
+                fields.append(Field(name, (), dt, "", desc[name]))
+            if st.store_sv:
+                fields.append(Field("sv", (m,), dt, "", "singular values of the scaled, selected rows, descending",
+                                    kind="other"))
+            if st.store_tcp:
+                fields.append(Field("tcp", (3,), dt, "m", f"position of frame {st.frame} in the base frame",
+                                    kind="point"))
+            if st.mode == "samples":
+                fields.append(Field("q", (n,), "float64", "rad/m", "joint values of the sample", kind="pose"))
+            poses_per_cell = 1
+        fields.append(Field("status", (), "uint8", "", "status bits", kind="status",
+                            flags={NEAR_SINGULAR: f"near singular (inverse condition < {st.near_singular:g})",
+                                   OUTSIDE_LIMITS: "outside the joint limits"}))
+        if chunk_cells is None:
+            chunk_cells = max(1, _POSES_PER_CHUNK // poses_per_cell)
+        return Plan(kind=self.name, spec=spec, settings=st, axes=axes, fields=tuple(fields),
+                    chunk_cells=int(chunk_cells), data=data)
+
+    # ------------------------------------------------------------------------------------------
+    def chunk_poses(self, plan: Plan, arm, chunk: Chunk) -> np.ndarray:
+        """Joint values (chunk.size, n) of a grid / samples chunk (rad / m)."""
+        st = plan.settings
+        if st.mode == "samples":
+            lo, hi = plan.data["lo"], plan.data["hi"]
+            return block_rng(st.seed, chunk.start, chunk.stop,
+                             lambda rng, c: rng.uniform(lo, hi, size=(c, len(lo))))
+        idx = np.unravel_index(np.arange(chunk.start, chunk.stop), plan.shape)
+        q = np.repeat(st.pose[None, :], chunk.size, axis=0)
+        for ax, k, i in zip(plan.axes, st.joints, idx):
+            q[:, k] = ax.values[i]
+        return q
+
+    def _measures(self, st, arm, q):
+        m = pose_measures(arm, q, frame=st.frame, rows=st.rows, length=st.length)
+        m["limit_margin"] = arm.limit_margin(q)
+        return m
+
+    def compute_chunk(self, plan: Plan, arm, cell, chunk: Chunk) -> dict:
+        st = plan.settings
+        if st.mode == "reduce":
+            return self._compute_reduce(plan, arm, chunk)
+        q = self.chunk_poses(plan, arm, chunk)
+        m = self._measures(st, arm, q)
+        out = {}
+        for f in plan.fields:
+            if f.name in m:
+                out[f.name] = np.asarray(m[f.name], dtype=f.dtype)
+        if st.store_sv:
+            out["sv"] = m["sv"].astype(st.dtype)
+        if st.store_tcp:
+            out["tcp"] = arm.fk(q, frame=st.frame)[:, :3, 3].astype(st.dtype)
+        if st.mode == "samples":
+            out["q"] = q
+        out["status"] = self._status(st, m["inverse_condition"], arm.in_limits(q))
+        return out
+
+    @staticmethod
+    def _status(st, inv, inside):
+        status = np.zeros(inv.shape, dtype=np.uint8)
+        status[inv < st.near_singular] |= NEAR_SINGULAR
+        status[~inside] |= OUTSIDE_LIMITS
+        return status
+
+    def _compute_reduce(self, plan, arm, chunk):
+        st = plan.settings
+        coarse, others = plan.data["coarse"], plan.data["others"]
+        G = coarse.shape[0]
+        idx = np.unravel_index(np.arange(chunk.start, chunk.stop), plan.shape)
+        q = np.empty((chunk.size, G, arm.n))
+        q[:] = st.pose
+        q[:, :, others] = coarse[None, :, :]
+        for ax, k, i in zip(plan.axes, st.joints, idx):
+            q[:, :, k] = ax.values[i][:, None]
+        m = self._measures(st, arm, q)
+        out = {}
+        for name in _SCALARS:
+            v = m[name]
+            for op in st.reduce:
+                with np.errstate(invalid="ignore"):
+                    r = getattr(np, op)(v, axis=1)
+                out[f"{name}_{op}"] = r.astype(st.dtype)
+        key = m[st.best_by]
+        rows = np.arange(chunk.size)
+        out["best_q"] = q[rows, np.argmax(key, axis=1)]
+        out["worst_q"] = q[rows, np.argmin(key, axis=1)]
+        out["status"] = self._status(st, m["inverse_condition"].min(axis=1),
+                                     arm.in_limits(q).all(axis=1))
+        return out
+
+    # ------------------------------------------------------------------------------------------
+    def summarise(self, plan: Plan, arrays, count: int = 50) -> dict:
+        """``near_singular``: the ``count`` poses with the lowest inverse condition (below the
+        threshold), and ``best``: the ``count`` with the highest; joint values in degrees / m."""
+        st = plan.settings
+        key = "inverse_condition" if st.mode != "reduce" else "inverse_condition_min" \
+            if "min" in st.reduce else f"inverse_condition_{st.reduce[0]}"
+        v = np.asarray(arrays[key], dtype=float).reshape(-1)
+        ok = np.isfinite(v)
+        tables = {}
+        order = np.argsort(np.where(ok, v, np.inf), kind="stable")
+        low = order[: min(count, int(ok.sum()))]
+        low = low[v[low] < st.near_singular]
+        tables["near_singular"] = self._pose_table(plan, arrays, low, f"Near-singular poses ({key} < "
+                                                   f"{st.near_singular:g}), most singular first")
+        high = np.argsort(np.where(ok, -v, np.inf), kind="stable")[: min(count, int(ok.sum()))]
+        tables["best"] = self._pose_table(plan, arrays, high, f"Best-conditioned poses (highest {key})")
+        return tables
+
+    def cell_poses(self, plan: Plan, flat_index, arrays=None) -> np.ndarray:
+        """Joint values (k, n) (rad / m) of the grid cells ``flat_index`` (for pose lists); in
+        reduce mode the worst pose over the other joints (needs ``arrays``)."""
+        st = plan.settings
+        flat_index = np.asarray(flat_index, dtype=np.int64).reshape(-1)
+        if st.mode == "samples":
+            if arrays is not None and "q" in arrays:
+                return np.asarray(arrays["q"])[flat_index]
+            return np.array([self.chunk_poses(plan, None, Chunk(0, int(i), int(i) + 1))[0]
+                             for i in flat_index]).reshape(-1, st.pose.size)
+        if st.mode == "reduce":
+            return np.asarray(arrays["worst_q"])[flat_index]
+        return self._grid_poses(plan, flat_index)
+
+    def _grid_poses(self, plan, flat_index):
+        st = plan.settings
+        idx = np.unravel_index(flat_index, plan.shape)
+        q = np.repeat(st.pose[None, :], flat_index.size, axis=0)
+        for ax, k, i in zip(plan.axes, st.joints, idx):
+            q[:, k] = ax.values[i]
+        return q
+
+    def _pose_table(self, plan, arrays, flat_index, title):
+        st = plan.settings
+        spec_names = plan.data.get("joint_names")
+        q = self.cell_poses(plan, flat_index, arrays)
+        n = st.pose.size
+        kinds = plan.data.get("kinds")
+        cols, units = {"cell": np.asarray(flat_index, dtype=np.int64)}, {"cell": ""}
+        for k in range(n):
+            name = spec_names[k] if spec_names is not None else f"j{k + 1}"
+            revolute = kinds is None or kinds[k] == 0
+            cols[name] = np.degrees(q[:, k]) if revolute else q[:, k] * 1000.0
+            units[name] = "deg" if revolute else "mm"
+        for f in plan.fields:
+            if f.shape == () and f.kind == "measure":
+                cols[f.name] = np.asarray(arrays[f.name]).reshape(-1)[flat_index].astype(float)
+                units[f.name] = ""
+        return Table(title=title, columns=cols, units=units)
