@@ -1,0 +1,278 @@
+"""``workbench info ARM``: check an arm file or URDF and summarise it.
+
+Prints the name, degrees of freedom, a joint table (type, limits in degrees or mm, max speed,
+max effort, link mass), the flange, tool and mount transforms, the home pose, a reach estimate
+and warnings about what is missing for some studies. ``--json`` prints the same as one JSON object.
+"""
+from __future__ import annotations
+
+import json
+import math
+import os
+
+import numpy as np
+
+from ..arm.transforms import matrix_to_rpy
+from ..errors import WorkbenchError
+
+REACH_SAMPLES = 20000
+
+
+# ---- shared with ``workbench jacobian`` ---------------------------------------------------------
+
+def add_arm_arguments(p) -> None:
+    """The ARM positional argument and the URDF chain options."""
+    p.add_argument("arm", metavar="ARM", help="arm file (.toml) or URDF (.urdf)")
+    p.add_argument("--base", metavar="LINK", default=None,
+                   help="URDF only: link where the chain starts (default: the root link)")
+    p.add_argument("--tip", metavar="LINK", default=None,
+                   help="URDF only: link where the chain ends (default: the single leaf link)")
+
+
+def load(args):
+    """The :class:`workbench.kinematics.Arm` named by ``args.arm`` (with --base/--tip)."""
+    from .. import load_arm
+
+    return load_arm(args.arm, base_link=args.base, tip_link=args.tip)
+
+
+def joint_unit(joint) -> tuple[float, str]:
+    """(factor from SI to display units, unit) for a joint value: degrees or millimetres."""
+    return (180.0 / math.pi, "deg") if joint.revolute else (1000.0, "mm")
+
+
+def fmt_num(v, digits=4) -> str:
+    """A compact number: up to ``digits`` significant digits, no '-0'."""
+    if v is None or (isinstance(v, float) and math.isnan(v)):
+        return "-"
+    if isinstance(v, float) and math.isinf(v):
+        return "inf" if v > 0 else "-inf"
+    s = f"{float(v):.{digits}g}"
+    return "0" if s in ("-0", "0") else s
+
+
+def fmt_vec(v, scale=1.0, digits=4) -> str:
+    return "[" + ", ".join(fmt_num(float(x) * scale + 0.0, digits) for x in v) + "]"
+
+
+def pose_dict(T) -> dict:
+    """Position (mm) and roll-pitch-yaw (deg) of a (4, 4) transform, for screens and JSON."""
+    T = np.asarray(T, dtype=float)
+    return {"xyz_mm": [_clean(x * 1000.0) for x in T[:3, 3]],
+            "rpy_deg": [_clean(math.degrees(x)) for x in matrix_to_rpy(T[:3, :3])]}
+
+
+def fmt_pose(T) -> str:
+    d = pose_dict(T)
+    return f"xyz {fmt_vec(d['xyz_mm'], digits=6)} mm, rpy {fmt_vec(d['rpy_deg'], digits=6)} deg"
+
+
+def _clean(x, nd=9) -> float:
+    x = round(float(x), nd)
+    return 0.0 if x == 0 else x
+
+
+def json_value(v):
+    """JSON-safe numbers: NaN and inf become None."""
+    if isinstance(v, dict):
+        return {k: json_value(x) for k, x in v.items()}
+    if isinstance(v, (list, tuple)):
+        return [json_value(x) for x in v]
+    if isinstance(v, np.ndarray):
+        return json_value(v.tolist())
+    if isinstance(v, (np.floating, float)):
+        v = float(v)
+        return v if math.isfinite(v) else None
+    if isinstance(v, np.integer):
+        return int(v)
+    return v
+
+
+# ---- the command -------------------------------------------------------------------------------
+
+def add_parser(subparsers):
+    p = subparsers.add_parser("info", help="check an arm file or URDF and summarise it",
+                              description="Check an arm file (.toml) or URDF and summarise it: joints, "
+                              "limits, speeds, efforts, masses, tool and mount, a reach estimate and "
+                              "warnings.")
+    add_arm_arguments(p)
+    p.add_argument("--samples", type=int, default=REACH_SAMPLES, metavar="N",
+                   help=f"random in-limit poses for the reach estimate (default {REACH_SAMPLES})")
+    p.add_argument("--seed", type=int, default=0, help="random seed for the reach estimate (default 0)")
+    p.add_argument("--json", action="store_true", help="print one JSON object instead of text")
+    return p
+
+
+def run(args) -> int:
+    if not 1 <= args.samples <= 10_000_000:
+        raise WorkbenchError(f"--samples: expected a count between 1 and 10000000, got {args.samples}")
+    arm = load(args)
+    info = summarise(arm, samples=args.samples, seed=args.seed)
+    if args.json:
+        print(json.dumps(json_value(info), indent=2))
+    else:
+        print(format_info(info))
+    return 0
+
+
+def reach_estimate(arm, samples=REACH_SAMPLES, seed=0) -> dict:
+    """Largest TCP distance from joint 1's axis and from joint 1's origin over random in-limit
+    poses (plus the home pose), and the nominal reach (sum of link offsets and tool length).
+
+    Returns
+    -------
+    dict
+        ``from_axis_m``, ``from_origin_m``, ``nominal_m`` (m) and ``samples``.
+    """
+    m = arm.model
+    q = arm.random_q(samples, rng=seed)
+    q = np.vstack([q, arm.home_q[None, :]])
+    p = arm.fk(q)[:, :3, 3]
+    o0 = m.origins[0]
+    c = o0[:3, 3]
+    z = o0[:3, :3] @ m.axes[0]
+    d = p - c
+    radial = d - np.outer(d @ z, z)
+    return {"from_axis_m": float(np.linalg.norm(radial, axis=1).max()),
+            "from_origin_m": float(np.linalg.norm(d, axis=1).max()),
+            "nominal_m": float(arm.nominal_reach()), "samples": int(q.shape[0])}
+
+
+def warnings_for(arm) -> list[str]:
+    """Plain-words warnings about what is missing or odd in an arm description."""
+    m = arm.model
+    out = []
+    names = lambda ks: ", ".join(f"{k + 1} ({m.names[k]})" for k in ks)  # noqa: E731
+    unl_r = [k for k, j in enumerate(m.joints) if j.revolute and not (math.isfinite(j.lower) and math.isfinite(j.upper))]
+    unl_p = [k for k, j in enumerate(m.joints) if not j.revolute and not (math.isfinite(j.lower) and math.isfinite(j.upper))]
+    if unl_r:
+        out.append(f"no limits on revolute joint(s) {names(unl_r)}: they turn freely; joint sweeps and "
+                   f"random poses use -180..180 deg for them")
+    if unl_p:
+        out.append(f"no limits on prismatic joint(s) {names(unl_p)}: random poses use -3.14..3.14 m; "
+                   f"give limits in the arm file")
+    miss_mass = [k for k, j in enumerate(m.joints) if j.mass is None]
+    if miss_mass:
+        out.append(f"no link mass for joint(s) {names(miss_mass)}: gravity torques and load maps are "
+                   f"not available")
+    miss_eff = [k for k, j in enumerate(m.joints) if j.max_effort is None]
+    if miss_eff:
+        out.append(f"no max effort for joint(s) {names(miss_eff)}: load maps and torque-weighted force "
+                   f"ellipsoids are not available")
+    miss_spd = [k for k, j in enumerate(m.joints) if j.max_speed is None]
+    if miss_spd:
+        out.append(f"no max speed for joint(s) {names(miss_spd)}: speed-weighted ellipsoids and path "
+                   f"speed checks are not available")
+    # consecutive joints that can never be told apart: same axis line (revolute) or parallel
+    # slides (prismatic); checked at the home pose, where it holds at every pose
+    F = arm.frames(arm.home_q)
+    Z = np.einsum("kij,kj->ki", F[:, :3, :3], m.axes)
+    P = F[:, :3, 3]
+    for k in range(m.n - 1):
+        if m.kinds[k] != m.kinds[k + 1]:
+            continue
+        par = np.linalg.norm(np.cross(Z[k], Z[k + 1])) < 1e-9
+        d = P[k + 1] - P[k]
+        on_line = np.linalg.norm(d - np.dot(d, Z[k]) * Z[k]) < 1e-9
+        if par and (on_line or m.kinds[k] == 1):
+            how = "share one axis line" if m.kinds[k] == 0 else "slide along parallel axes"
+            out.append(f"joints {names([k, k + 1])} {how}: the arm is singular at every pose")
+    if arm.nominal_reach() <= 1e-9 or np.allclose(m.origins[1:, :3, 3], 0) and np.allclose(m.tcp_offset[:3, 3], 0):
+        out.append("all link lengths are zero: the tool point never leaves joint 1's frame")
+    if np.array_equal(m.tcp_offset, np.eye(4)) and m.n > 0:
+        out.append("no tool and no flange offset: the TCP is the last joint's frame")
+    if m.n < 6:
+        out.append(f"{m.n} joints: full 6-row measures are zero at every pose; use --rows translation, "
+                   f"planar or a custom row list")
+    elif m.n > 6:
+        out.append(f"{m.n} joints: redundant for 6 task rows; inverse kinematics picks one of many "
+                   f"solutions")
+    if m.home is None:
+        out.append("no home pose given: the all-zero pose (clipped into the limits) is used")
+    elif not np.all(np.isfinite(m.home)):  # pragma: no cover - the readers refuse this
+        out.append("home pose is not finite")
+    return out
+
+
+def summarise(arm, samples=REACH_SAMPLES, seed=0) -> dict:
+    """Everything ``workbench info`` shows, as plain data (display units: deg, mm, kg)."""
+    m = arm.model
+    joints = []
+    for k, j in enumerate(m.joints):
+        f, unit = joint_unit(j)
+        lim = [j.lower * f, j.upper * f] if math.isfinite(j.lower) and math.isfinite(j.upper) else None
+        joints.append({
+            "index": k + 1, "name": j.name, "type": j.kind, "unit": unit,
+            "limits": None if lim is None else [_clean(x, 6) for x in lim],
+            "max_speed": None if j.max_speed is None else _clean(j.max_speed * f, 6),
+            "speed_unit": f"{unit}/s",
+            "max_effort": j.max_effort, "effort_unit": "N m" if j.revolute else "N",
+            "mass_kg": j.mass,
+            "com_mm": None if j.com is None else [_clean(x * 1000.0, 6) for x in j.com],
+        })
+    home = [_clean(v * joint_unit(j)[0], 6) for v, j in zip(arm.home_q, m.joints)]
+    total_mass = float(np.nansum(m.masses)) if np.any(np.isfinite(m.masses)) else None
+    return {
+        "file": m.path and os.fspath(m.path),
+        "name": m.name,
+        "description": m.description,
+        "dof": m.n,
+        "revolute": int(np.sum(m.kinds == 0)),
+        "prismatic": int(np.sum(m.kinds == 1)),
+        "joints": joints,
+        "flange": pose_dict(m.end),
+        "tool": {**pose_dict(m.tool), "mass_kg": m.tool_mass, "com_mm": [_clean(x * 1000.0, 6) for x in m.tool_com]},
+        "mount": pose_dict(m.mount),
+        "home": home,
+        "home_given": m.home is not None,
+        "moving_mass_kg": total_mass,
+        "reach": reach_estimate(arm, samples=samples, seed=seed),
+        "warnings": warnings_for(arm),
+    }
+
+
+def format_info(info: dict) -> str:
+    """The text ``workbench info`` prints."""
+    lines = [f"{info['name']}" + (f"  ({info['file']})" if info.get("file") else "")]
+    if info.get("description"):
+        lines.append(f"  {info['description']}")
+    lines.append(f"  {info['dof']} joints: {info['revolute']} revolute, {info['prismatic']} prismatic")
+    lines.append("")
+    rows = [("#", "joint", "type", "limits", "max speed", "max effort", "mass kg", "COM mm (joint frame)")]
+    for j in info["joints"]:
+        lim = "unlimited" if j["limits"] is None else \
+            f"{fmt_num(j['limits'][0], 6)} .. {fmt_num(j['limits'][1], 6)} {j['unit']}"
+        spd = "-" if j["max_speed"] is None else f"{fmt_num(j['max_speed'])} {j['speed_unit']}"
+        eff = "-" if j["max_effort"] is None else f"{fmt_num(j['max_effort'])} {j['effort_unit']}"
+        mass = "-" if j["mass_kg"] is None else fmt_num(j["mass_kg"])
+        com = "-" if j["com_mm"] is None else fmt_vec(j["com_mm"])
+        rows.append((str(j["index"]), j["name"], j["type"], lim, spd, eff, mass, com))
+    widths = [max(len(r[c]) for r in rows) for c in range(len(rows[0]))]
+    for r in rows:
+        lines.append("  " + "  ".join(s.ljust(w) for s, w in zip(r, widths)).rstrip())
+    lines.append("")
+    fl = info["flange"]
+    tl = info["tool"]
+    mt = info["mount"]
+    lines.append(f"  flange (from the last joint frame): xyz {fmt_vec(fl['xyz_mm'], digits=6)} mm, "
+                 f"rpy {fmt_vec(fl['rpy_deg'], digits=6)} deg")
+    lines.append(f"  tool (TCP from the flange):         xyz {fmt_vec(tl['xyz_mm'], digits=6)} mm, "
+                 f"rpy {fmt_vec(tl['rpy_deg'], digits=6)} deg, mass {fmt_num(tl['mass_kg'])} kg")
+    lines.append(f"  mount (arm base in the cell):       xyz {fmt_vec(mt['xyz_mm'], digits=6)} mm, "
+                 f"rpy {fmt_vec(mt['rpy_deg'], digits=6)} deg")
+    home = ", ".join(f"{j['name']} {fmt_num(v, 6)} {j['unit']}" for v, j in zip(info["home"], info["joints"]))
+    lines.append(f"  home pose: {home}{'' if info['home_given'] else ' (not given: zeros)'}")
+    if info["moving_mass_kg"] is not None:
+        lines.append(f"  moving mass (links): {fmt_num(info['moving_mass_kg'])} kg")
+    r = info["reach"]
+    lines.append(f"  reach: {r['from_axis_m'] * 1000:.0f} mm from joint 1's axis, "
+                 f"{r['from_origin_m'] * 1000:.0f} mm from joint 1's origin (largest over {r['samples']} random "
+                 f"in-limit poses); nominal {r['nominal_m'] * 1000:.0f} mm (sum of link offsets and tool)")
+    if info["warnings"]:
+        lines.append("")
+        lines.append("warnings:")
+        lines.extend(f"  - {w}" for w in info["warnings"])
+    else:
+        lines.append("")
+        lines.append("no warnings")
+    return "\n".join(lines)
