@@ -1,1 +1,581 @@
-"""Results files (HDF5 via h5py): write, read back, CSV/PNG exports."""
+"""Results files (HDF5 via h5py): write while a study runs, read back, CSV and PNG exports.
+
+File layout (``SCHEMA_VERSION`` 1)::
+
+    /                       attrs: schema_version, format ("manipulability-workbench results"),
+                                   software, software_version, created, finished (ISO 8601 UTC),
+                                   kind, name, cells, grid_shape, chunk_cells, incomplete (bool),
+                                   chunks_done, chunks_total, elapsed_s, executor, study_path,
+                                   arm_path, cell_path
+    /inputs/study           the study file text (TOML; paths relative to study_path's folder)
+    /inputs/arm             the arm file text
+    /inputs/cell            the cell file text (only when the study has a cell file)
+    /axes/<name>            one 1-D dataset per grid axis, SI values; attrs unit, display_unit,
+                            label, order (position in the grid shape)
+    /fields/<name>          one dataset per output field, shape (cells, *per-cell shape) in
+                            flattened C order of the grid, chunked and compressed; attrs unit,
+                            description, kind (measure/pose/point/status/other), fill, flags (JSON)
+                            Cells of unfinished chunks hold the fill value (NaN for floats).
+    /chunks/finished        bool (chunks_total,): which chunks of chunk_cells cells are written
+    /tables/<name>/<column> summary tables (pose lists ...); attrs title, description, columns,
+                            units (JSON)
+
+The file is written under a hidden temporary name in the destination folder and renamed onto the
+final name only when it is closed (``os.replace``), so a crash never leaves a half-written file
+under the final name. A cancelled run is closed normally and says ``incomplete = True``.
+"""
+from __future__ import annotations
+
+import json
+import os
+import time
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from .errors import WorkbenchError
+from .studies.base import Axis, Field, Plan, Table
+
+__all__ = ["SCHEMA_VERSION", "Results", "ResultsWriter", "MemoryWriter", "read_results",
+           "check_output_path", "export_csv", "export_png", "ResultsError"]
+
+SCHEMA_VERSION = 1
+FORMAT = "manipulability-workbench results"
+#: target size of one compressed HDF5 chunk (bytes, before compression)
+H5_CHUNK_BYTES = 1 << 20
+
+
+class ResultsError(WorkbenchError):
+    """A results file that cannot be written or read (one line naming the file)."""
+
+
+def _now() -> str:
+    return time.strftime("%Y-%m-%dT%H:%M:%SZ", time.gmtime())
+
+
+# ----------------------------------------------------------------------------------------------
+# in-memory results
+
+
+@dataclass(eq=False)
+class Results:
+    """A study's results, in memory.
+
+    Attributes
+    ----------
+    kind, name : str
+    axes : tuple of Axis
+        Grid axes (SI values; ``display_values()`` for degrees).
+    fields : tuple of Field
+    arrays : dict of ndarray
+        ``{field: (*grid shape, *per-cell shape)}``; unfinished cells hold the field's fill value.
+    finished : ndarray of bool, shape (n_chunks,)
+    chunk_cells : int
+    incomplete : bool
+        True when some chunks were not computed (cancelled or failed run).
+    tables : dict of Table
+    study_text, arm_text, cell_text : str or None
+        The input files as text.
+    attrs : dict
+        Everything else of the file's root attributes (software_version, created, elapsed_s ...).
+    path : str or None
+        The results file (None for in-memory results).
+    plan : Plan or None
+        The plan of the run (None when read from a file; see :meth:`spec`).
+    """
+
+    kind: str
+    name: str
+    axes: tuple
+    fields: tuple
+    arrays: dict
+    finished: np.ndarray
+    chunk_cells: int
+    incomplete: bool
+    tables: dict = field(default_factory=dict)
+    study_text: str | None = None
+    arm_text: str | None = None
+    cell_text: str | None = None
+    attrs: dict = field(default_factory=dict)
+    path: str | None = None
+    plan: Plan | None = None
+
+    @property
+    def shape(self) -> tuple:
+        return tuple(a.size for a in self.axes)
+
+    @property
+    def cells(self) -> int:
+        return int(np.prod(self.shape, dtype=np.int64))
+
+    def field(self, name: str) -> Field:
+        for f in self.fields:
+            if f.name == name:
+                return f
+        raise ResultsError(f"{self.path or 'results'}: no field {name!r}; fields are "
+                           f"{', '.join(f.name for f in self.fields)}")
+
+    def done_mask(self) -> np.ndarray:
+        """bool array of the grid shape: True where the cell's chunk finished."""
+        flat = np.repeat(self.finished, self.chunk_cells)[: self.cells]
+        return flat.reshape(self.shape)
+
+    def flat(self, name: str) -> np.ndarray:
+        """Field ``name`` as (cells, *per-cell shape), flattened grid order."""
+        f = self.field(name)
+        return self.arrays[name].reshape((self.cells,) + f.shape)
+
+    def spec(self):
+        """The study spec (:class:`workbench.studies.spec.StudySpec`) parsed from the stored text;
+        relative paths refer to the original study file's folder."""
+        from .studies.spec import parse_study_dict
+        import tomllib
+
+        if self.plan is not None:
+            return self.plan.spec
+        sp = self.attrs.get("study_path") or ""
+        base = os.path.dirname(sp) if sp else "."
+        return parse_study_dict(tomllib.loads(self.study_text or ""), source=sp or "study", base_dir=base)
+
+    def measure_names(self) -> list[str]:
+        """Scalar fields that can be drawn as maps."""
+        return [f.name for f in self.fields if f.kind == "measure" and f.shape == ()]
+
+
+# ----------------------------------------------------------------------------------------------
+# writers
+
+
+def check_output_path(path) -> str:
+    """Check that ``path`` can take a results file: not a directory, its folder exists and is
+    writable. Returns the absolute path; raises :class:`ResultsError` otherwise."""
+    p = os.path.abspath(os.fspath(path))
+    if os.path.isdir(p):
+        raise ResultsError(f"--out {path}: is a directory; expected a results file name such as "
+                           f"{os.path.join(os.fspath(path), 'results.h5')}")
+    folder = os.path.dirname(p)
+    if not os.path.isdir(folder):
+        raise ResultsError(f"--out {path}: folder {folder} does not exist")
+    if not os.access(folder, os.W_OK | os.X_OK):
+        raise ResultsError(f"--out {path}: folder {folder} is not writable")
+    if os.path.exists(p) and not os.access(p, os.W_OK):
+        raise ResultsError(f"--out {path}: file exists and is not writable")
+    return p
+
+
+def _largest_divisor_at_most(n: int, cap: int) -> int:
+    cap = max(1, min(n, cap))
+    for d in range(cap, 0, -1):
+        if n % d == 0:
+            return d
+    return 1
+
+
+def _texts(texts):
+    texts = dict(texts or {})
+    return texts.get("study"), texts.get("arm"), texts.get("cell")
+
+
+class _WriterBase:
+    def __init__(self, plan: Plan, texts=None, attrs=None):
+        self.plan = plan
+        self.study_text, self.arm_text, self.cell_text = _texts(texts)
+        self.finished = np.zeros(plan.n_chunks, dtype=bool)
+        self.attrs = dict(attrs or {})
+        self.attrs.setdefault("created", _now())
+
+    def _root_attrs(self, incomplete, extra):
+        from . import __version__
+
+        p = self.plan
+        a = {"schema_version": SCHEMA_VERSION, "format": FORMAT, "software": "manipulability-workbench",
+             "software_version": __version__, "kind": p.kind, "name": getattr(p.spec, "name", "") or p.kind,
+             "cells": p.cells, "grid_shape": np.asarray(p.shape, dtype=np.int64), "chunk_cells": p.chunk_cells,
+             "incomplete": bool(incomplete), "chunks_done": int(self.finished.sum()),
+             "chunks_total": int(p.n_chunks), "finished": _now()}
+        src = getattr(p.spec, "source", None)
+        a["study_path"] = os.path.abspath(src) if src else ""
+        a["arm_path"] = getattr(p.spec, "arm_path", "") or ""
+        a["cell_path"] = getattr(p.spec, "cell_path", "") or ""
+        a.update(self.attrs)
+        a.update(extra or {})
+        return a
+
+
+class MemoryWriter(_WriterBase):
+    """Collects chunks in memory; :meth:`close` returns :class:`Results`."""
+
+    def __init__(self, plan: Plan, texts=None, attrs=None):
+        super().__init__(plan, texts, attrs)
+        self.arrays = {f.name: f.empty(plan.cells) for f in plan.fields}
+
+    def write_chunk(self, chunk, arrays) -> None:
+        for f in self.plan.fields:
+            self.arrays[f.name][chunk.start:chunk.stop] = arrays[f.name]
+        self.finished[chunk.index] = True
+
+    def close(self, incomplete: bool, tables=None, attrs=None) -> Results:
+        p = self.plan
+        a = self._root_attrs(incomplete, attrs)
+        arrays = {f.name: v.reshape(p.shape + f.shape) for f, v in zip(p.fields, self.arrays.values())}
+        return Results(kind=p.kind, name=a["name"], axes=p.axes, fields=p.fields, arrays=arrays,
+                       finished=self.finished.copy(), chunk_cells=p.chunk_cells, incomplete=bool(incomplete),
+                       tables=dict(tables or {}), study_text=self.study_text, arm_text=self.arm_text,
+                       cell_text=self.cell_text, attrs=a, path=None, plan=p)
+
+    def abort(self) -> None:
+        self.arrays = {}
+
+    def full_arrays(self) -> dict:
+        return self.arrays
+
+
+class ResultsWriter(_WriterBase):
+    """Streams chunks into an HDF5 file under a temporary name; :meth:`close` renames it.
+
+    Parameters
+    ----------
+    path : str
+        Final file name.
+    plan : Plan
+    texts : dict
+        ``{"study": str, "arm": str, "cell": str or None}`` input file texts.
+    compression : str
+        "gzip" (level 1, readable by any HDF5 tool; default) or "lzf" (faster, h5py only) or None.
+    """
+
+    def __init__(self, path, plan: Plan, texts=None, attrs=None, compression="gzip"):
+        import h5py
+
+        super().__init__(plan, texts, attrs)
+        self.path = check_output_path(path)
+        folder, base = os.path.split(self.path)
+        self.tmp = os.path.join(folder, f".{base}.{os.getpid()}.partial")
+        try:
+            self.h5 = h5py.File(self.tmp, "w")
+        except OSError as exc:
+            raise ResultsError(f"--out {path}: cannot create a file in {folder} ({exc})") from None
+        try:
+            self._layout(compression)
+        except BaseException:
+            self.abort()
+            raise
+
+    def _layout(self, compression):
+        p, h = self.plan, self.h5
+        str_dt = __import__("h5py").string_dtype("utf-8")
+        g = h.create_group("inputs")
+        for key, text in (("study", self.study_text), ("arm", self.arm_text), ("cell", self.cell_text)):
+            if text is not None:
+                g.create_dataset(key, data=text, dtype=str_dt)
+        ga = h.create_group("axes")
+        ga.attrs["order"] = json.dumps([a.name for a in p.axes])
+        for i, a in enumerate(p.axes):
+            ds = ga.create_dataset(a.name, data=a.values)
+            ds.attrs.update(unit=a.unit, display_unit=a.display_unit, label=a.label, order=i)
+        gf = h.create_group("fields")
+        gf.attrs["order"] = json.dumps([f.name for f in p.fields])
+        cells = max(1, p.cells)
+        kw = {}
+        if compression == "gzip":
+            kw = dict(compression="gzip", compression_opts=1)
+        elif compression == "lzf":
+            kw = dict(compression="lzf")
+        self.ds = {}
+        for f in p.fields:
+            per = max(1, f.cell_bytes)
+            cap = max(1, H5_CHUNK_BYTES // per)
+            c = _largest_divisor_at_most(p.chunk_cells, cap) if p.chunk_cells > cap else p.chunk_cells
+            c = max(1, min(c, cells))
+            ds = gf.create_dataset(f.name, shape=(p.cells,) + f.shape, dtype=f.dtype, chunks=(c,) + f.shape,
+                                   fillvalue=f.fill, **kw)
+            ds.attrs.update(unit=f.unit, description=f.description, kind=f.kind,
+                            flags=json.dumps({str(k): v for k, v in f.flags.items()}))
+            ds.attrs["fill"] = np.asarray(f.fill, dtype=f.dtype)
+            self.ds[f.name] = ds
+        self.fin = h.create_group("chunks").create_dataset("finished", data=self.finished)
+        for k, v in self._root_attrs(True, None).items():
+            h.attrs[k] = v
+
+    def write_chunk(self, chunk, arrays) -> None:
+        """Write one chunk's arrays ``{field: (chunk.size, *shape)}`` and mark it finished."""
+        for f in self.plan.fields:
+            self.ds[f.name][chunk.start:chunk.stop] = arrays[f.name]
+        self.finished[chunk.index] = True
+        self.fin[chunk.index] = True
+
+    def full_arrays(self, max_bytes: int = 256 << 20):
+        """The arrays written so far, read back (flattened) when they fit in ``max_bytes``;
+        None otherwise."""
+        if self.plan.result_bytes > max_bytes:
+            return None
+        return {name: ds[...] for name, ds in self.ds.items()}
+
+    def close(self, incomplete: bool, tables=None, attrs=None) -> str:
+        """Write tables and attributes, close and rename onto the final name. Returns the path."""
+        h = self.h5
+        try:
+            if tables:
+                gt = h.create_group("tables")
+                for name, t in tables.items():
+                    g = gt.create_group(name)
+                    g.attrs.update(title=t.title, description=t.description,
+                                   columns=json.dumps(list(t.columns)), units=json.dumps(t.units))
+                    for col, v in t.columns.items():
+                        g.create_dataset(col, data=np.asarray(v))
+            for k, v in self._root_attrs(incomplete, attrs).items():
+                h.attrs[k] = v
+            h.close()
+        except BaseException:
+            self.abort()
+            raise
+        os.replace(self.tmp, self.path)
+        return self.path
+
+    def abort(self) -> None:
+        """Close and delete the temporary file (nothing appears under the final name)."""
+        try:
+            self.h5.close()
+        except Exception:
+            pass
+        try:
+            os.unlink(self.tmp)
+        except OSError:
+            pass
+
+
+# ----------------------------------------------------------------------------------------------
+# reading
+
+
+def _attr(v):
+    if isinstance(v, bytes):
+        return v.decode("utf-8")
+    if isinstance(v, np.generic):
+        return v.item()
+    return v
+
+
+def read_results(path, load: bool = True) -> Results:
+    """Read a results file back into :class:`Results` (arrays in the grid shape).
+
+    Raises
+    ------
+    ResultsError
+        Missing file, not HDF5, not a results file, or a newer schema version.
+    """
+    import h5py
+
+    path = os.fspath(path)
+    if not os.path.exists(path):
+        raise ResultsError(f"{path}: no such file")
+    if os.path.isdir(path):
+        raise ResultsError(f"{path}: is a directory, expected a results file (.h5)")
+    try:
+        h = h5py.File(path, "r")
+    except OSError:
+        raise ResultsError(f"{path}: not an HDF5 results file") from None
+    with h:
+        if _attr(h.attrs.get("format")) != FORMAT:
+            raise ResultsError(f"{path}: not a workbench results file (no format attribute {FORMAT!r})")
+        ver = int(h.attrs.get("schema_version", 0))
+        if ver > SCHEMA_VERSION:
+            raise ResultsError(f"{path}: schema version {ver} is newer than this software reads "
+                               f"({SCHEMA_VERSION}); update the workbench")
+        attrs = {k: _attr(v) for k, v in h.attrs.items()}
+        shape = tuple(int(s) for s in np.asarray(h.attrs["grid_shape"]).reshape(-1))
+        order = json.loads(_attr(h["axes"].attrs["order"]))
+        axes = []
+        for name in order:
+            ds = h["axes"][name]
+            axes.append(Axis(name, ds[...], _attr(ds.attrs["unit"]), _attr(ds.attrs["label"]),
+                             _attr(ds.attrs["display_unit"])))
+        fields, arrays = [], {}
+        for name in json.loads(_attr(h["fields"].attrs["order"])):
+            ds = h["fields"][name]
+            flags = {int(k): v for k, v in json.loads(_attr(ds.attrs["flags"])).items()}
+            f = Field(name, ds.shape[1:], ds.dtype.name, _attr(ds.attrs["unit"]), _attr(ds.attrs["description"]),
+                      fill=_attr(ds.attrs["fill"]), kind=_attr(ds.attrs["kind"]), flags=flags)
+            fields.append(f)
+            if load:
+                arrays[name] = ds[...].reshape(shape + f.shape)
+        texts = {}
+        for key in ("study", "arm", "cell"):
+            if key in h["inputs"]:
+                v = h["inputs"][key][()]
+                texts[key] = v.decode("utf-8") if isinstance(v, bytes) else str(v)
+        tables = {}
+        if "tables" in h:
+            for name, g in h["tables"].items():
+                cols = {c: g[c][...] for c in json.loads(_attr(g.attrs["columns"]))}
+                tables[name] = Table(_attr(g.attrs["title"]), cols, json.loads(_attr(g.attrs["units"])),
+                                     _attr(g.attrs.get("description", "")))
+        finished = h["chunks"]["finished"][...].astype(bool)
+    return Results(kind=attrs["kind"], name=attrs["name"], axes=tuple(axes), fields=tuple(fields), arrays=arrays,
+                   finished=finished, chunk_cells=int(attrs["chunk_cells"]), incomplete=bool(attrs["incomplete"]),
+                   tables=tables, study_text=texts.get("study"), arm_text=texts.get("arm"),
+                   cell_text=texts.get("cell"), attrs=attrs, path=os.path.abspath(path))
+
+
+# ----------------------------------------------------------------------------------------------
+# exports
+
+
+def _atomic_target(path, what):
+    p = os.path.abspath(os.fspath(path))
+    if os.path.isdir(p):
+        raise ResultsError(f"{what} {path}: is a directory; expected a file name")
+    folder = os.path.dirname(p)
+    if not os.path.isdir(folder):
+        raise ResultsError(f"{what} {path}: folder {folder} does not exist")
+    if not os.access(folder, os.W_OK | os.X_OK):
+        raise ResultsError(f"{what} {path}: folder {folder} is not writable")
+    return p, os.path.join(folder, f".{os.path.basename(p)}.{os.getpid()}.partial")
+
+
+def _replace_or_clean(tmp, final):
+    try:
+        os.replace(tmp, final)
+    except BaseException:
+        if os.path.exists(tmp):
+            os.unlink(tmp)
+        raise
+
+
+def export_csv(results: Results, path, table: str | None = None, max_rows: int = 1_000_000) -> int:
+    """Write a pose list as CSV (joint values in degrees / mm, measures); returns the row count.
+
+    ``table`` names a summary table (default: "near_singular" if present, else the first one);
+    ``table="cells"`` (or a study without tables) writes every finished cell: the axis values in
+    display units and every scalar field (up to ``max_rows`` rows).
+    """
+    final, tmp = _atomic_target(path, "--csv")
+    if table is None:
+        table = "near_singular" if "near_singular" in results.tables else next(iter(results.tables), "cells")
+    if table == "cells":
+        cols, units = _cell_columns(results, max_rows)
+    else:
+        if table not in results.tables:
+            raise ResultsError(f"--table {table}: no such table in {results.path or 'the results'}; tables are "
+                               f"{', '.join(list(results.tables) + ['cells'])}")
+        t = results.tables[table]
+        cols, units = t.columns, t.units
+    names = list(cols)
+    header = [f"{c} [{units.get(c)}]" if units.get(c) else c for c in names]
+    n = len(cols[names[0]]) if names else 0
+    try:
+        with open(tmp, "w", encoding="utf-8", newline="") as fh:
+            fh.write(",".join(header) + "\n")
+            if n:
+                data = np.column_stack([np.asarray(cols[c], dtype=float) for c in names])
+                ints = [np.issubdtype(np.asarray(cols[c]).dtype, np.integer) for c in names]
+                fmt = ",".join("%d" if i else "%.10g" for i in ints)
+                np.savetxt(fh, data, fmt=fmt, delimiter=",")
+    except BaseException:
+        if os.path.exists(tmp):
+            os.unlink(tmp)
+        raise
+    _replace_or_clean(tmp, final)
+    return n
+
+
+def _cell_columns(results, max_rows):
+    done = results.done_mask().reshape(-1)
+    idx = np.flatnonzero(done)
+    if idx.size > max_rows:
+        raise ResultsError(f"--csv: {idx.size:,} cells is more than {max_rows:,} rows; export a table instead")
+    cols, units = {"cell": idx}, {"cell": ""}
+    if results.shape and len(results.axes) >= 1 and results.axes[0].name != "sample":
+        sub = np.unravel_index(idx, results.shape)
+        for a, i in zip(results.axes, sub):
+            cols[a.name] = a.display_values()[i]
+            units[a.name] = a.display_unit
+    for f in results.fields:
+        if f.shape == () and f.kind in ("measure", "status"):
+            cols[f.name] = results.flat(f.name)[idx]
+            units[f.name] = f.unit
+        elif f.kind == "point" and f.shape == (3,):
+            v = results.flat(f.name)[idx]
+            for j, c in enumerate("xyz"):
+                cols[f"{f.name}_{c}"] = v[:, j]
+                units[f"{f.name}_{c}"] = "m"
+    return cols, units
+
+
+def export_png(results: Results, path, measure: str | None = None, dpi: int = 120) -> str:
+    """Draw a map of ``measure`` (default: inverse condition, or its min over reduced joints) as a
+    PNG with a colour bar and axes in degrees or metres. 1-joint studies give a line plot, 3-joint
+    studies the middle slice of the third joint, random samples a scatter of the frame positions
+    (x, y) or a histogram. Returns the written path."""
+    final, tmp = _atomic_target(path, "--png")
+    names = results.measure_names()
+    if measure is None:
+        for cand in ("inverse_condition", "inverse_condition_min"):
+            if cand in names:
+                measure = cand
+                break
+        else:
+            measure = names[0] if names else None
+    if measure not in names:
+        raise ResultsError(f"--measure {measure}: not a map of these results; expected one of {', '.join(names)}")
+    import matplotlib
+
+    matplotlib.use("Agg", force=False)
+    from matplotlib.figure import Figure
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
+
+    v = np.asarray(results.arrays[measure], dtype=float)
+    fig = Figure(figsize=(7, 5.5), dpi=dpi)
+    FigureCanvasAgg(fig)
+    ax = fig.add_subplot(1, 1, 1)
+    title = f"{results.name}: {measure}"
+    if results.incomplete:
+        title += " (incomplete run)"
+    axes = results.axes
+
+    def lab(a):
+        return f"{a.label} [{a.display_unit}]" if a.display_unit else a.label
+
+    finite = v[np.isfinite(v)]
+    vmax = float(np.percentile(finite, 99.5)) if finite.size and measure.startswith("condition") else None
+    if axes and axes[0].name == "sample":
+        pts = next((results.flat(f.name) for f in results.fields if f.kind == "point"), None)
+        if pts is not None:
+            ok = np.isfinite(v)
+            sc = ax.scatter(pts[ok, 0], pts[ok, 1], c=v[ok], s=2, cmap="viridis", vmax=vmax)
+            ax.set_xlabel("x [m]")
+            ax.set_ylabel("y [m]")
+            ax.set_aspect("equal", adjustable="datalim")
+            fig.colorbar(sc, ax=ax, label=measure)
+        else:
+            ax.hist(finite, bins=100)
+            ax.set_xlabel(measure)
+            ax.set_ylabel("samples")
+    elif len(axes) == 1:
+        ax.plot(axes[0].display_values(), v)
+        ax.set_xlabel(lab(axes[0]))
+        ax.set_ylabel(measure)
+    else:
+        if len(axes) == 3:
+            k = axes[2].size // 2
+            v = v[:, :, k]
+            title += f" at {axes[2].name} = {axes[2].display_values()[k]:.4g} {axes[2].display_unit}"
+        a0, a1 = axes[0], axes[1]
+        x, y = a0.display_values(), a1.display_values()
+        ext = [y[0], y[-1], x[0], x[-1]]
+        im = ax.imshow(v, origin="lower", aspect="auto", extent=ext, cmap="viridis", vmax=vmax,
+                       interpolation="nearest")
+        ax.set_xlabel(lab(a1))
+        ax.set_ylabel(lab(a0))
+        fig.colorbar(im, ax=ax, label=measure)
+    ax.set_title(title, fontsize=10)
+    fig.tight_layout()
+    try:
+        fig.savefig(tmp, format="png")
+    except BaseException:
+        if os.path.exists(tmp):
+            os.unlink(tmp)
+        raise
+    _replace_or_clean(tmp, final)
+    return final
+

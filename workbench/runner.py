@@ -1,1 +1,544 @@
-"""Chunk scheduling of studies (in-process, local processes, Dask), progress and cancel."""
+"""Chunk scheduling of studies: in-process, local processes or Dask; progress, cancel, streaming.
+
+The runner holds no maths: it plans a study with its kind (:mod:`workbench.studies`), calibrates
+the time per cell on a few cells, cuts the grid into chunks of about ``chunk_seconds``, sends the
+chunks to an executor and streams each finished chunk to a writer (:mod:`workbench.results`), so
+memory stays bounded whatever the grid size.
+
+Executors
+---------
+``"inprocess"``  chunks computed one after another in the calling thread; the compiled kernels use
+                 all numba threads.
+``"processes"``  a ``concurrent.futures.ProcessPoolExecutor`` (spawn/forkserver context, never fork:
+                 numba's thread pool does not survive a fork); each worker process uses 1 numba
+                 thread so processes do not oversubscribe the cores. Default: one per core.
+``"dask"``       a ``dask.distributed`` Client: ``scheduler="local"`` starts a LocalCluster (one
+                 single-threaded worker process per core, or ``workers``) and closes it at the end;
+                 ``scheduler="tcp://host:port"`` connects to a running scheduler.
+
+Cancel is cooperative: ``cancel`` (a ``threading.Event`` or a callable returning True) is polled at
+least every 0.1 s between chunk completions; the run stops within about one chunk time (chunks are
+sized to ~0.25 s), keeps every finished chunk and closes the file marked incomplete.
+"""
+from __future__ import annotations
+
+import math
+import os
+import shutil
+import time
+from dataclasses import dataclass
+
+import numpy as np
+
+from .errors import WorkbenchError
+from .results import MemoryWriter, Results, ResultsWriter, check_output_path, read_results
+from .studies.base import RNG_BLOCK, Plan, StudyKind, calibrate, get_kind
+from .studies.spec import StudySpec, dumps_study, load_context, read_study_file
+
+__all__ = ["run_study", "prepare", "Prepared", "RunError", "EXECUTORS", "bench_sweep", "bench_scaling",
+           "bench_memory"]
+
+EXECUTORS = ("inprocess", "processes", "dask")
+#: with executor="auto", runs estimated below this many seconds stay in-process
+AUTO_INPROCESS_S = 3.0
+#: results larger than this are not read back into memory after a streamed run (lazy instead)
+READ_BACK_BYTES = 512 << 20
+#: the biggest chunk of result arrays a worker holds at once
+MAX_CHUNK_BYTES = 48 << 20
+
+
+class RunError(WorkbenchError):
+    """A run that cannot start (too big for memory or disk, bad executor settings)."""
+
+
+@dataclass(eq=False)
+class Prepared:
+    """A study ready to run: kind, plan, arm, cell, input texts and the calibrated estimate."""
+
+    kind: StudyKind
+    plan: Plan
+    arm: object
+    cell: object
+    texts: dict
+    estimate: object = None
+
+
+def prepare(study, arm=None, cell=None, texts=None, chunk_cells=None) -> Prepared:
+    """Read and plan a study without running it.
+
+    Parameters
+    ----------
+    study : str, os.PathLike, StudySpec or Plan
+        A study file, a spec, or a ready plan.
+    arm, cell : optional
+        Already loaded arm (``workbench.kinematics.Arm``) and cell; loaded from the spec otherwise.
+    texts : dict, optional
+        ``{"study", "arm", "cell"}`` file texts for the results file.
+    chunk_cells : int, optional
+        Override the kind's chunk size.
+    """
+    plan = None
+    if isinstance(study, Plan):
+        plan, spec = study, study.spec
+    elif isinstance(study, StudySpec):
+        spec = study
+    elif isinstance(study, (str, os.PathLike)):
+        spec = read_study_file(study)
+    else:
+        raise TypeError(f"run_study: expected a study file, StudySpec or Plan, got {type(study).__name__}")
+    kind = get_kind(spec.kind, where=f"{spec.where}: [study] kind")
+    texts = dict(texts or {})
+    if arm is None:
+        arm, cell_loaded, arm_text, cell_text = load_context(spec)
+        cell = cell if cell is not None else cell_loaded
+        texts.setdefault("arm", arm_text)
+        texts.setdefault("cell", cell_text)
+    elif texts.get("arm") is None and os.path.isfile(spec.arm_path):
+        with open(spec.arm_path, encoding="utf-8", errors="replace") as fh:
+            texts["arm"] = fh.read()
+    if "study" not in texts or texts["study"] is None:
+        texts["study"] = dumps_study(spec)
+    if plan is None:
+        plan = kind.plan(spec, arm, cell, chunk_cells=chunk_cells)
+    elif chunk_cells is not None:
+        plan = plan.with_chunk_cells(chunk_cells)
+    return Prepared(kind=kind, plan=plan, arm=arm, cell=cell, texts=texts)
+
+
+def _is_cancelled(cancel):
+    if cancel is None:
+        return lambda: False
+    if hasattr(cancel, "is_set"):
+        return cancel.is_set
+    if callable(cancel):
+        return lambda: bool(cancel())
+    raise TypeError("cancel: expected a threading.Event or a callable returning True to stop")
+
+
+def _nice_chunk(cells_per_chunk: float, cells: int) -> int:
+    c = int(max(1, min(cells, cells_per_chunk)))
+    if c >= 2 * RNG_BLOCK:
+        c -= c % RNG_BLOCK
+    elif c >= 64:
+        c = 1 << int(math.log2(c))
+    return max(1, c)
+
+
+def _available_memory() -> int:
+    try:
+        import psutil
+
+        return int(psutil.virtual_memory().available)
+    except Exception:  # pragma: no cover - psutil is a declared dependency
+        return 1 << 34
+
+
+def _fmt_bytes(b):
+    from .studies.base import _fmt_bytes as f
+
+    return f(b)
+
+
+def check_resources(plan: Plan, out) -> None:
+    """Refuse a run whose results would not fit: in memory when ``out`` is None, on disk
+    (uncompressed size) otherwise."""
+    need = plan.result_bytes
+    if out is None:
+        avail = _available_memory()
+        if need > 0.6 * avail:
+            raise RunError(f"{plan.spec.where}: the results need {_fmt_bytes(need)} of memory but only "
+                           f"{_fmt_bytes(avail)} is free; stream them to a file with --out FILE")
+    else:
+        folder = os.path.dirname(os.path.abspath(os.fspath(out)))
+        free = shutil.disk_usage(folder).free
+        if need > 0.95 * free:
+            raise RunError(f"{plan.spec.where}: the results need up to {_fmt_bytes(need)} on disk but "
+                           f"{folder} has {_fmt_bytes(free)} free; use fewer cells or another --out folder")
+
+
+# ----------------------------------------------------------------------------------------------
+# worker side
+
+
+def _compute(kind_name, plan, arm, cell, chunk, threads=None):
+    """Worker entry: compute one chunk (module-level so it pickles by reference)."""
+    from .kinematics import kernels
+
+    if threads is not None:
+        kernels.set_threads(threads)
+    kind = get_kind(kind_name)
+    return chunk, kind.compute_chunk(plan, arm, cell, chunk)
+
+
+def _worker_init():
+    import signal
+
+    from .kinematics import kernels
+
+    signal.signal(signal.SIGINT, signal.SIG_IGN)  # Ctrl-C is the parent's business (cancel)
+    kernels.set_threads(1)
+
+
+# ----------------------------------------------------------------------------------------------
+
+
+def run_study(study, out=None, executor="inprocess", workers=None, scheduler=None, progress=None,
+              cancel=None, on_chunk=None, arm=None, cell=None, texts=None, chunk_cells=None,
+              chunk_seconds=0.25, compression="lzf", pool=None, summary=True) -> Results:
+    """Run a study and return its results.
+
+    Parameters
+    ----------
+    study : str, os.PathLike, StudySpec, Plan or Prepared
+        What to run (a study file, a spec, a plan, or the output of :func:`prepare`).
+    out : str or None
+        Results file to stream to (HDF5, written under a temporary name and renamed when closed);
+        None keeps the results in memory (refused when they would not fit).
+    executor : {"inprocess", "processes", "dask", "auto"}
+        "auto" runs in-process when the calibrated estimate is under 3 s, else local processes.
+    workers : int or None
+        Worker processes (default: one per core).
+    scheduler : str or None
+        For Dask: "local" (start a LocalCluster) or "tcp://host:port". Giving a scheduler implies
+        ``executor="dask"``.
+    progress : callable(done, total, eta_seconds), optional
+        Called after calibration (done = 0) and after every chunk; counts are grid cells, the ETA
+        is in seconds (NaN until known).
+    cancel : threading.Event or callable, optional
+        Cooperative cancel; finished chunks are kept and the results are marked incomplete.
+    on_chunk : callable(chunk, arrays), optional
+        Called in the runner's thread after each chunk is written (for live views).
+    chunk_cells : int, optional
+        Fixed chunk size (cells); default: calibrated to about ``chunk_seconds`` per chunk.
+    compression : {"lzf", "gzip", None}
+        HDF5 filter of the field datasets: LZF (fast, h5py's built-in filter) or gzip level 1
+        (readable by any HDF5 tool, slower to write).
+    pool : concurrent.futures.Executor or distributed.Client, optional
+        Reuse a running pool of workers (its workers should use 1 numba thread each).
+    summary : bool
+        Compute the kind's summary tables when the results fit in memory.
+
+    Returns
+    -------
+    Results
+        In memory, or read back from ``out`` (arrays loaded lazily when larger than 512 MB).
+
+    Raises
+    ------
+    WorkbenchError
+        Bad study, output path, executor settings, or a run too large for memory / disk.
+    """
+    t_start = time.perf_counter()
+    if scheduler is not None and executor in ("inprocess", "processes", None):
+        executor = "dask"
+    if executor not in EXECUTORS + ("auto",):
+        raise RunError(f"executor: expected one of {', '.join(EXECUTORS)}, got {executor!r}")
+    if workers is not None and (not isinstance(workers, (int, np.integer)) or workers < 1):
+        raise RunError(f"--workers: expected a whole number >= 1, got {workers!r}")
+    if out is not None:
+        out = check_output_path(out)
+    prep = study if isinstance(study, Prepared) else prepare(study, arm, cell, texts, chunk_cells)
+    kind, plan, arm, cell = prep.kind, prep.plan, prep.arm, prep.cell
+    check_resources(plan, out)
+    is_cancelled = _is_cancelled(cancel)
+    n_workers = int(workers or os.cpu_count() or 1)
+
+    # calibrate on a few cells (all threads) and size the chunks
+    from .kinematics import kernels
+
+    kernels.set_threads(None)
+    est = calibrate(kind, plan, arm, cell)
+    prep.estimate = est
+    if executor == "auto":  # processes cost a second or two to start: not worth it for short runs
+        executor = "inprocess" if est.seconds < AUTO_INPROCESS_S or n_workers == 1 else "processes"
+    if chunk_cells is None and not isinstance(study, Prepared | Plan):
+        per_thread = est.seconds_per_cell * (1 if executor == "inprocess" else max(1, _threads()))
+        target = chunk_seconds / max(per_thread, 1e-12)
+        target = min(target, MAX_CHUNK_BYTES / max(1, plan.cell_bytes))
+        if executor != "inprocess":  # at least ~4 chunks per worker for balance
+            target = min(target, max(1.0, plan.cells / (4 * n_workers)))
+        plan = plan.with_chunk_cells(_nice_chunk(target, plan.cells))
+    total = plan.cells
+    if progress is not None:
+        progress(0, total, est.seconds / (1 if executor == "inprocess" else n_workers) if total else 0.0)
+
+    attrs = {"executor": executor, "workers": n_workers if executor != "inprocess" else 1,
+             "estimate_s": float(est.seconds)}
+    writer = (ResultsWriter(out, plan, prep.texts, attrs, compression=compression) if out is not None
+              else MemoryWriter(plan, prep.texts, attrs))
+    done_cells = 0
+    first = [None, 0]
+    t_run = time.perf_counter()
+
+    def finished(chunk, arrays):
+        nonlocal done_cells
+        writer.write_chunk(chunk, arrays)
+        done_cells += chunk.size
+        if on_chunk is not None:
+            on_chunk(chunk, arrays)
+        if progress is not None:
+            now = time.perf_counter()
+            if first[0] is None:  # the first chunk also pays the workers' start-up
+                first[0], first[1] = now, done_cells
+            if done_cells > first[1]:
+                eta = (now - first[0]) * (total - done_cells) / (done_cells - first[1])
+            else:
+                eta = (now - t_run) * (total - done_cells) / max(done_cells, 1)
+            progress(done_cells, total, eta)
+
+    try:
+        if executor == "inprocess":
+            _run_inprocess(kind, plan, arm, cell, finished, is_cancelled)
+        elif executor == "processes":
+            _run_processes(kind, plan, arm, cell, finished, is_cancelled, n_workers, pool)
+        else:
+            _run_dask(kind, plan, arm, cell, finished, is_cancelled, n_workers, scheduler, pool)
+    except BaseException:
+        writer.abort()
+        raise
+    incomplete = not bool(writer.finished.all())
+    tables = {}
+    if summary:
+        full = writer.full_arrays()
+        if full is not None:
+            tables = kind.summarise(plan, full)
+    elapsed = time.perf_counter() - t_start
+    res = writer.close(incomplete, tables, {"elapsed_s": float(elapsed)})
+    if out is None:
+        return res
+    r = read_results(out, load=plan.result_bytes <= READ_BACK_BYTES)
+    r.plan = plan
+    return r
+
+
+def _threads() -> int:
+    try:
+        import numba
+
+        return int(numba.get_num_threads())
+    except Exception:  # pragma: no cover
+        return 1
+
+
+def _run_inprocess(kind, plan, arm, cell, finished, is_cancelled):
+    for chunk in plan.chunks:
+        if is_cancelled():
+            return
+        finished(chunk, kind.compute_chunk(plan, arm, cell, chunk))
+
+
+def _run_processes(kind, plan, arm, cell, finished, is_cancelled, n_workers, pool):
+    import concurrent.futures as cf
+    import multiprocessing as mp
+
+    own = pool is None
+    if own:
+        methods = mp.get_all_start_methods()
+        ctx = mp.get_context("forkserver" if "forkserver" in methods else "spawn")
+        pool = cf.ProcessPoolExecutor(max_workers=n_workers, mp_context=ctx, initializer=_worker_init)
+    chunks = iter(plan.chunks)
+    pending = set()
+    cancelled = False
+    try:
+        def submit():
+            c = next(chunks, None)
+            if c is not None:
+                pending.add(pool.submit(_compute, kind.name, plan, arm, cell, c, 1))
+            return c is not None
+
+        for _ in range(2 * n_workers):
+            if not submit():
+                break
+        while pending:
+            if is_cancelled():
+                cancelled = True
+                break
+            done, _ = cf.wait(pending, timeout=0.1, return_when=cf.FIRST_COMPLETED)
+            for fut in done:
+                pending.discard(fut)
+                chunk, arrays = fut.result()
+                finished(chunk, arrays)
+                if not is_cancelled():
+                    submit()
+    finally:
+        for fut in pending:
+            fut.cancel()
+        if own:
+            pool.shutdown(wait=not cancelled, cancel_futures=True)
+
+
+def _run_dask(kind, plan, arm, cell, finished, is_cancelled, n_workers, scheduler, pool):
+    try:
+        from distributed import Client, LocalCluster, wait
+    except ImportError:  # pragma: no cover - declared dependency
+        raise RunError("--scheduler: dask.distributed is not installed") from None
+    cluster = None
+    client = pool
+    if client is None:
+        addr = scheduler or "local"
+        try:
+            if addr == "local":
+                cluster = LocalCluster(n_workers=n_workers, threads_per_worker=1, processes=True,
+                                       dashboard_address=None)
+                client = Client(cluster)
+            else:
+                if not str(addr).startswith(("tcp://", "tls://", "inproc://", "ws://", "wss://")):
+                    raise RunError(f"--scheduler: expected 'local' or an address like tcp://host:8786, got {addr!r}")
+                client = Client(addr, timeout="10s")
+        except RunError:
+            raise
+        except Exception as exc:
+            if cluster is not None:
+                cluster.close()
+            raise RunError(f"--scheduler {addr}: cannot connect ({str(exc).splitlines()[0]})") from None
+    try:
+        ctx = client.scatter([kind.name, plan, arm, cell], broadcast=True)
+        n_slots = max(1, sum(client.nthreads().values())) if hasattr(client, "nthreads") else n_workers
+        chunks = iter(plan.chunks)
+        pending = set()
+
+        def submit():
+            c = next(chunks, None)
+            if c is not None:
+                pending.add(client.submit(_compute, *ctx, c, 1, pure=False))
+            return c is not None
+
+        for _ in range(2 * n_slots):
+            if not submit():
+                break
+        while pending:
+            if is_cancelled():
+                break
+            try:
+                done, _ = wait(list(pending), timeout=0.1, return_when="FIRST_COMPLETED")
+            except Exception:  # distributed raises TimeoutError when nothing finished in time
+                continue
+            for fut in done:
+                pending.discard(fut)
+                chunk, arrays = fut.result()
+                finished(chunk, arrays)
+                if not is_cancelled():
+                    submit()
+        if pending:
+            client.cancel(list(pending))
+    finally:
+        if cluster is not None:
+            client.close()
+            cluster.close()
+
+
+# ----------------------------------------------------------------------------------------------
+# benchmarks (see workbench.bench)
+
+
+def _demo_arm():
+    from pathlib import Path
+
+    return str(Path(__file__).resolve().parent.parent / "arms" / "demo_s6.toml")
+
+
+def _sweep_spec(steps, **extra):
+    settings = {"joints": ["j2", "j3"], "ranges": [[-140, 90], [-120, 160]], "steps": list(steps)}
+    settings.update(extra)
+    return StudySpec(kind="joint_sweep", arm=_demo_arm(), settings=settings, name="bench sweep")
+
+
+def bench_sweep(quick: bool = False) -> dict:
+    """A 2-joint sweep (1000 x 1000 cells; 300 x 300 quick) of demo_s6 with every measure, run
+    in-process and streamed to an HDF5 file, against the pure compute of the same chunks (a plain
+    loop of ``compute_chunk``, no runner, no writer). Bar: overhead < 20 % of compute."""
+    import tempfile
+
+    k = 300 if quick else 1000
+    prep = prepare(_sweep_spec((k, k)))
+    from .kinematics import kernels
+
+    kernels.set_threads(None)
+    calibrate(prep.kind, prep.plan, prep.arm, prep.cell)  # compile / warm outside the timings
+    with tempfile.TemporaryDirectory() as d:
+        out = os.path.join(d, "sweep.h5")
+        t0 = time.perf_counter()
+        res = run_study(prep.plan, out=out, executor="inprocess", arm=prep.arm, texts=prep.texts)
+        t_run = time.perf_counter() - t0
+        plan = res.plan
+        size = os.path.getsize(out)
+        t0 = time.perf_counter()
+        for c in plan.chunks:
+            prep.kind.compute_chunk(plan, prep.arm, None, c)
+        t_compute = time.perf_counter() - t0
+    over = (t_run - t_compute) / t_compute
+    cells = plan.cells
+    return {"name": "sweep",
+            "metrics": {"cells": cells, "run_s": t_run, "compute_s": t_compute,
+                        "cells_per_s": cells / t_run, "chunks": plan.n_chunks, "file_mb": size / 1e6},
+            "ratios": {"overhead_vs_compute": over},
+            "bars": {"runner+writer overhead<20%": [over, 0.20, bool(over < 0.20)]},
+            "notes": [f"{k} x {k} j2 x j3 sweep of demo_s6, in-process, LZF-compressed HDF5"]}
+
+
+def bench_scaling(quick: bool = False) -> dict:
+    """Local processes: the same sweep with 2 workers vs 1 worker (pools started and warmed
+    before timing). Bar: 2 workers at least 1.7x one worker."""
+    import concurrent.futures as cf
+    import multiprocessing as mp
+
+    k = 500 if quick else 1200
+    prep = prepare(_sweep_spec((k, k)))
+    times = {}
+    ctx = mp.get_context("forkserver" if "forkserver" in mp.get_all_start_methods() else "spawn")
+    for w in (1, 2):
+        with cf.ProcessPoolExecutor(max_workers=w, mp_context=ctx, initializer=_worker_init) as pool:
+            warm = prepare(_sweep_spec((64, 64)))
+            run_study(warm, executor="processes", workers=w, pool=pool, summary=False)
+            best = math.inf
+            for _ in range(1 if not quick else 1):
+                t0 = time.perf_counter()
+                run_study(prep.plan.with_chunk_cells(max(4096, prep.plan.cells // 32)), executor="processes",
+                          workers=w, pool=pool, arm=prep.arm, texts=prep.texts, summary=False)
+                best = min(best, time.perf_counter() - t0)
+            times[w] = best
+    speedup = times[1] / times[2]
+    return {"name": "scaling",
+            "metrics": {"cells": k * k, "one_worker_s": times[1], "two_workers_s": times[2],
+                        "cores": os.cpu_count()},
+            "ratios": {"two_vs_one_worker": speedup},
+            "bars": {"2 workers>=1.7x 1 worker": [speedup, 1.7, bool(speedup >= 1.7)]},
+            "notes": ["local processes, 1 numba thread per worker; other load on the machine lowers this"]}
+
+
+_MEMORY_CHILD = r"""
+import json, os, resource, sys, time
+from workbench.runner import run_study, _sweep_spec
+k = int(sys.argv[1]); out = sys.argv[2]
+t0 = time.perf_counter()
+res = run_study(_sweep_spec((k, k)), out=out, executor="inprocess", summary=False)
+dt = time.perf_counter() - t0
+peak = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss * 1024
+print(json.dumps({"cells": res.cells, "seconds": dt, "peak_bytes": peak, "file_bytes": os.path.getsize(out),
+                  "incomplete": res.incomplete}))
+"""
+
+
+def bench_memory(quick: bool = False) -> dict:
+    """Peak resident memory of a 20-million-cell joint sweep (4472 x 4472; 1000 x 1000 quick)
+    streamed to an HDF5 file, measured in a fresh subprocess (``ru_maxrss``). Bar: < 1.5 GB."""
+    import json
+    import subprocess
+    import sys
+    import tempfile
+
+    k = 1000 if quick else 4472
+    with tempfile.TemporaryDirectory() as d:
+        out = os.path.join(d, "big.h5")
+        r = subprocess.run([sys.executable, "-c", _MEMORY_CHILD, str(k), out], capture_output=True, text=True)
+        if r.returncode != 0:
+            raise RuntimeError(f"memory bench child failed: {r.stderr.strip().splitlines()[-1:]}")
+        m = json.loads(r.stdout.strip().splitlines()[-1])
+    gb = m["peak_bytes"] / 1e9
+    return {"name": "memory",
+            "metrics": {"cells": m["cells"], "seconds": m["seconds"], "peak_rss_gb": gb,
+                        "file_gb": m["file_bytes"] / 1e9, "cells_per_s": m["cells"] / m["seconds"]},
+            "ratios": {"peak_rss_vs_limit": gb / 1.5},
+            "bars": {"peak RSS<1.5GB": [gb, 1.5, bool(gb < 1.5)]},
+            "notes": [f"{k} x {k} sweep streamed to disk in a subprocess"]}
+

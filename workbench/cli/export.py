@@ -1,0 +1,38 @@
+"""``workbench export RESULTS --png F --csv F``: maps as PNG and pose lists as CSV."""
+from __future__ import annotations
+
+import sys
+
+
+def add_parser(subparsers):
+    p = subparsers.add_parser("export", help="export a results file: a map as PNG, a pose list as CSV",
+                              description="Export a results file: a map of one measure as a PNG image (colour "
+                                          "bar, axes in degrees or metres) and/or a pose list as CSV (joint "
+                                          "values in degrees / mm and the measures).")
+    p.add_argument("results", metavar="RESULTS", help="results file (.h5) written by 'workbench run'")
+    p.add_argument("--png", metavar="FILE", default=None, help="write a map image")
+    p.add_argument("--measure", metavar="NAME", default=None,
+                   help="measure to draw (default: inverse_condition); see the list printed on a wrong name")
+    p.add_argument("--csv", metavar="FILE", default=None, help="write a pose list")
+    p.add_argument("--table", metavar="NAME", default=None,
+                   help="which pose list (default: near_singular); 'cells' writes every finished cell")
+    return p
+
+
+def run(args) -> int:
+    from ..errors import WorkbenchError
+    from ..results import export_csv, export_png, read_results
+
+    if not args.png and not args.csv:
+        raise WorkbenchError("export: nothing to do; give --png FILE and/or --csv FILE")
+    res = read_results(args.results)
+    if res.incomplete:
+        sys.stderr.write(f"note: {args.results} is an incomplete run ({int(res.finished.sum())} of "
+                         f"{res.finished.size} chunks); unfinished cells are blank\n")
+    if args.png:
+        export_png(res, args.png, measure=args.measure)
+        sys.stderr.write(f"wrote {args.png}\n")
+    if args.csv:
+        n = export_csv(res, args.csv, table=args.table)
+        sys.stderr.write(f"wrote {args.csv} ({n} rows)\n")
+    return 0

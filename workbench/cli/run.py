@@ -1,0 +1,133 @@
+"""``workbench run STUDY``: run a study headless and write a results file.
+
+Progress goes to stderr (a bar on a terminal, a line every 10 % otherwise). Ctrl-C cancels
+cooperatively: finished chunks are kept and the results file is closed, readable and marked
+incomplete (exit status 130). Bad study files and settings print one ``error:`` line (exit 2) and
+write nothing.
+"""
+from __future__ import annotations
+
+import os
+import signal
+import sys
+import threading
+import time
+
+
+def add_parser(subparsers):
+    p = subparsers.add_parser("run", help="run a study file headless and write a results file (HDF5)",
+                              description="Run a study (joint sweep, reach slice, ...) described by a study "
+                                          "file and stream its results to an HDF5 file.")
+    p.add_argument("study", metavar="STUDY", help="study file (.toml)")
+    p.add_argument("--out", metavar="FILE", default=None,
+                   help="results file (default: the study file's name with .h5, in the current folder)")
+    p.add_argument("--workers", metavar="N", type=int, default=None,
+                   help="worker processes (default: one per core)")
+    p.add_argument("--scheduler", metavar="ADDR", default=None,
+                   help="run on Dask: 'local' starts a local cluster, or tcp://host:port of a running scheduler")
+    p.add_argument("--in-process", action="store_true",
+                   help="compute in this process (all threads) instead of worker processes")
+    p.add_argument("--compression", choices=("lzf", "gzip"), default="lzf",
+                   help="HDF5 compression of the result arrays: lzf (fast, default) or gzip (any HDF5 tool)")
+    p.add_argument("--quiet", action="store_true", help="no progress on stderr")
+    return p
+
+
+def _fmt_time(s: float) -> str:
+    if s != s or s == float("inf"):
+        return "--"
+    s = int(round(s))
+    if s < 60:
+        return f"{s} s"
+    if s < 3600:
+        return f"{s // 60} min {s % 60:02d} s"
+    return f"{s // 3600} h {(s % 3600) // 60:02d} min"
+
+
+class _Progress:
+    """Progress on stderr: a redrawn bar on a terminal, a line per 10 % otherwise."""
+
+    def __init__(self, stream=sys.stderr, quiet=False):
+        self.stream = stream
+        self.quiet = quiet
+        self.tty = hasattr(stream, "isatty") and stream.isatty()
+        self.last = 0.0
+        self.step = -1
+
+    def __call__(self, done, total, eta):
+        if self.quiet:
+            return
+        frac = done / total if total else 1.0
+        if self.tty:
+            now = time.monotonic()
+            if now - self.last < 0.1 and done < total:
+                return
+            self.last = now
+            width = 30
+            fill = int(width * frac)
+            self.stream.write(f"\r[{'#' * fill}{'.' * (width - fill)}] {100 * frac:5.1f}%  "
+                              f"{done:,}/{total:,} cells  {_fmt_time(eta)} left ")
+            if done >= total:
+                self.stream.write("\n")
+        else:
+            step = int(frac * 10)
+            if step == self.step:
+                return
+            self.step = step
+            self.stream.write(f"run: {100 * frac:.0f}% ({done:,} of {total:,} cells), {_fmt_time(eta)} left\n")
+        self.stream.flush()
+
+    def end(self):
+        if self.tty and not self.quiet:
+            self.stream.write("\n")
+
+
+def run(args) -> int:
+    from ..errors import WorkbenchError
+    from ..results import check_output_path
+    from ..runner import prepare, run_study
+
+    if args.workers is not None and args.workers < 1:
+        raise WorkbenchError(f"--workers: expected a whole number >= 1, got {args.workers}")
+    if args.in_process and args.scheduler:
+        raise WorkbenchError("--in-process and --scheduler: choose one")
+    out = args.out
+    if out is None:
+        out = os.path.splitext(os.path.basename(args.study))[0] + ".h5"
+    out = check_output_path(out)
+    prep = prepare(args.study)  # reads and checks the study, arm and cell files
+    if args.scheduler:
+        executor = "dask"
+    elif args.in_process:
+        executor = "inprocess"
+    elif args.workers:
+        executor = "processes"
+    else:
+        executor = "auto"
+
+    cancel = threading.Event()
+
+    def on_sigint(signum, frame):
+        if cancel.is_set():  # a second Ctrl-C: stop hard (the temporary file is left, never the final name)
+            raise KeyboardInterrupt
+        cancel.set()
+        sys.stderr.write("\ncancelling: keeping the finished chunks ...\n")
+
+    old = signal.signal(signal.SIGINT, on_sigint) if threading.current_thread() is threading.main_thread() else None
+    bar = _Progress(quiet=args.quiet)
+    if not args.quiet:
+        sys.stderr.write(f"study {prep.plan.spec.name!r} ({prep.kind.title}): {prep.plan.cells:,} cells\n")
+    try:
+        res = run_study(prep, out=out, executor=executor, workers=args.workers, scheduler=args.scheduler,
+                        progress=bar, cancel=cancel, compression=args.compression)
+    finally:
+        if old is not None:
+            signal.signal(signal.SIGINT, old)
+    done = int(res.finished.sum())
+    if res.incomplete:
+        bar.end()
+        sys.stderr.write(f"cancelled: {done} of {res.finished.size} chunks kept in {out} (marked incomplete)\n")
+        return 130
+    if not args.quiet:
+        sys.stderr.write(f"wrote {out} ({res.attrs.get('elapsed_s', 0):.1f} s, {res.attrs.get('executor')})\n")
+    return 0
