@@ -1,0 +1,552 @@
+"""Mount search: where should the arm's base go so that it reaches every work point well?
+
+For every candidate mount ``M`` of the cell's ``[mount]`` region (x, y, height, yaw, style) the
+work points are expressed in the arm's base frame, ``inverse(M) @ pose`` (a base placed at
+``g @ FK(q)^-1`` reaches ``g`` with the joint values ``q``: the inversion property used for base
+placement by Vahrenkamp, Asfour & Dillmann, "Robot placement based on reachability inversion",
+ICRA 2013), and solved with the batched multi-seed IK. Per candidate:
+
+* ``reached_fraction`` f: the fraction of work points reached within their tolerances;
+* ``worst_measure`` w: the smallest measure (inverse condition, minimum singular value or
+  manipulability of the chosen rows) over the reached work points;
+* ``min_margin`` m: the smallest joint-limit margin (:meth:`Arm.limit_margin`, 1 at mid range,
+  0 at a limit) over the reached work points;
+* ``score`` = f^p * w^a * m^b  (defaults p = 2, a = 1, b = 0.5; 0 when nothing is reached).
+
+The grid is then refined off the grid: the best few candidates are polished over (x, y, yaw) by
+Nelder-Mead (scipy.optimize), and a sensitivity check reports how much the score drops when the
+base is placed 1-2 cm or 1-2 degrees off.
+"""
+from __future__ import annotations
+
+import math
+import time
+from dataclasses import dataclass
+from typing import Mapping
+
+import numpy as np
+
+from .base import Axis, Field, Plan, StudyError, StudyKind, Table
+from .cell import WorkPoint, candidate_grid, mount_transforms, relative_targets
+
+__all__ = ["MountSearch", "MountSettings", "evaluate_mounts", "score_candidates", "score_formula",
+           "refine_candidate", "sensitivity", "solve_targets", "reached_check", "bench_mount_search",
+           "MEASURES"]
+
+_DEG = math.pi / 180.0
+MEASURES = ("inverse_condition", "min_sv", "manipulability")
+
+
+# ----------------------------------------------------------------------------------------------
+# IK adapter (the one place that calls the batched IK)
+
+
+def solve_targets(arm, T, orientation: str, seeds=8, q0=None):
+    """Batched multi-seed IK of targets ``T`` (N, 4, 4) in the arm's base frame.
+
+    Parameters
+    ----------
+    arm : workbench.kinematics.Arm
+    T : (N, 4, 4) ndarray
+        TCP goals in the arm base frame (m).
+    orientation : {"fixed", "axis", "free"}
+    seeds : int
+        Number of seeds per target.
+    q0 : (N, n) ndarray, optional
+        A preferred seed per target (e.g. the previous solution), tried first.
+
+    Returns
+    -------
+    q : (N, n) ndarray
+        Joint values (rad / m); NaN rows are never returned (the best attempt is kept).
+    status : (N,) int ndarray
+        0 = converged (see :mod:`workbench.kinematics.ik`).
+    """
+    from ..kinematics.ik import solve_ik
+
+    T = np.ascontiguousarray(np.asarray(T, float).reshape(-1, 4, 4))
+    if T.shape[0] == 0:
+        return np.empty((0, arm.n)), np.empty(0, dtype=np.int64)
+    kw = {}
+    if q0 is not None:
+        kw["q_seed"] = np.asarray(q0, float).reshape(-1, arm.n)
+    res = solve_ik(arm, T, seeds=seeds, orientation=orientation, **kw)
+    return np.asarray(res.q, float).reshape(-1, arm.n), np.asarray(res.status).reshape(-1)
+
+
+def reached_check(arm, q, T, rule: str, tol, atol):
+    """Whether joint values ``q`` (N, n) put the TCP on goals ``T`` (N, 4, 4) (base frame).
+
+    Position error <= ``tol`` (m); orientation (rule "fixed": full rotation angle; "axis": angle
+    between tool z axes; "free": none) <= ``atol`` (rad); joints inside their limits.
+
+    Returns
+    -------
+    (N,) bool ndarray
+    """
+    q = np.asarray(q, float)
+    ok = np.all(np.isfinite(q), axis=-1)
+    qs = np.where(ok[:, None], q, 0.0)
+    F = arm.fk(qs)
+    dp = np.linalg.norm(F[:, :3, 3] - T[:, :3, 3], axis=-1)
+    ok &= dp <= np.asarray(tol)
+    if rule == "fixed":
+        tr = np.einsum("nij,nij->n", F[:, :3, :3], T[:, :3, :3])
+        ang = np.arccos(np.clip((tr - 1.0) / 2.0, -1.0, 1.0))
+        ok &= ang <= np.asarray(atol)
+    elif rule == "axis":
+        c = np.einsum("ni,ni->n", F[:, :3, 2], T[:, :3, 2])
+        ok &= np.arccos(np.clip(c, -1.0, 1.0)) <= np.asarray(atol)
+    ok &= arm.in_limits(qs, tol=1e-9)
+    return ok
+
+
+# ----------------------------------------------------------------------------------------------
+# settings
+
+
+@dataclass(frozen=True)
+class MountSettings:
+    """Validated mount-search settings (SI).
+
+    measure : which measure is scored ("inverse_condition", "min_sv", "manipulability")
+    rows : task rows of the measure ("full", "translation", ...); length : characteristic length (m)
+    seeds : IK seeds per target; reach_power p, measure_power a, margin_power b : score exponents
+    refine : how many of the best grid candidates are refined; refine_evaluations : budget each
+    sensitivity : whether the sensitivity check runs
+    """
+
+    measure: str = "inverse_condition"
+    rows: str | tuple = "full"
+    length: float | None = None
+    seeds: int = 8
+    reach_power: float = 2.0
+    measure_power: float = 1.0
+    margin_power: float = 0.5
+    refine: int = 3
+    refine_evaluations: int = 120
+    sensitivity: bool = True
+
+
+_KEYS = {"measure", "rows", "length", "seeds", "reach_power", "measure_power", "margin_power", "refine",
+         "refine_evaluations", "sensitivity"}
+
+
+def score_formula(s: MountSettings) -> str:
+    """The score formula in words, with this study's exponents (shown in results and the report)."""
+    return (f"score = f^{s.reach_power:g} * w^{s.measure_power:g} * m^{s.margin_power:g}, where f = fraction of "
+            f"work points reached, w = worst {s.measure.replace('_', ' ')} ({_rows_text(s.rows)} rows) over the "
+            f"reached points, m = smallest joint-limit margin over the reached points (1 mid-range, 0 at a "
+            f"limit); 0 when no point is reached")
+
+
+def _rows_text(rows):
+    return rows if isinstance(rows, str) else ",".join(map(str, rows))
+
+
+def _validate(settings: Mapping, arm, where: str) -> MountSettings:
+    from ..kinematics.rows import parse_rows
+
+    unknown = sorted(set(settings) - _KEYS)
+    if unknown:
+        raise StudyError(f"{where}: unknown key '{unknown[0]}'; allowed keys: {', '.join(sorted(_KEYS))}")
+    out = {}
+    m = settings.get("measure", "inverse_condition")
+    if m not in MEASURES:
+        raise StudyError(f"{where} measure: expected one of {', '.join(MEASURES)}, got {m!r}")
+    out["measure"] = m
+    rows = settings.get("rows", "full")
+    try:
+        parse_rows(rows)
+    except Exception as exc:
+        raise StudyError(f"{where} rows: {exc}") from None
+    out["rows"] = rows if isinstance(rows, str) else tuple(rows)
+    if "length" in settings:
+        out["length"] = _pos(settings["length"], where, "length")
+    for key, lo in (("seeds", 1), ("refine", 0), ("refine_evaluations", 10)):
+        if key in settings:
+            v = settings[key]
+            if isinstance(v, bool) or not isinstance(v, int) or v < lo:
+                raise StudyError(f"{where} {key}: expected an integer >= {lo}, got {v!r}")
+            out[key] = v
+    for key in ("reach_power", "measure_power", "margin_power"):
+        if key in settings:
+            v = settings[key]
+            if isinstance(v, bool) or not isinstance(v, (int, float)) or not (0 <= v <= 20):
+                raise StudyError(f"{where} {key}: expected an exponent between 0 and 20, got {v!r}")
+            out[key] = float(v)
+    if "sensitivity" in settings:
+        if not isinstance(settings["sensitivity"], bool):
+            raise StudyError(f"{where} sensitivity: expected true or false, got {settings['sensitivity']!r}")
+        out["sensitivity"] = settings["sensitivity"]
+    return MountSettings(**out)
+
+
+def _pos(v, where, key):
+    if isinstance(v, bool) or not isinstance(v, (int, float)) or not math.isfinite(v) or v <= 0:
+        raise StudyError(f"{where} {key}: expected a positive number, got {v!r}")
+    return float(v)
+
+
+# ----------------------------------------------------------------------------------------------
+# the maths
+
+
+def _measure_of_q(arm, q, s: MountSettings) -> np.ndarray:
+    from ..measures import measures_from_sv
+
+    length = s.length if s.length is not None else arm.nominal_reach()
+    sv = arm.singular_values(np.ascontiguousarray(q), rows=s.rows, length=length)
+    return measures_from_sv(sv)[s.measure]
+
+
+def evaluate_mounts(arm, mounts, points, s: MountSettings, q0=None) -> dict:
+    """IK of every work point from every mount and the per-point measures.
+
+    Parameters
+    ----------
+    arm : workbench.kinematics.Arm
+    mounts : (C, 4, 4) ndarray
+        Candidate base-in-cell transforms.
+    points : sequence of WorkPoint
+        The P work points (cell frame).
+    s : MountSettings
+    q0 : (C, P, n) ndarray, optional
+        Preferred seeds (warm start).
+
+    Returns
+    -------
+    dict with ``q`` (C, P, n), ``reached`` (C, P) bool, ``measure`` (C, P) (0 where not reached),
+    ``margin`` (C, P) (0 where not reached).
+    """
+    mounts = np.asarray(mounts, float).reshape(-1, 4, 4)
+    C, P, n = mounts.shape[0], len(points), arm.n
+    poses = np.array([p.pose for p in points]).reshape(P, 4, 4)
+    T = relative_targets(mounts, poses)  # (C, P, 4, 4)
+    q = np.zeros((C, P, n))
+    reached = np.zeros((C, P), bool)
+    for rule in ("fixed", "axis", "free"):
+        idx = [k for k, p in enumerate(points) if p.rule == rule]
+        if not idx:
+            continue
+        Tg = T[:, idx].reshape(-1, 4, 4)
+        seed = None if q0 is None else np.asarray(q0)[:, idx].reshape(-1, n)
+        qs, _status = solve_targets(arm, Tg, rule, seeds=s.seeds, q0=seed)
+        tol = np.tile([points[k].tolerance for k in idx], C)
+        atol = np.tile([points[k].angle_tolerance for k in idx], C)
+        ok = reached_check(arm, qs, Tg, rule, tol, atol)
+        q[:, idx] = np.where(np.isfinite(qs), qs, 0.0).reshape(C, len(idx), n)
+        reached[:, idx] = ok.reshape(C, len(idx))
+    flat = q.reshape(-1, n)
+    meas = _measure_of_q(arm, flat, s).reshape(C, P)
+    marg = arm.limit_margin(flat).reshape(C, P)
+    meas = np.where(reached, meas, 0.0)
+    marg = np.where(reached, np.clip(marg, 0.0, 1.0), 0.0)
+    return {"q": q, "reached": reached, "measure": meas, "margin": marg}
+
+
+def score_candidates(reached, measure, margin, s: MountSettings) -> dict:
+    """Per-candidate reached fraction, worst measure, smallest margin and score.
+
+    Parameters
+    ----------
+    reached, measure, margin : (C, P) ndarray
+
+    Returns
+    -------
+    dict of (C,) arrays: ``reached_fraction``, ``worst_measure``, ``min_margin``, ``score``
+    (see :func:`score_formula`).
+    """
+    reached = np.asarray(reached, bool)
+    f = reached.mean(axis=-1) if reached.shape[-1] else np.zeros(reached.shape[:-1])
+    anyr = reached.any(axis=-1)
+    big = np.where(reached, measure, np.inf)
+    w = np.where(anyr, big.min(axis=-1), 0.0)
+    mm = np.where(anyr, np.where(reached, margin, np.inf).min(axis=-1), 0.0)
+    with np.errstate(invalid="ignore"):
+        score = (f ** s.reach_power) * (np.maximum(w, 0) ** s.measure_power) * (np.maximum(mm, 0) ** s.margin_power)
+    score = np.where(anyr, score, 0.0)
+    return {"reached_fraction": f, "worst_measure": w, "min_margin": mm, "score": score}
+
+
+def _score_at(arm, points, s, x, y, h, yaw, tilt, q0=None):
+    M = mount_transforms(x, y, h, yaw, tilt)[None]
+    ev = evaluate_mounts(arm, M, points, s, q0=q0)
+    sc = score_candidates(ev["reached"], ev["measure"], ev["margin"], s)
+    return float(sc["score"][0]), ev
+
+
+def refine_candidate(arm, points, s: MountSettings, x, y, h, yaw, tilt, step_xy, step_yaw, bounds=None,
+                     q0=None, maxfev=None):
+    """Polish one candidate over (x, y, yaw) with Nelder-Mead (scipy.optimize.minimize).
+
+    Height and style stay fixed. ``step_xy`` (m) and ``step_yaw`` (rad) set the first simplex;
+    ``bounds`` ((x0, x1), (y0, y1)) keeps x, y inside the candidate region (clipped).
+
+    Returns
+    -------
+    dict with ``x``, ``y``, ``yaw``, ``score``, ``start_score``, ``evaluations``, ``q`` (P, n).
+    """
+    from scipy.optimize import minimize
+
+    maxfev = maxfev or s.refine_evaluations
+    start_score, ev0 = _score_at(arm, points, s, x, y, h, yaw, tilt, q0=q0)
+    warm = ev0["q"]
+    best = {"score": start_score, "v": np.array([x, y, yaw]), "q": warm[0]}
+    scale = np.array([step_xy, step_xy, max(step_yaw, 1e-3)])
+
+    def clip(v):
+        v = v.copy()
+        if bounds is not None:
+            v[0] = min(max(v[0], bounds[0][0]), bounds[0][1])
+            v[1] = min(max(v[1], bounds[1][0]), bounds[1][1])
+        return v
+
+    def f(z):
+        v = clip(np.array([x, y, yaw]) + z * scale)
+        sc, ev = _score_at(arm, points, s, v[0], v[1], h, v[2], tilt, q0=warm)
+        if sc > best["score"]:
+            best.update(score=sc, v=v, q=ev["q"][0])
+        return -sc
+
+    simplex = np.array([[0, 0, 0], [0.5, 0, 0], [0, 0.5, 0], [0, 0, 0.5]], float)
+    res = minimize(f, np.zeros(3), method="Nelder-Mead",
+                   options={"initial_simplex": simplex, "maxfev": int(maxfev), "xatol": 1e-5, "fatol": 1e-12})
+    v = best["v"]
+    return {"x": float(v[0]), "y": float(v[1]), "yaw": float(v[2]), "score": float(best["score"]),
+            "start_score": float(start_score), "evaluations": int(res.nfev), "q": best["q"]}
+
+
+def sensitivity(arm, points, s: MountSettings, x, y, h, yaw, tilt, q0=None,
+                offsets_xy=(0.01, 0.02), offsets_yaw=(1 * _DEG, 2 * _DEG)) -> dict:
+    """Score drop when the base is placed off by the given offsets.
+
+    For each position offset d the base is moved by d along +x, -x, +y, -y and the lowest of the
+    four scores is kept; for each yaw offset the base is turned by +-d.
+
+    Returns
+    -------
+    dict with ``score`` (nominal) and ``rows``: list of (kind, offset in mm or deg, worst score, drop).
+    """
+    nominal, ev = _score_at(arm, points, s, x, y, h, yaw, tilt, q0=q0)
+    warm = ev["q"]
+    rows = []
+    for d in offsets_xy:
+        moves = [(d, 0), (-d, 0), (0, d), (0, -d)]
+        M = np.stack([mount_transforms(x + dx, y + dy, h, yaw, tilt) for dx, dy in moves])
+        e = evaluate_mounts(arm, M, points, s, q0=np.repeat(warm, len(moves), axis=0))
+        sc = score_candidates(e["reached"], e["measure"], e["margin"], s)["score"]
+        rows.append(("position", d * 1000.0, float(sc.min()), float(nominal - sc.min())))
+    for d in offsets_yaw:
+        M = np.stack([mount_transforms(x, y, h, yaw + sg * d, tilt) for sg in (1, -1)])
+        e = evaluate_mounts(arm, M, points, s, q0=np.repeat(warm, 2, axis=0))
+        sc = score_candidates(e["reached"], e["measure"], e["margin"], s)["score"]
+        rows.append(("yaw", d / _DEG, float(sc.min()), float(nominal - sc.min())))
+    return {"score": nominal, "rows": rows}
+
+
+# ----------------------------------------------------------------------------------------------
+# the study kind
+
+
+class MountSearch(StudyKind):
+    """Mount search over the cell's candidate region (see the module docstring)."""
+
+    name = "mount_search"
+    title = "mount search"
+    needs_cell = True
+
+    def default_settings(self, arm) -> dict:
+        return {"measure": "inverse_condition", "rows": "full", "seeds": 8, "reach_power": 2.0,
+                "measure_power": 1.0, "margin_power": 0.5, "refine": 3, "sensitivity": True}
+
+    def validate(self, settings, arm, cell, where="settings"):
+        if cell is None:
+            raise StudyError(f"{where}: a mount search needs a cell file ([study] cell)")
+        if cell.mount is None:
+            raise StudyError(f"{cell.path}: no [mount] table; a mount search needs the candidate region")
+        return _validate(settings or {}, arm, where)
+
+    def plan(self, spec, arm, cell, chunk_cells=None) -> Plan:
+        where = f"{spec.where}: [settings]"
+        s = self.validate(spec.settings, arm, cell, where)
+        reg = cell.mount
+        axes = (
+            Axis("style", np.arange(len(reg.tilts)), "", "mount style"),
+            Axis("height", reg.heights, "m", "base height"),
+            Axis("yaw", reg.yaws, "rad", "base yaw"),
+            Axis("y", reg.ys, "m", "base y"),
+            Axis("x", reg.xs, "m", "base x"),
+        )
+        P, n = len(cell.points), arm.n
+        formula = score_formula(s)
+        fields = (
+            Field("score", (), "float64", "", formula, kind="measure"),
+            Field("reached_fraction", (), "float64", "", "fraction of work points reached"),
+            Field("worst_measure", (), "float64", "",
+                  f"worst {s.measure.replace('_', ' ')} ({_rows_text(s.rows)} rows) over the reached work points"),
+            Field("min_margin", (), "float64", "", "smallest joint-limit margin over the reached work points"),
+            Field("point_reached", (P,), "uint8", "", "1 where that work point is reached", kind="other"),
+            Field("point_measure", (P,), "float64", "", "measure at each work point (0 if not reached)",
+                  kind="other"),
+            Field("q", (P, n), "float64", "rad", "IK solution of each work point", kind="pose"),
+        )
+        data = {"point_names": [p.name for p in cell.points], "tilts": reg.tilts, "styles": list(reg.styles),
+                "formula": formula, "arm_model": arm.model, "points": tuple(cell.points),
+                "step_x": float(reg.xs[1] - reg.xs[0]) if len(reg.xs) > 1 else 0.05,
+                "step_y": float(reg.ys[1] - reg.ys[0]) if len(reg.ys) > 1 else 0.05,
+                "step_yaw": float(np.min(np.diff(np.sort(reg.yaws)))) if len(reg.yaws) > 1 else 10 * _DEG,
+                "bounds": ((float(reg.xs[0]), float(reg.xs[-1])), (float(reg.ys[0]), float(reg.ys[-1])))}
+        cc = chunk_cells or max(1, 4096 // max(P, 1))
+        return Plan(self.name, spec, s, axes, fields, chunk_cells=cc, data=data)
+
+    def compute_chunk(self, plan, arm, cell, chunk) -> dict:
+        s = plan.settings
+        idx = np.arange(chunk.start, chunk.stop)
+        si, hi, yi, yyi, xi = np.unravel_index(idx, plan.shape)
+        ax = {a.name: a.values for a in plan.axes}
+        M = mount_transforms(ax["x"][xi], ax["y"][yyi], ax["height"][hi], ax["yaw"][yi], plan.data["tilts"][si])
+        points = plan.data["points"]
+        ev = evaluate_mounts(arm, M, points, s)
+        sc = score_candidates(ev["reached"], ev["measure"], ev["margin"], s)
+        return {"score": sc["score"], "reached_fraction": sc["reached_fraction"],
+                "worst_measure": sc["worst_measure"], "min_margin": sc["min_margin"],
+                "point_reached": ev["reached"].astype(np.uint8), "point_measure": ev["measure"],
+                "q": ev["q"]}
+
+    def summarise(self, plan, arrays) -> dict:
+        return summarise_mount_search(plan, arrays)
+
+
+def summarise_mount_search(plan, arrays, top: int = 20) -> dict:
+    """Ranking table, refined candidates, sensitivity and per-point table of the best mount."""
+    from ..kinematics import Arm
+
+    s = plan.settings
+    ax = {a.name: a.values for a in plan.axes}
+    styles = plan.data["styles"]
+    score = np.asarray(arrays["score"], float).reshape(-1)
+    done = np.isfinite(score)
+    order = np.argsort(-np.where(done, score, -np.inf), kind="stable")[: min(top, int(done.sum()))]
+    si, hi, yi, yyi, xi = np.unravel_index(order, plan.shape)
+    formula = plan.data["formula"]
+    f = np.asarray(arrays["reached_fraction"]).reshape(-1)
+    w = np.asarray(arrays["worst_measure"]).reshape(-1)
+    mm = np.asarray(arrays["min_margin"]).reshape(-1)
+    tables = {"ranking": Table(
+        "Mount ranking (grid)",
+        {"rank": np.arange(1, len(order) + 1), "x": ax["x"][xi] * 1000, "y": ax["y"][yyi] * 1000,
+         "height": ax["height"][hi] * 1000, "yaw": np.degrees(ax["yaw"][yi]),
+         "style": np.array([styles[k] for k in si], dtype=object),
+         "reached": f[order] * 100, "worst_measure": w[order], "min_margin": mm[order], "score": score[order]},
+        {"x": "mm", "y": "mm", "height": "mm", "yaw": "deg", "reached": "%"},
+        formula)}
+    if not len(order) or score[order[0]] <= 0:
+        return tables
+    arm = Arm(plan.data["arm_model"])
+    points = plan.data["points"]
+    qall = np.asarray(arrays["q"], float).reshape((-1,) + (len(points), arm.n))
+    refined = []
+    seen = []
+    for k in order:
+        if len(refined) >= s.refine:
+            break
+        a, b, c, d, e = np.unravel_index(k, plan.shape)
+        key = (a, b, ax["x"][e], ax["y"][d], ax["yaw"][c])
+        if any(key[:2] == t[:2] and abs(key[2] - t[2]) <= 1.01 * plan.data["step_x"]
+               and abs(key[3] - t[3]) <= 1.01 * plan.data["step_y"] and key[4] == t[4] for t in seen):
+            continue  # a neighbour of a candidate already refined
+        seen.append(key)
+        r = refine_candidate(arm, points, s, ax["x"][e], ax["y"][d], ax["height"][b], ax["yaw"][c],
+                             plan.data["tilts"][a], max(plan.data["step_x"], plan.data["step_y"]),
+                             plan.data["step_yaw"], bounds=plan.data["bounds"], q0=qall[k][None])
+        r.update(style=styles[a], height=float(ax["height"][b]), tilt=float(plan.data["tilts"][a]))
+        refined.append(r)
+    refined.sort(key=lambda r: -r["score"])
+    tables["refined"] = Table(
+        "Refined mounts (off the grid, Nelder-Mead over x, y, yaw)",
+        {"rank": np.arange(1, len(refined) + 1), "x": np.array([r["x"] for r in refined]) * 1000,
+         "y": np.array([r["y"] for r in refined]) * 1000, "height": np.array([r["height"] for r in refined]) * 1000,
+         "yaw": np.degrees([r["yaw"] for r in refined]), "style": np.array([r["style"] for r in refined], dtype=object),
+         "grid_score": np.array([r["start_score"] for r in refined]), "score": np.array([r["score"] for r in refined]),
+         "evaluations": np.array([r["evaluations"] for r in refined])},
+        {"x": "mm", "y": "mm", "height": "mm", "yaw": "deg"}, formula)
+    best = refined[0]
+    if s.sensitivity:
+        sens = sensitivity(arm, points, s, best["x"], best["y"], best["height"], best["yaw"], best["tilt"],
+                           q0=best["q"][None])
+        rows = sens["rows"]
+        tables["sensitivity"] = Table(
+            "Sensitivity of the best mount to placement errors",
+            {"offset_kind": np.array([r[0] for r in rows], dtype=object), "offset": np.array([r[1] for r in rows]),
+             "offset_unit": np.array(["mm" if r[0] == "position" else "deg" for r in rows], dtype=object),
+             "worst_score": np.array([r[2] for r in rows]), "score_drop": np.array([r[3] for r in rows]),
+             "nominal_score": np.full(len(rows), sens["score"])},
+            {}, "worst score over +-x, +-y (position) or +-yaw offsets of the best refined mount")
+    ev = evaluate_mounts(arm, mount_transforms(best["x"], best["y"], best["height"], best["yaw"], best["tilt"])[None],
+                         points, s, q0=best["q"][None])
+    tables["best_points"] = Table(
+        "Work points from the best refined mount",
+        {"point": np.array([p.name for p in points], dtype=object), "reached": ev["reached"][0].astype(int),
+         "measure": ev["measure"][0], "margin": ev["margin"][0]}, {},
+        f"{s.measure.replace('_', ' ')} and joint-limit margin per work point")
+    return tables
+
+
+# ----------------------------------------------------------------------------------------------
+# bench
+
+
+def bench_mount_search(quick: bool = False) -> dict:
+    """20 x 20 floor positions x 8 yaws x 2 heights against 20 work points of the demo arm.
+
+    Bar (issue 4): the ~128 000 IK problems finish in under 60 s on this machine (quick: a 10 x 10
+    x 4 x 1 grid, the bar scaled to the same per-problem rate). Reference rate: the same IK run
+    one candidate at a time (batches of 20 targets) on a small sample of candidates.
+    """
+    from .. import load_arm
+    from ..bench import demo_arm_path
+    from .cell import MountRegion
+
+    arm = load_arm(demo_arm_path())
+    pts = demo_work_points(20)
+    nx, ny, nyaw, nh = (10, 10, 4, 1) if quick else (20, 20, 8, 2)
+    reg = MountRegion(np.linspace(-0.4, 0.4, nx), np.linspace(-0.4, 0.4, ny), np.array([0.0, 0.3])[:nh],
+                      np.linspace(0, 2 * np.pi, nyaw, endpoint=False), ("floor",), np.array([0.0]))
+    M = candidate_grid(reg).reshape(-1, 4, 4)
+    s = MountSettings(seeds=8)
+    evaluate_mounts(arm, M[:4], pts, s)  # warm / compile
+    t0 = time.perf_counter()
+    out = []
+    block = 512
+    for i in range(0, len(M), block):
+        ev = evaluate_mounts(arm, M[i:i + block], pts, s)
+        out.append(score_candidates(ev["reached"], ev["measure"], ev["margin"], s)["score"])
+    dt = time.perf_counter() - t0
+    problems = len(M) * len(pts)
+    sample = M[:: max(1, len(M) // 16)][:16]
+    t1 = time.perf_counter()
+    for Mk in sample:
+        evaluate_mounts(arm, Mk[None], pts, s)
+    ref_rate = len(sample) * len(pts) / (time.perf_counter() - t1)
+    rate = problems / dt
+    bar_s = 60.0 * problems / 128_000
+    scores = np.concatenate(out)
+    return {"name": "mount search", "metrics": {"candidates": len(M), "ik_problems": problems, "seconds": dt,
+                                                "problems_per_s": rate, "best_score": float(scores.max()),
+                                                "reached_any": float((scores > 0).mean())},
+            "ratios": {"batched_vs_per_candidate": rate / ref_rate},
+            "bars": {f"{problems} IK problems < {bar_s:.0f} s": [dt, bar_s, bool(dt < bar_s)]},
+            "notes": ["demo_s6, 20 work points (fixed tool-down orientation), 8 seeds per target"]}
+
+
+def demo_work_points(count: int = 20) -> tuple:
+    """``count`` invented work points (tool pointing down) spread over a table in front of a base
+    at the origin; used by the bench."""
+    from ..arm.transforms import make_transform
+
+    rng = np.random.default_rng(7)
+    xy = np.column_stack([rng.uniform(0.6, 1.1, count), rng.uniform(-0.5, 0.5, count)])
+    z = rng.uniform(0.2, 0.7, count)
+    return tuple(WorkPoint(f"p{i + 1}", make_transform([xy[i, 0], xy[i, 1], z[i]], [np.pi, 0, 0]), "fixed",
+                           1e-3, 0.5 * _DEG) for i in range(count))
