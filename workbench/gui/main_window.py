@@ -1,0 +1,664 @@
+"""The main window: arm panel, study panel, scene and linked result views, wired to one pose
+state and one shared selection. Opening files, running studies, exporting."""
+from __future__ import annotations
+
+import dataclasses
+import os
+import shutil
+import tempfile
+import time
+
+import numpy as np
+from PySide6 import QtCore, QtGui, QtWidgets
+
+from .. import __version__
+from ..errors import WorkbenchError
+from .arm_panel import ArmPanel
+from .cellview import CellContent, cell_content
+from .files import DEMO_ARM, FILE_FILTER, classify, find_demo_cell
+from .posestate import PoseState
+from .result_views import HistogramView, MapView, PoseListView
+from .resultdata import ResultData
+from .runs import StudySession, StudyWorker, session_from_results, session_from_spec
+from .scene import make_scene
+from .selection import Selection
+from .study_panel import StudyPanel
+
+__all__ = ["MainWindow", "ORG_NAME", "APP_NAME", "CAUTIONS"]
+
+ORG_NAME = "ManipulabilityWorkbench"
+APP_NAME = "Workbench"
+MAX_RECENT = 8
+MAX_GHOSTS = 12
+CAUTIONS = ("The maps are kinematic and static: they do not replace a risk assessment for a robot cell, "
+            "the arm maker's data, a check on the real controller, or local codes and licensed practice "
+            "(robot cell safety is governed by standards such as ISO 10218-1/-2).")
+
+
+def _load_arm(path):
+    from ..arm import read_arm_model
+    from ..kinematics import Arm
+
+    return Arm(read_arm_model(path))
+
+
+def _atomic_target(path):
+    """A temporary name beside ``path`` with the same extension (write there, then os.replace)."""
+    folder = os.path.dirname(os.path.abspath(path)) or "."
+    fd, tmp = tempfile.mkstemp(prefix=".~wb-", suffix=os.path.splitext(path)[1], dir=folder)
+    os.close(fd)
+    return tmp
+
+
+class MainWindow(QtWidgets.QMainWindow):
+    """The workbench window.
+
+    Parameters
+    ----------
+    settings : QSettings, optional
+        Where recent files, the window layout and the cautions flag live (tests pass their own).
+    """
+
+    def __init__(self, settings: QtCore.QSettings | None = None, load_demo=True):
+        super().__init__()
+        self.settings = settings if settings is not None else QtCore.QSettings(ORG_NAME, APP_NAME)
+        self.setWindowTitle("Manipulability Workbench")
+        self.arm_path = None
+        self.cell = None
+        self.cell_path = None
+        self.session: StudySession | None = None
+        self.result: ResultData | None = None
+        self.thread = None
+        self.worker = None
+        self.last_error = ""
+        self.error_box = None
+        self._closing = False
+        self.results_file = None
+        self.run_dir = None
+        self._run_count = 0
+        self.executor = "inprocess"
+
+        arm = _load_arm(DEMO_ARM)
+        self.arm_path = DEMO_ARM
+        self.state = PoseState(arm)
+        self.selection = Selection(0)
+
+        # ---- widgets ---------------------------------------------------------------------
+        self.scene, gl_note = make_scene(self)
+        self.map_view = MapView(self.selection)
+        self.hist_view = HistogramView(self.selection)
+        self.pose_list = PoseListView(self.selection)
+        self.result_tabs = QtWidgets.QTabWidget()
+        maps = QtWidgets.QSplitter(QtCore.Qt.Horizontal)
+        maps.addWidget(self.map_view)
+        maps.addWidget(self.hist_view)
+        maps.setSizes([620, 380])
+        self.result_tabs.addTab(maps, "Map and histogram")
+        self.result_tabs.addTab(self.pose_list, "Pose list")
+        scene_box = QtWidgets.QWidget()
+        sl = QtWidgets.QVBoxLayout(scene_box)
+        sl.setContentsMargins(0, 0, 0, 0)
+        vb = QtWidgets.QHBoxLayout()
+        vb.addWidget(QtWidgets.QLabel("View:"))
+        for name in ("iso", "top", "front", "side"):
+            b = QtWidgets.QPushButton(name)
+            b.clicked.connect(lambda _=False, n=name: self.scene.set_view(n))
+            vb.addWidget(b)
+        vb.addStretch(1)
+        self.scene_caption = QtWidgets.QLabel("blue: arm (red near a singularity) · purple: velocity "
+                                              "ellipsoid · orange: brushed poses · green: work points, paths")
+        self.scene_caption.setStyleSheet("color: #444")
+        vb.addWidget(self.scene_caption)
+        sl.addLayout(vb)
+        sl.addWidget(self.scene, 1)
+        self.central = QtWidgets.QSplitter(QtCore.Qt.Vertical)
+        self.central.setObjectName("central_splitter")
+        self.central.addWidget(scene_box)
+        self.central.addWidget(self.result_tabs)
+        self.central.setSizes([450, 450])
+        self.setCentralWidget(self.central)
+
+        self.arm_panel = ArmPanel(self.state)
+        self.arm_panel.error_reporter = self.show_error
+        self.study_panel = StudyPanel()
+        self.study_panel.set_estimator(self._estimate_text)
+        for title, w, area, name in (("Arm", self.arm_panel, QtCore.Qt.LeftDockWidgetArea, "arm_dock"),
+                                     ("Study", self.study_panel, QtCore.Qt.RightDockWidgetArea, "study_dock")):
+            dock = QtWidgets.QDockWidget(title, self)
+            dock.setObjectName(name)
+            scroll = QtWidgets.QScrollArea()
+            scroll.setWidgetResizable(True)
+            scroll.setWidget(w)
+            dock.setWidget(scroll)
+            dock.setMinimumWidth(360)
+            self.addDockWidget(area, dock)
+            setattr(self, name, dock)
+        self.resizeDocks([self.arm_dock, self.study_dock], [380, 400], QtCore.Qt.Horizontal)
+
+        self._build_menus()
+        self.status = self.statusBar()
+
+        # ---- wiring ----------------------------------------------------------------------
+        self.state.subscribe(self._state_changed)
+        self.selection.subscribe(self._selection_changed)
+        self.map_view.cell_picked.connect(self.pick_cell)
+        self.map_view.measure_changed.connect(lambda m: self.hist_view.set_measure(m, self.state.threshold))
+        self.pose_list.cell_picked.connect(self.pick_cell)
+        self.study_panel.run_requested.connect(self.start_run)
+        self.study_panel.cancel_requested.connect(self.cancel_run)
+        self.study_panel.save_requested.connect(self.save_study_dialog)
+        self.study_panel.load_requested.connect(lambda: self.open_dialog("Load a study file"))
+        self._refresh_timer = QtCore.QTimer(self)
+        self._refresh_timer.setSingleShot(True)
+        self._refresh_timer.setInterval(150)
+        self._refresh_timer.timeout.connect(self._refresh_results)
+
+        if load_demo:
+            demo_cell = find_demo_cell()
+            if demo_cell:
+                try:
+                    self._apply_cell(demo_cell)
+                except WorkbenchError as exc:
+                    self.status.showMessage(f"demo cell not loaded: {exc}", 10000)
+        self._arm_changed()
+        self.restore_layout()
+        if gl_note:
+            self.status.showMessage(gl_note, 15000)
+        self.gl_note = gl_note
+
+    # ---- menus ---------------------------------------------------------------------------
+    def _build_menus(self):
+        mb = self.menuBar()
+        f = mb.addMenu("&File")
+        a = f.addAction("&Open…", lambda: self.open_dialog())
+        a.setShortcut(QtGui.QKeySequence.Open)
+        self.recent_menu = f.addMenu("Open &recent")
+        self.recent_menu.aboutToShow.connect(self._fill_recent)
+        f.addAction("Open the &demo arm", lambda: self.open_file(DEMO_ARM))
+        f.addSeparator()
+        f.addAction("&Save study…", self.save_study_dialog)
+        f.addSeparator()
+        e = f.addMenu("&Export")
+        e.addAction("Map image (PNG or SVG)…", self.export_map_dialog)
+        e.addAction("Pose list (CSV)…", self.export_csv_dialog)
+        e.addAction("Results file (HDF5)…", self.export_results_dialog)
+        e.addAction("Layout report (PDF or HTML)…", self.export_report_dialog)
+        f.addSeparator()
+        q = f.addAction("&Quit", self.close)
+        q.setShortcut(QtGui.QKeySequence.Quit)
+        v = mb.addMenu("&View")
+        for name in ("iso", "top", "front", "side"):
+            v.addAction(f"{name.capitalize()} view", lambda n=name: self.scene.set_view(n))
+        v.addSeparator()
+        v.addAction("Clear brush", lambda: self.selection.clear(source="menu"))
+        h = mb.addMenu("&Help")
+        h.addAction("&About and cautions", self.show_about)
+
+    # ---- errors and messages -------------------------------------------------------------
+    def show_error(self, message: str):
+        """One-line message in the status bar and a (non-blocking) dialog; state stays as it was."""
+        self.last_error = message
+        self.status.showMessage(f"error: {message}", 15000)
+        if self.error_box is not None:
+            self.error_box.close()
+        box = QtWidgets.QMessageBox(QtWidgets.QMessageBox.Warning, "Workbench", message,
+                                    QtWidgets.QMessageBox.Ok, self)
+        box.setModal(False)
+        box.show()
+        self.error_box = box
+
+    # ---- files ---------------------------------------------------------------------------
+    def open_dialog(self, title="Open a file"):
+        start = self.settings.value("last_dir", os.getcwd())
+        path, _ = QtWidgets.QFileDialog.getOpenFileName(self, title, str(start), FILE_FILTER)
+        if path:
+            self.open_file(path)
+
+    def open_file(self, path) -> bool:
+        """Open an arm, URDF, cell, study or results file. A bad file: message, nothing changes."""
+        path = os.fspath(path)
+        try:
+            kind = classify(path)
+            if self.running and kind in ("arm", "urdf", "cell", "study", "results"):
+                raise WorkbenchError("a study is running: cancel it before opening another file")
+            if kind in ("arm", "urdf"):
+                self._apply_arm(path)
+            elif kind == "cell":
+                self._apply_cell(path)
+                self._arm_changed(keep_arm=True)
+            elif kind == "study":
+                self._apply_study(path)
+            else:
+                self._apply_results(path)
+        except WorkbenchError as exc:
+            self.show_error(str(exc))
+            return False
+        except OSError as exc:
+            self.show_error(f"{path}: {exc.strerror or exc}")
+            return False
+        self._add_recent(path)
+        self.settings.setValue("last_dir", os.path.dirname(os.path.abspath(path)))
+        self.status.showMessage(f"opened {kind} file {path}", 8000)
+        return True
+
+    def _apply_arm(self, path):
+        arm = _load_arm(path)            # raises before anything changes
+        self.arm_path = os.path.abspath(path)
+        self._set_arm(arm)
+
+    def _set_arm(self, arm):
+        if self.cell is not None and getattr(self.cell, "placement", None) is not None:
+            model = dataclasses.replace(arm.model, mount=np.asarray(self.cell.placement, float))
+            from ..kinematics import Arm
+
+            arm = Arm(model)
+        self.state.set_arm(arm)
+
+    def _apply_cell(self, path):
+        from ..studies.cell import read_cell_file
+
+        cell = read_cell_file(path)
+        content = cell_content(cell)
+        self.cell, self.cell_path = cell, os.path.abspath(path)
+        self.cell_content = content
+        self.scene.set_cell(content)
+
+    def _apply_study(self, path):
+        from ..studies import load_context, read_study_file
+
+        spec = read_study_file(path)
+        arm, cell, _, _ = load_context(spec)
+        session_from_spec(spec, arm, cell)  # plan now: bad settings fail before anything changes
+        if cell is not None:
+            self.cell, self.cell_path = cell, spec.cell_path
+            self.cell_content = cell_content(cell)
+            self.scene.set_cell(self.cell_content)
+        self.arm_path = spec.arm_path
+        self._set_arm(arm)
+        self.study_panel.load_spec(spec)
+
+    def _apply_results(self, path):
+        from ..results import read_results
+
+        res = read_results(path)                 # raises a one-line error for a bad file
+        session = session_from_results(res)      # ... and so does a file whose study cannot be re-planned
+        self.session = session
+        self.results_file = os.path.abspath(path)
+        if session.cell is not None:
+            self.cell, self.cell_path = session.cell, session.spec.cell_path
+            self.cell_content = cell_content(session.cell)
+            self.scene.set_cell(self.cell_content)
+        self.arm_path = session.spec.arm_path
+        self._set_arm(session.arm)
+        self.show_result(session.data)
+        self.status.showMessage(f"results of {session.spec.name}: {100 * session.data.fraction_done:.0f}% of "
+                                f"the cells computed" + (" (incomplete run)" if res.incomplete else ""), 10000)
+
+    def _add_recent(self, path):
+        path = os.path.abspath(path)
+        rec = [p for p in (self.settings.value("recent", []) or []) if p != path]
+        if isinstance(rec, str):
+            rec = [rec]
+        self.settings.setValue("recent", ([path] + rec)[:MAX_RECENT])
+
+    def recent_files(self) -> list:
+        rec = self.settings.value("recent", []) or []
+        return [rec] if isinstance(rec, str) else list(rec)
+
+    def _fill_recent(self):
+        self.recent_menu.clear()
+        for p in self.recent_files():
+            self.recent_menu.addAction(p, lambda p=p: self.open_file(p))
+        if not self.recent_files():
+            self.recent_menu.addAction("(none yet)").setEnabled(False)
+
+    # ---- arm state -----------------------------------------------------------------------
+    def _arm_changed(self, keep_arm=False):
+        self.arm_panel.rebuild()
+        self.study_panel.set_context(self.state.arm, self.arm_path, self.cell, self.cell_path)
+        self.scene.set_pose(self.state.info())
+        self.scene.set_ghosts(None)
+
+    def _state_changed(self, what):
+        if what == "arm":
+            self._arm_changed()
+            return
+        info = self.state.info()
+        self.arm_panel.refresh()
+        self.scene.set_pose(info)
+        if what == "settings":
+            self.map_view.set_threshold(self.state.threshold)
+            self.hist_view.set_threshold(self.state.threshold)
+            self.pose_list.model.threshold = self.state.threshold
+
+    # ---- runs ----------------------------------------------------------------------------
+    @property
+    def running(self) -> bool:
+        return self.thread is not None
+
+    def _estimate_text(self, spec):
+        sess = session_from_spec(spec)
+        est = sess.estimate()
+        return f"Estimate: {est.describe()}."
+
+    def start_run(self, spec):
+        """Plan ``spec`` on the current arm and cell and start computing it in the worker thread."""
+        if self.running:
+            self.show_error("a study is already running")
+            return False
+        try:
+            session = session_from_spec(spec)
+        except WorkbenchError as exc:
+            self.show_error(str(exc))
+            return False
+        self.session = session
+        self.results_file = None
+        self.show_result(session.data)
+        if self.run_dir is None:
+            self.run_dir = tempfile.mkdtemp(prefix="workbench-runs-")
+        self._run_count += 1
+        out = os.path.join(self.run_dir, f"run{self._run_count}.h5")
+        self.thread = QtCore.QThread(self)
+        self.worker = StudyWorker(spec, out, executor=self.executor)
+        self.worker.moveToThread(self.thread)
+        self.thread.started.connect(self.worker.run)
+        self.worker.chunk_finished.connect(self._on_chunk)
+        self.worker.progress.connect(self.study_panel.show_progress)
+        self.worker.finished.connect(self._on_finished)
+        self.study_panel.set_running(True)
+        self._run_t0 = time.perf_counter()
+        self.thread.start()
+        self.status.showMessage(f"running {spec.name}: {session.plan.cells:,} cells", 5000)
+        return True
+
+    def cancel_run(self):
+        if self.worker is not None:
+            self.worker.cancel()
+            self.status.showMessage("cancelling: the finished chunks are kept", 5000)
+
+    def _on_chunk(self, start, stop, arrays):
+        if self.session is None or self.worker is None:
+            return
+        self.session.store(start, stop, arrays)
+        if not self._refresh_timer.isActive():
+            self._refresh_timer.start()
+
+    def _refresh_results(self):
+        if self.result is None:
+            return
+        self.map_view.refresh(final=not self.running)
+        self.hist_view.set_measure(self.map_view.measure or self.result.threshold_measure, self.state.threshold)
+        self.pose_list.refresh()
+        self._show_series()
+
+    def _on_finished(self, status, path=None):
+        thread, worker = self.thread, self.worker
+        if thread is not None:
+            thread.quit()
+            thread.wait(10000)
+        self.thread = None
+        self.worker = None
+        if worker is not None:
+            worker.deleteLater()
+        self._refresh_timer.stop()
+        self._refresh_results()
+        self.study_panel.show_finished(status)
+        if path:
+            self.results_file = path
+        if status.startswith("failed"):
+            self.show_error(status)
+        elif not self._closing:
+            took = time.perf_counter() - self._run_t0
+            done = self.result.fraction_done if self.result is not None else 0
+            self.status.showMessage(f"study {status} in {took:.1f} s; {100 * done:.0f}% of the cells computed", 10000)
+            self._show_tables()
+        if thread is not None:
+            thread.deleteLater()
+
+    def stop_run(self, timeout_ms=10000) -> bool:
+        """Cancel a run and wait for its thread to end (closing the window does this)."""
+        if self.thread is None:
+            return True
+        self.worker.cancel()
+        thread = self.thread
+        thread.quit()          # the worker's loop ends at the next chunk; then the thread's loop ends
+        ok = thread.wait(timeout_ms)
+        # deliver the queued finished/chunk signals now so nothing arrives after the window is gone
+        QtCore.QCoreApplication.sendPostedEvents(None, 0)
+        QtWidgets.QApplication.processEvents()
+        if self.thread is not None:   # finished signal not delivered yet
+            self.thread = None
+            self.worker = None
+        return ok
+
+    # ---- results -------------------------------------------------------------------------
+    def show_result(self, data: ResultData):
+        self.result = data
+        self.selection.resize(data.size)
+        self.pose_list.model.threshold = self.state.threshold
+        if data.is_map:
+            self.map_view.set_result(data)
+            self.map_view.set_threshold(self.state.threshold)
+        else:
+            self.map_view.data = data
+        self.hist_view.set_result(data, data.threshold_measure)
+        self.pose_list.set_result(data)
+        self._show_series()
+        self.scene.set_ghosts(None)
+
+    def _show_series(self):
+        """Series results (no 2D grid): the map area shows the measure along the series axis."""
+        d = self.result
+        if d is None or d.is_map:
+            return
+        from .series import show_series
+
+        show_series(self.map_view, d, self.state.threshold)
+
+    def _show_tables(self):
+        pass
+
+    def _selection_changed(self, sel, source, final):
+        if not final or self.result is None or sel.size != self.result.size:
+            return
+        if not sel.active or sel.count == 0 or not self.result.has_poses:
+            self.scene.set_ghosts(None)
+            if sel.active:
+                self.status.showMessage(f"{sel.count} cells brushed", 5000)
+            return
+        idx = sel.indices()
+        idx = idx[self.result.done[idx]]
+        if idx.size > MAX_GHOSTS:
+            idx = idx[np.linspace(0, idx.size - 1, MAX_GHOSTS).round().astype(np.int64)]
+        q = self.result.poses(idx)
+        q = q[np.all(np.isfinite(q), axis=1)] if q is not None else None
+        self.scene.set_ghosts(self.state.link_points(q) if q is not None and len(q) else None)
+        self.status.showMessage(f"{sel.count} cells brushed; {0 if q is None else len(q)} shown as ghost arms", 5000)
+
+    def pick_cell(self, c):
+        """Pose the arm at result cell ``c``: sliders, measures, scene and ellipsoid follow."""
+        d = self.result
+        if d is None or not d.has_poses or not d.done[c]:
+            self.status.showMessage("no pose behind this cell yet", 4000)
+            return False
+        q = d.poses([c])[0]
+        if not np.all(np.isfinite(q)):
+            self.status.showMessage("no pose behind this cell (not reached)", 4000)
+            return False
+        self.state.set_q(q)
+        x, y = d.cell_xy(c)
+        self.status.showMessage(f"cell {c} ({d.x_label} {x:.4g}" + (f", {d.y_label} {y:.4g}" if y is not None else "")
+                                + ")", 6000)
+        return True
+
+    # ---- export --------------------------------------------------------------------------
+    def _ask_save(self, title, filt, default):
+        start = os.path.join(str(self.settings.value("last_dir", os.getcwd())), default)
+        path, _ = QtWidgets.QFileDialog.getSaveFileName(self, title, start, filt)
+        return path
+
+    def export_map_dialog(self):
+        p = self._ask_save("Export the map", "PNG image (*.png);;SVG drawing (*.svg)", "map.png")
+        if p:
+            self._guard(self.export_map, p)
+
+    def export_csv_dialog(self):
+        p = self._ask_save("Export the pose list", "CSV (*.csv)", "poses.csv")
+        if p:
+            self._guard(self.export_csv, p)
+
+    def export_results_dialog(self):
+        p = self._ask_save("Save the results file", "HDF5 results (*.h5)", "results.h5")
+        if p:
+            self._guard(self.export_results, p)
+
+    def export_report_dialog(self):
+        if not self.confirm_cautions():
+            return
+        p = self._ask_save("Export the layout report", "PDF (*.pdf);;HTML (*.html)", "report.pdf")
+        if p:
+            self._guard(self.export_report, p)
+
+    def _guard(self, fn, *a):
+        try:
+            fn(*a)
+            self.status.showMessage(f"wrote {a[0]}", 8000)
+            return True
+        except WorkbenchError as exc:
+            self.show_error(str(exc))
+        except OSError as exc:
+            self.show_error(f"{a[0]}: {exc.strerror or exc}")
+        return False
+
+    def export_map(self, path):
+        """The map (with colour bar and axes) as PNG or SVG."""
+        import pyqtgraph.exporters as ex
+
+        if self.result is None:
+            raise WorkbenchError("no result to export: run a study or open a results file first")
+        ext = os.path.splitext(path)[1].lower()
+        if ext not in (".png", ".svg"):
+            raise WorkbenchError(f"{path}: expected a .png or .svg file name")
+        item = self.map_view.plot.getPlotItem().scene()
+        tmp = _atomic_target(path)
+        try:
+            exp = ex.SVGExporter(item) if ext == ".svg" else ex.ImageExporter(item)
+            if ext == ".png":
+                exp.parameters()["width"] = max(1200, int(self.map_view.plot.width()))
+            exp.export(tmp)
+            os.replace(tmp, path)
+        finally:
+            if os.path.exists(tmp):
+                os.unlink(tmp)
+
+    def export_csv(self, path):
+        """The pose list as shown (brushed rows, or all finished cells), in screen units."""
+        from .result_views import PoseTableModel
+
+        m: PoseTableModel = self.pose_list.model
+        if m.data_ is None:
+            raise WorkbenchError("no pose list to export: run a study or open a results file first")
+        tmp = _atomic_target(path)
+        try:
+            cols = m.columns
+            order = m.order
+            arrays = []
+            for c in range(len(cols)):
+                key = cols[c][1]
+                if key == "note":
+                    continue
+                v = m.column_values(c)[order]
+                if isinstance(key, tuple) and key[0] == "q":
+                    v = np.degrees(v) if key[2] == "revolute" else v * 1000.0
+                arrays.append(v.astype(float))
+            head = [cols[c][0] for c in range(len(cols)) if cols[c][1] != "note"]
+            table = np.column_stack(arrays) if arrays else np.zeros((0, 0))
+            with open(tmp, "w", encoding="utf-8") as fh:
+                fh.write(",".join(f'"{h}"' for h in head) + "\n")
+                np.savetxt(fh, table, delimiter=",", fmt="%.10g")
+            os.replace(tmp, path)
+        finally:
+            if os.path.exists(tmp):
+                os.unlink(tmp)
+
+    def export_results(self, path):
+        """A copy of the results file behind the views (the run's file, or the one opened)."""
+        if not self.results_file or not os.path.exists(self.results_file):
+            raise WorkbenchError("no results file yet: run a study (and let it finish or cancel it) "
+                                 "or open a results file")
+        if os.path.isdir(path):
+            raise WorkbenchError(f"{path} is a folder; expected a results file name (.h5)")
+        tmp = _atomic_target(path)
+        try:
+            shutil.copyfile(self.results_file, tmp)
+            os.replace(tmp, path)
+        finally:
+            if os.path.exists(tmp):
+                os.unlink(tmp)
+
+    def export_report(self, path):
+        """The layout report (PDF or HTML) of the results file behind the views."""
+        from .resultfile import write_report
+
+        if not self.results_file or not os.path.exists(self.results_file):
+            raise WorkbenchError("no results for a report: run a study or open a results file first")
+        write_report(self.results_file, path)
+
+    # ---- cautions ------------------------------------------------------------------------
+    def confirm_cautions(self) -> bool:
+        """Show the cautions once (remembered) before the first report export."""
+        if self.settings.value("cautions_shown", False, type=bool):
+            return True
+        box = QtWidgets.QMessageBox(QtWidgets.QMessageBox.Information, "Before you export a report",
+                                    CAUTIONS, QtWidgets.QMessageBox.Ok | QtWidgets.QMessageBox.Cancel, self)
+        if box.exec() != QtWidgets.QMessageBox.Ok:
+            return False
+        self.settings.setValue("cautions_shown", True)
+        return True
+
+    def show_about(self):
+        QtWidgets.QMessageBox.about(
+            self, "About the Manipulability Workbench",
+            f"<b>Manipulability Workbench {__version__}</b><p>Maps Jacobian measures of robot arms over "
+            f"joint space, cell slices, mount spots and paths.</p><p><b>Cautions.</b> {CAUTIONS}</p>")
+
+    # ---- study files ---------------------------------------------------------------------
+    def save_study_dialog(self):
+        p = self._ask_save("Save the study", "Study file (*.toml)", "study.toml")
+        if p:
+            self._guard(self.save_study, p)
+
+    def save_study(self, path):
+        from ..studies import write_study_file
+
+        if not self.study_panel.check():
+            raise WorkbenchError("the study settings are not valid: fix the marked fields first")
+        write_study_file(self.study_panel.spec(), path)
+
+    # ---- layout --------------------------------------------------------------------------
+    def restore_layout(self):
+        geo = self.settings.value("geometry")
+        if geo is not None:
+            self.restoreGeometry(geo)
+        else:
+            self.resize(1500, 950)
+        st = self.settings.value("window_state")
+        if st is not None:
+            self.restoreState(st)
+        sp = self.settings.value("central_splitter")
+        if sp is not None:
+            self.central.restoreState(sp)
+
+    def save_layout(self):
+        self.settings.setValue("geometry", self.saveGeometry())
+        self.settings.setValue("window_state", self.saveState())
+        self.settings.setValue("central_splitter", self.central.saveState())
+        self.settings.sync()
+
+    def closeEvent(self, ev):
+        self._closing = True
+        self.stop_run()
+        self.save_layout()
+        if self.run_dir is not None:
+            shutil.rmtree(self.run_dir, ignore_errors=True)
+        super().closeEvent(ev)

@@ -1,0 +1,521 @@
+"""Linked result views: the map (heat map, colour bar, near-singular contour, rectangle brush),
+the histogram of the selected measure (range brush) and the pose list (lazy sortable table).
+
+All three read one :class:`~workbench.gui.resultdata.ResultData` and one
+:class:`~workbench.gui.selection.Selection`; a brush in any of them sets the selection and all of
+them redraw from it.
+"""
+from __future__ import annotations
+
+import numpy as np
+import pyqtgraph as pg
+from PySide6 import QtCore, QtGui, QtWidgets
+
+from .resultdata import MEASURE_LABELS, ResultData
+from .selection import Selection, range_mask, rect_mask, rows_mask
+
+__all__ = ["MapView", "HistogramView", "PoseTableModel", "PoseListView", "display_values", "measure_label"]
+
+HIST_BINS = 60
+SEL_RGBA = (255, 140, 0, 150)
+CONTOUR_MAX_CELLS = 250          # the contour is traced on a grid of at most this many cells a side
+LOG_MEASURES = ("condition",)
+
+
+def measure_label(name) -> str:
+    base = MEASURE_LABELS.get(name, name.replace("_", " "))
+    return f"log10 {base}" if name in LOG_MEASURES else base
+
+
+def display_values(data: ResultData, name) -> np.ndarray:
+    """(N,) values as shown: log10 for the condition number; inf -> NaN."""
+    v = data.measures[name]
+    if name in LOG_MEASURES:
+        with np.errstate(divide="ignore", invalid="ignore"):
+            v = np.log10(v)
+    return np.where(np.isfinite(v), v, np.nan)
+
+
+def _finite_range(v):
+    f = v[np.isfinite(v)]
+    if f.size == 0:
+        return 0.0, 1.0
+    lo, hi = float(f.min()), float(f.max())
+    if hi <= lo:
+        hi = lo + (abs(lo) * 1e-3 or 1.0)
+    return lo, hi
+
+
+class MapView(QtWidgets.QWidget):
+    """Heat map of one measure over a 2D result grid with a rectangle brush.
+
+    Signals
+    -------
+    cell_picked(int)
+        A click on the map picked this flat cell.
+    """
+
+    cell_picked = QtCore.Signal(int)
+    measure_changed = QtCore.Signal(str)
+
+    def __init__(self, selection: Selection, parent=None):
+        super().__init__(parent)
+        self.selection = selection
+        self.data: ResultData | None = None
+        self.threshold = 0.05
+        lay = QtWidgets.QVBoxLayout(self)
+        lay.setContentsMargins(0, 0, 0, 0)
+        bar = QtWidgets.QHBoxLayout()
+        bar.addWidget(QtWidgets.QLabel("Measure"))
+        self.measure_combo = QtWidgets.QComboBox()
+        self.measure_combo.currentIndexChanged.connect(self._measure_chosen)
+        bar.addWidget(self.measure_combo)
+        self.brush_btn = QtWidgets.QPushButton("Brush rectangle")
+        self.brush_btn.setCheckable(True)
+        self.brush_btn.setToolTip("Show a rectangle on the map; drag it or its corner to brush cells")
+        self.brush_btn.toggled.connect(self._toggle_roi)
+        bar.addWidget(self.brush_btn)
+        self.clear_btn = QtWidgets.QPushButton("Clear brush")
+        self.clear_btn.clicked.connect(lambda: self.selection.clear(source="map"))
+        bar.addWidget(self.clear_btn)
+        bar.addStretch(1)
+        self.legend = QtWidgets.QLabel("")
+        self.legend.setStyleSheet("color: #333")
+        bar.addWidget(self.legend)
+        lay.addLayout(bar)
+
+        self.plot = pg.PlotWidget()
+        self.plot.setBackground("w")
+        lay.addWidget(self.plot, 1)
+        self.image = pg.ImageItem(axisOrder="row-major")
+        self.plot.addItem(self.image)
+        self.overlay = pg.ImageItem(axisOrder="row-major")
+        self.overlay.setZValue(5)
+        self.overlay.setParentItem(self.image)
+        self._lut = np.array([[0, 0, 0, 0], list(SEL_RGBA)], dtype=np.ubyte)
+        self.contour = pg.IsocurveItem(pen=pg.mkPen((255, 255, 255), width=2), axisOrder="row-major")
+        self.contour.setParentItem(self.image)
+        self.contour.setZValue(10)
+        self.contour_shadow = pg.IsocurveItem(pen=pg.mkPen((0, 0, 0), width=4), axisOrder="row-major")
+        self.contour_shadow.setParentItem(self.image)
+        self.contour_shadow.setZValue(9)
+        self.cbar = pg.ColorBarItem(colorMap=pg.colormap.get("viridis"), interactive=False, width=18)
+        self.cbar.setImageItem(self.image, insert_in=self.plot.getPlotItem())
+        for ax in (self.plot.getAxis("bottom"), self.plot.getAxis("left"), self.cbar.axis):
+            ax.enableAutoSIPrefix(False)
+        self.roi = None
+        self._contour_stride = 1
+        self.plot.scene().sigMouseClicked.connect(self._clicked)
+        selection.subscribe(self._on_selection)
+
+    # ---- data ----------------------------------------------------------------------------
+    @property
+    def measure(self) -> str:
+        return self.measure_combo.currentData() or ""
+
+    def set_result(self, data: ResultData):
+        self.data = data
+        self.measure_combo.blockSignals(True)
+        self.measure_combo.clear()
+        for m in data.measure_names:
+            self.measure_combo.addItem(measure_label(m), m)
+        pref = data.threshold_measure if data.threshold_measure in data.measures else data.measure_names[0]
+        self.measure_combo.setCurrentIndex(data.measure_names.index(pref))
+        self.measure_combo.blockSignals(False)
+        ny, nx = data.shape
+        dx = (data.x[-1] - data.x[0]) / max(nx - 1, 1) if nx > 1 else 1.0
+        dy = (data.y[-1] - data.y[0]) / max(ny - 1, 1) if ny > 1 else 1.0
+        self._rect = QtCore.QRectF(data.x[0] - dx / 2, data.y[0] - dy / 2, dx * nx, dy * ny)
+        self.plot.setLabel("bottom", data.x_label)
+        self.plot.setLabel("left", data.y_label)
+        self.plot.setTitle(data.title or data.kind)
+        self._toggle_roi(False)
+        self.brush_btn.setChecked(False)
+        self.overlay.clear()
+        self.refresh(final=True)
+        self.image.setRect(self._rect)
+        self.plot.getPlotItem().vb.autoRange(padding=0.02)
+
+    def set_threshold(self, t):
+        self.threshold = float(t)
+        self._update_contour()
+
+    def refresh(self, final=True):
+        """Redraw the image (new chunks or another measure); the contour when ``final``."""
+        d = self.data
+        if d is None or not d.is_map:
+            return
+        v = display_values(d, self.measure).reshape(d.shape)
+        lo, hi = _finite_range(v)
+        self.image.setImage(v, autoLevels=False, levels=(lo, hi))
+        self.image.setRect(self._rect)
+        self.cbar.setLevels((lo, hi))
+        self.cbar.axis.setLabel(measure_label(self.measure))
+        if final:
+            self._update_contour()
+
+    def _update_contour(self):
+        d = self.data
+        if d is None or not d.is_map or "inverse_condition" not in d.measures:
+            self.contour.setData(None)
+            self.contour_shadow.setData(None)
+            self.legend.setText("")
+            return
+        g = d.grid("inverse_condition")
+        s = max(1, int(np.ceil(max(g.shape) / CONTOUR_MAX_CELLS)))
+        sub = np.nan_to_num(g[::s, ::s], nan=1.0)
+        tr = QtGui.QTransform()
+        tr.translate(0.5 * (s - 1) + 0.5, 0.5 * (s - 1) + 0.5)
+        tr.scale(s, s)
+        tr.translate(-0.5, -0.5)
+        for item in (self.contour, self.contour_shadow):
+            item.setData(sub, level=self.threshold)
+            item.setTransform(tr)
+        self.legend.setText(f"white line: 1/k = {self.threshold:g} (near-singular side is below); "
+                            f"orange: brushed")
+
+    def _measure_chosen(self, _i):
+        self.refresh(final=False)
+        self.measure_changed.emit(self.measure)
+
+    # ---- brushing ------------------------------------------------------------------------
+    def _toggle_roi(self, on):
+        if on and self.data is not None and self.data.is_map and self.roi is None:
+            r = self._rect
+            self.roi = pg.RectROI([r.x() + r.width() * 0.3, r.y() + r.height() * 0.3],
+                                  [r.width() * 0.3, r.height() * 0.3], pen=pg.mkPen((255, 140, 0), width=2))
+            self.roi.setZValue(20)
+            self.plot.addItem(self.roi)
+            self.roi.sigRegionChanged.connect(lambda *_: self._roi_moved(False))
+            self.roi.sigRegionChangeFinished.connect(lambda *_: self._roi_moved(True))
+            self._roi_moved(True)
+        elif not on and self.roi is not None:
+            self.plot.removeItem(self.roi)
+            self.roi = None
+
+    def brush_rect(self, x0, x1, y0, y1, final=True):
+        """Brush the cells whose centres lie in [x0, x1] x [y0, y1] (axis units)."""
+        d = self.data
+        self.selection.set_mask(rect_mask(d.x, d.y, x0, x1, y0, y1), source="map", final=final)
+
+    def _roi_moved(self, final):
+        if self.roi is None:
+            return
+        p, s = self.roi.pos(), self.roi.size()
+        self.brush_rect(p.x(), p.x() + s.x(), p.y(), p.y() + s.y(), final=final)
+
+    def _on_selection(self, sel, source, final):
+        if self.data is None or not self.data.is_map or sel.size != self.data.size:
+            return
+        if not sel.active:
+            self.overlay.clear()
+            return
+        m = sel.mask.reshape(self.data.shape).view(np.uint8)
+        self.overlay.setImage(m, levels=(0, 1), lut=self._lut, autoLevels=False)
+        self.overlay.setRect(QtCore.QRectF(0, 0, self.data.shape[1], self.data.shape[0]))
+
+    def _clicked(self, ev):
+        d = self.data
+        if d is None or not d.is_map or ev.button() != QtCore.Qt.LeftButton:
+            return
+        p = self.image.mapFromScene(ev.scenePos())
+        i, j = int(np.floor(p.x())), int(np.floor(p.y()))
+        if 0 <= i < d.shape[1] and 0 <= j < d.shape[0]:
+            self.cell_picked.emit(j * d.shape[1] + i)
+
+
+class HistogramView(QtWidgets.QWidget):
+    """Histogram of the selected measure: all finished cells (grey) and brushed cells (orange);
+    a draggable range brushes by value."""
+
+    def __init__(self, selection: Selection, parent=None):
+        super().__init__(parent)
+        self.selection = selection
+        self.data = None
+        self.measure = ""
+        lay = QtWidgets.QVBoxLayout(self)
+        lay.setContentsMargins(0, 0, 0, 0)
+        bar = QtWidgets.QHBoxLayout()
+        self.range_btn = QtWidgets.QPushButton("Brush value range")
+        self.range_btn.setCheckable(True)
+        self.range_btn.toggled.connect(self._toggle_region)
+        bar.addWidget(self.range_btn)
+        self.info = QtWidgets.QLabel("")
+        bar.addWidget(self.info, 1)
+        lay.addLayout(bar)
+        self.plot = pg.PlotWidget()
+        self.plot.setBackground("w")
+        self.plot.setLabel("left", "cells")
+        for ax in ("bottom", "left"):
+            self.plot.getAxis(ax).enableAutoSIPrefix(False)
+        lay.addWidget(self.plot, 1)
+        self.all_item = pg.PlotDataItem(stepMode="center", fillLevel=0, brush=(150, 150, 150, 160),
+                                        pen=pg.mkPen((110, 110, 110)), name="all finished cells")
+        self.sel_item = pg.PlotDataItem(stepMode="center", fillLevel=0, brush=SEL_RGBA,
+                                        pen=pg.mkPen((220, 110, 0)), name="brushed cells")
+        legend = self.plot.addLegend(offset=(-10, 10))
+        self.plot.addItem(self.all_item)
+        self.plot.addItem(self.sel_item)
+        self.thr_line = pg.InfiniteLine(angle=90, pen=pg.mkPen((200, 0, 0), style=QtCore.Qt.DashLine))
+        self.plot.addItem(self.thr_line)
+        self.thr_line.hide()
+        self.region = None
+        self.edges = np.linspace(0, 1, HIST_BINS + 1)
+        self.bin_index = None
+        self.sel_counts = np.zeros(HIST_BINS, dtype=np.int64)
+        self.all_counts = np.zeros(HIST_BINS, dtype=np.int64)
+        selection.subscribe(self._on_selection)
+
+    def set_result(self, data: ResultData, measure: str):
+        self.data = data
+        self._toggle_region(False)
+        self.range_btn.setChecked(False)
+        self.set_measure(measure)
+
+    def set_measure(self, measure, threshold=None):
+        d = self.data
+        if d is None or measure not in d.measures:
+            return
+        self.measure = measure
+        v = display_values(d, measure)
+        lo, hi = _finite_range(v)
+        self.edges = np.linspace(lo, hi, HIST_BINS + 1)
+        idx = np.floor((v - lo) / (hi - lo) * HIST_BINS)
+        idx = np.where(np.isfinite(idx), np.clip(idx, 0, HIST_BINS - 1), HIST_BINS).astype(np.int32)
+        self.bin_index = idx
+        self.all_counts = np.bincount(idx, minlength=HIST_BINS + 1)[:HIST_BINS]
+        self.all_item.setData(self.edges, self.all_counts)
+        self.plot.setLabel("bottom", measure_label(measure))
+        if threshold is not None and measure == "inverse_condition":
+            self.thr_line.setValue(threshold)
+            self.thr_line.show()
+        elif measure != "inverse_condition":
+            self.thr_line.hide()
+        self._on_selection(self.selection, None, True)
+
+    def set_threshold(self, t):
+        if self.measure == "inverse_condition":
+            self.thr_line.setValue(t)
+            self.thr_line.show()
+
+    def _toggle_region(self, on):
+        if on and self.region is None and self.data is not None:
+            a, b = self.edges[0], self.edges[-1]
+            self.region = pg.LinearRegionItem([a + 0.1 * (b - a), a + 0.3 * (b - a)],
+                                              brush=(255, 140, 0, 50))
+            self.region.setZValue(20)
+            self.plot.addItem(self.region)
+            self.region.sigRegionChanged.connect(lambda *_: self._region_moved(False))
+            self.region.sigRegionChangeFinished.connect(lambda *_: self._region_moved(True))
+            self._region_moved(True)
+        elif not on and self.region is not None:
+            self.plot.removeItem(self.region)
+            self.region = None
+
+    def brush_range(self, lo, hi, final=True):
+        """Brush the cells whose shown value lies in [lo, hi]."""
+        v = display_values(self.data, self.measure)
+        self.selection.set_mask(range_mask(v, lo, hi), source="histogram", final=final)
+
+    def _region_moved(self, final):
+        if self.region is None:
+            return
+        if not final:
+            return  # a value brush over 1e6 cells is cheap but the list and scene wait for release
+        lo, hi = self.region.getRegion()
+        self.brush_range(lo, hi, final=True)
+
+    def _on_selection(self, sel, source, final):
+        if self.bin_index is None or sel.size != self.bin_index.size:
+            return
+        if not final and source != "histogram":
+            return
+        if sel.active:
+            self.sel_counts = np.bincount(self.bin_index[sel.mask], minlength=HIST_BINS + 1)[:HIST_BINS]
+        else:
+            self.sel_counts = np.zeros(HIST_BINS, dtype=np.int64)
+        self.sel_item.setData(self.edges, self.sel_counts)
+        self.info.setText(f"{sel.count} of {int(self.all_counts.sum())} cells brushed" if sel.active
+                          else f"{int(self.all_counts.sum())} cells")
+
+
+class PoseTableModel(QtCore.QAbstractTableModel):
+    """Lazy table over the result arrays: only the visible cells are formatted. ``order`` holds the
+    flat cell index of each row (all finished cells, or the brushed ones), sorted on demand."""
+
+    def __init__(self, parent=None):
+        super().__init__(parent)
+        self.data_ = None
+        self.threshold = 0.05
+        self.order = np.zeros(0, dtype=np.int64)
+        self.columns = []
+        self._sort = None          # (column, ascending)
+        self._perm_cache = {}
+
+    def set_result(self, data: ResultData):
+        self.beginResetModel()
+        self.data_ = data
+        cols = [("cell", None)]
+        cols.append((data.x_label, "x"))
+        if data.is_map:
+            cols.append((data.y_label, "y"))
+        if data.has_poses and data.joint_names:
+            kinds = data.joint_kinds or ("revolute",) * len(data.joint_names)
+            for k, (name, kind) in enumerate(zip(data.joint_names, kinds)):
+                cols.append((f"{name} ({'°' if kind == 'revolute' else 'mm'})", ("q", k, kind)))
+        for m in data.measure_names:
+            cols.append((MEASURE_LABELS.get(m, m), ("m", m)))
+        cols.append(("note", "note"))
+        self.columns = cols
+        self._sort = None
+        self._perm_cache = {}
+        self.order = np.flatnonzero(data.done)
+        self.endResetModel()
+
+    def invalidate(self):
+        self._perm_cache = {}
+
+    def set_rows(self, mask):
+        """Show the cells where ``mask`` (N,) is True (None: all finished cells)."""
+        d = self.data_
+        if d is None:
+            return
+        m = d.done if mask is None else (mask & d.done)
+        self.beginResetModel()
+        if self._sort is None:
+            self.order = np.flatnonzero(m)
+        else:
+            perm = self._perm(*self._sort)
+            self.order = perm[m[perm]]
+        self.endResetModel()
+
+    def column_values(self, col):
+        d = self.data_
+        key = self.columns[col][1]
+        if key is None:
+            return np.arange(d.size, dtype=float)
+        if key == "x":
+            return np.tile(d.x, d.shape[0]) if d.is_map else d.x
+        if key == "y":
+            return np.repeat(d.y, d.shape[1])
+        if key == "note":
+            return self._near().astype(float)
+        if key[0] == "q":
+            return d.poses(np.arange(d.size))[:, key[1]]
+        return d.measures[key[1]]
+
+    def _near(self):
+        d = self.data_
+        if "inverse_condition" in d.measures:
+            with np.errstate(invalid="ignore"):
+                return d.measures["inverse_condition"] < self.threshold
+        return np.zeros(d.size, dtype=bool)
+
+    def _perm(self, col, ascending):
+        key = (col, ascending)
+        if key not in self._perm_cache:
+            v = np.nan_to_num(self.column_values(col).astype(float), nan=np.inf, posinf=np.inf)
+            p = np.argsort(v if ascending else -v, kind="stable")
+            self._perm_cache[key] = p
+        return self._perm_cache[key]
+
+    # ---- Qt model API --------------------------------------------------------------------
+    def rowCount(self, parent=QtCore.QModelIndex()):
+        return 0 if parent.isValid() else int(self.order.size)
+
+    def columnCount(self, parent=QtCore.QModelIndex()):
+        return 0 if parent.isValid() else len(self.columns)
+
+    def headerData(self, section, orientation, role=QtCore.Qt.DisplayRole):
+        if role != QtCore.Qt.DisplayRole:
+            return None
+        if orientation == QtCore.Qt.Horizontal:
+            return self.columns[section][0] if section < len(self.columns) else None
+        return str(section + 1)
+
+    def data(self, index, role=QtCore.Qt.DisplayRole):
+        if not index.isValid() or self.data_ is None:
+            return None
+        c = int(self.order[index.row()])
+        key = self.columns[index.column()][1]
+        d = self.data_
+        if role == QtCore.Qt.DisplayRole:
+            if key is None:
+                return str(c)
+            if key == "note":
+                return "near singular" if self._near()[c] else ""
+            if key == "x":
+                return f"{d.cell_xy(c)[0]:.4g}"
+            if key == "y":
+                return f"{d.cell_xy(c)[1]:.4g}"
+            if key[0] == "q":
+                v = d.poses([c])[0, key[1]]
+                return "" if not np.isfinite(v) else (f"{np.degrees(v):.1f}" if key[2] == "revolute" else f"{v * 1000:.1f}")
+            v = d.measures[key[1]][c]
+            return "inf" if np.isinf(v) else ("" if np.isnan(v) else f"{v:.4g}")
+        if role == QtCore.Qt.ForegroundRole and key == "note":
+            return QtGui.QBrush(QtGui.QColor(180, 20, 20))
+        return None
+
+    def sort(self, column, order=QtCore.Qt.AscendingOrder):
+        if self.data_ is None or column < 0:
+            return
+        self.layoutAboutToBeChanged.emit()
+        self._sort = (column, order == QtCore.Qt.AscendingOrder)
+        perm = self._perm(*self._sort)
+        keep = rows_mask(self.data_.size, self.order)
+        self.order = perm[keep[perm]]
+        self.layoutChanged.emit()
+
+    def cell_of_row(self, row) -> int:
+        return int(self.order[row])
+
+
+class PoseListView(QtWidgets.QWidget):
+    """The pose list: brushed cells (or all finished cells when nothing is brushed)."""
+
+    cell_picked = QtCore.Signal(int)
+
+    def __init__(self, selection: Selection, parent=None):
+        super().__init__(parent)
+        self.selection = selection
+        lay = QtWidgets.QVBoxLayout(self)
+        lay.setContentsMargins(0, 0, 0, 0)
+        self.caption = QtWidgets.QLabel("Poses: click one to show it; select several rows to brush them")
+        lay.addWidget(self.caption)
+        self.table = QtWidgets.QTableView()
+        self.model = PoseTableModel(self)
+        self.table.setModel(self.model)
+        self.table.setSortingEnabled(True)
+        self.table.setSelectionBehavior(QtWidgets.QAbstractItemView.SelectRows)
+        self.table.verticalHeader().setDefaultSectionSize(20)
+        self.table.horizontalHeader().setDefaultSectionSize(92)
+        self.table.clicked.connect(lambda ix: self.cell_picked.emit(self.model.cell_of_row(ix.row())))
+        lay.addWidget(self.table, 1)
+        self.brush_btn = QtWidgets.QPushButton("Brush selected rows")
+        self.brush_btn.clicked.connect(self.brush_selected_rows)
+        lay.addWidget(self.brush_btn)
+        selection.subscribe(self._on_selection)
+
+    def set_result(self, data):
+        self.model.set_result(data)
+        self.table.sortByColumn(-1, QtCore.Qt.AscendingOrder)
+
+    def refresh(self):
+        """New chunks finished: show them (keeps the brush filter)."""
+        self.model.invalidate()
+        self._on_selection(self.selection, None, True)
+
+    def brush_selected_rows(self):
+        rows = sorted({ix.row() for ix in self.table.selectionModel().selectedRows()})
+        if not rows or self.model.data_ is None:
+            return
+        cells = self.model.order[np.asarray(rows)]
+        self.selection.set_mask(rows_mask(self.model.data_.size, cells), source="list", final=True)
+
+    def _on_selection(self, sel, source, final):
+        if not final or self.model.data_ is None or sel.size != self.model.data_.size or source == "list":
+            return
+        self.model.set_rows(sel.mask if sel.active else None)
+        n = self.model.rowCount()
+        self.caption.setText(f"Poses: {n} {'brushed' if sel.active else 'finished'} cells; click one to show it")

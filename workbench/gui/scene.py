@@ -1,0 +1,343 @@
+"""The scene: the arm at the current pose, its TCP frame and velocity ellipsoid, ghost arms of
+brushed poses and the cell (work points, paths, boxes, mount candidates).
+
+Two views with one interface (``set_pose``, ``set_ghosts``, ``set_cell``, ``set_candidates``,
+``set_view``): :class:`Scene3D` (pyqtgraph.opengl) and :class:`Scene2D` (top and side projections
+on plain plots) where OpenGL is not available. :func:`make_scene` picks one.
+"""
+from __future__ import annotations
+
+import os
+
+import numpy as np
+import pyqtgraph as pg
+from PySide6 import QtCore, QtGui, QtWidgets
+
+from .cellview import CellContent, box_edges
+from .posestate import ELLIPSOID_DRAW_SCALE, PoseInfo
+
+__all__ = ["make_scene", "Scene2D", "gl_available", "VIEWS"]
+
+VIEWS = ("iso", "top", "front", "side")
+AXIS_LEN = 0.12         # m, TCP frame axes as drawn
+ARM_COLOUR = (60, 110, 200)
+GHOST_COLOUR = (230, 120, 30)
+NEAR_COLOUR = (210, 40, 40)
+
+
+def gl_available() -> tuple[bool, str]:
+    """(True, "") when an OpenGL context can be made here, else (False, reason)."""
+    if os.environ.get("WORKBENCH_NO_GL", "") not in ("", "0"):
+        return False, "WORKBENCH_NO_GL is set"
+    plat = (QtGui.QGuiApplication.platformName() or os.environ.get("QT_QPA_PLATFORM", "")).lower()
+    if plat in ("offscreen", "minimal", "vnc"):
+        return False, f"the '{plat}' display has no OpenGL"
+    try:
+        import pyqtgraph.opengl  # noqa: F401
+        ctx = QtGui.QOpenGLContext()
+        if not ctx.create():
+            return False, "no OpenGL context could be created"
+        surf = QtGui.QOffscreenSurface()
+        surf.setFormat(ctx.format())
+        surf.create()
+        if not ctx.makeCurrent(surf):
+            return False, "the OpenGL context could not be made current"
+        ctx.doneCurrent()
+        return True, ""
+    except Exception as exc:  # any failure of the GL stack means: use the 2D view
+        return False, f"OpenGL failed ({exc.__class__.__name__})"
+
+
+def make_scene(parent=None):
+    """(scene widget, note): the 3D scene where OpenGL works, else the 2D projections and a note."""
+    ok, why = gl_available()
+    if ok:
+        try:
+            return Scene3D(parent), ""
+        except Exception as exc:  # pragma: no cover - depends on the display
+            why = f"the 3D view failed ({exc.__class__.__name__})"
+    return Scene2D(parent), f"3D view off ({why}): showing top and side projections instead"
+
+
+def _ellipse_outline(centre, axes, plane, scale=ELLIPSOID_DRAW_SCALE, k=64):
+    """Outline of the ellipsoid's shadow on a coordinate plane (k, 2)."""
+    L = scale * np.asarray(axes)[list(plane)]           # (2, 3)
+    M = L @ L.T
+    w, V = np.linalg.eigh(M)
+    w = np.sqrt(np.clip(w, 0, None))
+    t = np.linspace(0, 2 * np.pi, k)
+    circ = np.stack([np.cos(t), np.sin(t)])              # (2, k)
+    return (np.asarray(centre)[list(plane)][:, None] + V @ (w[:, None] * circ)).T
+
+
+class Scene2D(QtWidgets.QWidget):
+    """Projections of the scene on two plots: top (X-Y) and front (X-Z) or side (Y-Z)."""
+
+    is_3d = False
+
+    def __init__(self, parent=None):
+        super().__init__(parent)
+        lay = QtWidgets.QHBoxLayout(self)
+        lay.setContentsMargins(0, 0, 0, 0)
+        self.view_name = "iso"
+        self.planes = [(0, 1), (0, 2)]
+        self.plots = []
+        self._items = []
+        for title in ("Top view (X-Y, m)", "Front view (X-Z, m)"):
+            pw = pg.PlotWidget(title=title)
+            pw.setAspectLocked(True)
+            pw.showGrid(x=True, y=True, alpha=0.25)
+            pw.setBackground("w")
+            lay.addWidget(pw)
+            self.plots.append(pw)
+            it = {
+                "boxes": pg.PlotDataItem(pen=pg.mkPen((120, 120, 120), width=1), connect="pairs"),
+                "paths": pg.PlotDataItem(pen=pg.mkPen((40, 150, 60), width=2), connect="finite"),
+                "points": pg.ScatterPlotItem(size=8, symbol="s", brush=(40, 150, 60), pen="k"),
+                "cands": pg.ScatterPlotItem(size=7, symbol="o", pen=None),
+                "ghosts": pg.PlotDataItem(pen=pg.mkPen(GHOST_COLOUR + (110,), width=1), connect="finite"),
+                "ellipse": pg.PlotDataItem(pen=pg.mkPen((150, 60, 170), width=2),
+                                           fillLevel=None, brush=(150, 60, 170, 50)),
+                "arm": pg.PlotDataItem(pen=pg.mkPen(ARM_COLOUR, width=4), symbol="o", symbolSize=8,
+                                       symbolBrush=ARM_COLOUR),
+                "tcp": [pg.PlotDataItem(pen=pg.mkPen(c, width=2)) for c in ("r", "g", "b")],
+            }
+            for key in ("boxes", "paths", "points", "cands", "ghosts", "ellipse", "arm"):
+                pw.addItem(it[key])
+            for t in it["tcp"]:
+                pw.addItem(t)
+            self._items.append(it)
+        self._info = None
+        self._ghosts = None
+        self._cell = CellContent()
+        self._cands = (np.zeros((0, 3)), None)
+
+    # ---- content -------------------------------------------------------------------------
+    def set_pose(self, info: PoseInfo):
+        self._info = info
+        for plane, it in zip(self.planes, self._items):
+            p = info.points[:, list(plane)]
+            it["arm"].setData(p[:, 0], p[:, 1])
+            it["arm"].setPen(pg.mkPen(NEAR_COLOUR if info.near_singular else ARM_COLOUR, width=4))
+            o = info.tcp[:3, 3]
+            for a, line in enumerate(it["tcp"]):
+                e = o + AXIS_LEN * info.tcp[:3, a]
+                line.setData([o[plane[0]], e[plane[0]]], [o[plane[1]], e[plane[1]]])
+            ell = _ellipse_outline(info.points[-1], info.ellipsoid_axes, plane)
+            it["ellipse"].setData(ell[:, 0], ell[:, 1])
+
+    def set_ghosts(self, pts):
+        """Ghost arms: (k, n + 2, 3) link points, or None."""
+        self._ghosts = pts
+        for plane, it in zip(self.planes, self._items):
+            if pts is None or len(pts) == 0:
+                it["ghosts"].setData([], [])
+                continue
+            k, m, _ = pts.shape
+            a = np.full((k, m + 1, 2), np.nan)
+            a[:, :m] = pts[:, :, list(plane)]
+            a = a.reshape(-1, 2)
+            it["ghosts"].setData(a[:, 0], a[:, 1], connect="finite")
+
+    def set_cell(self, cell: CellContent):
+        self._cell = cell
+        for plane, it in zip(self.planes, self._items):
+            pl = list(plane)
+            if len(cell.points):
+                it["points"].setData(pos=cell.points[:, pl])
+            else:
+                it["points"].setData([])
+            if cell.paths:
+                segs = np.vstack([np.vstack([p[:, pl], [[np.nan, np.nan]]]) for p in cell.paths])
+                it["paths"].setData(segs[:, 0], segs[:, 1], connect="finite")
+            else:
+                it["paths"].setData([], [])
+            if cell.boxes:
+                e = np.vstack([box_edges(b)[:, pl] for b in cell.boxes])
+                it["boxes"].setData(e[:, 0], e[:, 1], connect="pairs")
+            else:
+                it["boxes"].setData([], [])
+        self.set_candidates(cell.candidates, cell.candidate_scores)
+
+    def set_candidates(self, pts, scores=None):
+        """Mount candidates (c, 3) coloured by ``scores`` (c,) in [0, 1] (NaN grey)."""
+        pts = np.zeros((0, 3)) if pts is None else np.asarray(pts, float)
+        self._cands = (pts, scores)
+        brushes = _score_brushes(scores, len(pts))
+        for plane, it in zip(self.planes, self._items):
+            if len(pts):
+                it["cands"].setData(pos=pts[:, list(plane)], brush=brushes)
+            else:
+                it["cands"].setData([])
+
+    def set_view(self, name):
+        """Preset views: top and iso show X-Y + X-Z, front X-Z, side Y-Z in the second plot."""
+        if name not in VIEWS:
+            raise ValueError(f"view: expected one of {VIEWS}, got {name!r}")
+        self.view_name = name
+        second = {"side": (1, 2)}.get(name, (0, 2))
+        self.planes = [(0, 1), second]
+        names = "XYZ"
+        self.plots[1].setTitle(f"{'Side' if name == 'side' else 'Front'} view "
+                               f"({names[second[0]]}-{names[second[1]]}, m)")
+        if self._info is not None:
+            self.set_pose(self._info)
+        self.set_ghosts(self._ghosts)
+        self.set_cell(self._cell)
+        for pw in self.plots:
+            pw.enableAutoRange()
+
+    def arm_xy(self):
+        """(n + 2, 2) arm points as drawn on the top view (for tests)."""
+        x, y = self._items[0]["arm"].getData()
+        return np.column_stack([x, y])
+
+    def ghost_count(self) -> int:
+        return 0 if self._ghosts is None else len(self._ghosts)
+
+
+def _score_brushes(scores, n):
+    if n == 0:
+        return []
+    cmap = pg.colormap.get("viridis")
+    if scores is None:
+        return [pg.mkBrush(90, 90, 90, 160)] * n
+    s = np.asarray(scores, float)
+    cols = cmap.map(np.nan_to_num(np.clip(s, 0, 1)), mode="byte")
+    return [pg.mkBrush(*c[:3], 220) if np.isfinite(v) else pg.mkBrush(160, 160, 160, 120)
+            for c, v in zip(cols, s)]
+
+
+class Scene3D(QtWidgets.QWidget):
+    """The 3D scene (pyqtgraph.opengl): orbit with the left mouse button, pan with the middle,
+    zoom with the wheel."""
+
+    is_3d = True
+
+    def __init__(self, parent=None):
+        super().__init__(parent)
+        import pyqtgraph.opengl as gl
+
+        self._gl = gl
+        lay = QtWidgets.QVBoxLayout(self)
+        lay.setContentsMargins(0, 0, 0, 0)
+        self.view = gl.GLViewWidget()
+        self.view.setBackgroundColor((245, 245, 248))
+        lay.addWidget(self.view)
+        grid = gl.GLGridItem(color=(0, 0, 0, 60))
+        grid.setSize(4, 4)
+        grid.setSpacing(0.25, 0.25)
+        self.view.addItem(grid)
+        world = gl.GLAxisItem(size=QtGui.QVector3D(0.3, 0.3, 0.3))
+        self.view.addItem(world)
+        self.arm = gl.GLLinePlotItem(width=6, color=_c(ARM_COLOUR), antialias=True, mode="line_strip")
+        self.joints = gl.GLScatterPlotItem(size=12, color=_c((30, 30, 30)))
+        self.tcp = gl.GLLinePlotItem(width=3, mode="lines")
+        self.ghosts = gl.GLLinePlotItem(width=1.5, color=_c(GHOST_COLOUR, 0.45), mode="lines")
+        sv, sf = _sphere()
+        self._sphere = sv
+        self.ellipsoid = gl.GLMeshItem(vertexes=sv, faces=sf, color=(0.6, 0.25, 0.7, 0.35),
+                                       smooth=True, glOptions="translucent", drawEdges=False)
+        self.points = gl.GLScatterPlotItem(size=10, color=_c((40, 150, 60)))
+        self.paths = gl.GLLinePlotItem(width=2, color=_c((40, 150, 60)), mode="lines")
+        self.boxes = gl.GLLinePlotItem(width=1, color=_c((110, 110, 110)), mode="lines")
+        self.cands = gl.GLScatterPlotItem(size=8)
+        for it in (self.boxes, self.paths, self.points, self.cands, self.ghosts, self.arm, self.joints,
+                   self.tcp, self.ellipsoid):
+            self.view.addItem(it)
+        self._cyl = []
+        self._ghosts = None
+        self.set_view("iso")
+
+    def set_pose(self, info: PoseInfo):
+        gl = self._gl
+        p = info.points
+        self.arm.setData(pos=p, color=_c(NEAR_COLOUR if info.near_singular else ARM_COLOUR))
+        self.joints.setData(pos=p[1:-1])
+        o = info.tcp[:3, 3]
+        segs, cols = [], []
+        for a, c in enumerate(((1, 0, 0, 1), (0, 0.6, 0, 1), (0, 0, 1, 1))):
+            segs += [o, o + AXIS_LEN * info.tcp[:3, a]]
+            cols += [c, c]
+        self.tcp.setData(pos=np.asarray(segs), color=np.asarray(cols))
+        ell = p[-1][None, :] + ELLIPSOID_DRAW_SCALE * self._sphere @ info.ellipsoid_axes.T
+        self.ellipsoid.setMeshData(vertexes=ell, faces=self._faces)
+        n = len(info.joint_axes)
+        while len(self._cyl) < n:
+            md = gl.MeshData.cylinder(rows=1, cols=16, radius=[0.045, 0.045], length=0.12)
+            it = gl.GLMeshItem(meshdata=md, color=(0.35, 0.45, 0.7, 1), smooth=True, shader="shaded")
+            self.view.addItem(it)
+            self._cyl.append(it)
+        for k in range(n):
+            z = info.joint_axes[k] / max(np.linalg.norm(info.joint_axes[k]), 1e-12)
+            x = np.cross(z, [1, 0, 0] if abs(z[0]) < 0.9 else [0, 1, 0])
+            x /= np.linalg.norm(x)
+            y = np.cross(z, x)
+            M = np.eye(4)
+            M[:3, :3] = np.column_stack([x, y, z])
+            M[:3, 3] = p[k + 1] - 0.06 * z
+            self._cyl[k].setTransform(QtGui.QMatrix4x4(*M.reshape(-1)))
+
+    @property
+    def _faces(self):
+        return _sphere()[1]
+
+    def set_ghosts(self, pts):
+        self._ghosts = pts
+        if pts is None or len(pts) == 0:
+            self.ghosts.setData(pos=np.zeros((0, 3)))
+            return
+        segs = np.stack([pts[:, :-1], pts[:, 1:]], axis=2).reshape(-1, 3)
+        self.ghosts.setData(pos=segs)
+
+    def set_cell(self, cell: CellContent):
+        self.points.setData(pos=cell.points if len(cell.points) else np.zeros((0, 3)))
+        if cell.paths:
+            segs = np.vstack([np.stack([p[:-1], p[1:]], 1).reshape(-1, 3) for p in cell.paths if len(p) > 1])
+            self.paths.setData(pos=segs)
+        else:
+            self.paths.setData(pos=np.zeros((0, 3)))
+        if cell.boxes:
+            self.boxes.setData(pos=np.vstack([box_edges(b) for b in cell.boxes]))
+        else:
+            self.boxes.setData(pos=np.zeros((0, 3)))
+        self.set_candidates(cell.candidates, cell.candidate_scores)
+
+    def set_candidates(self, pts, scores=None):
+        pts = np.zeros((0, 3)) if pts is None else np.asarray(pts, float)
+        if not len(pts):
+            self.cands.setData(pos=np.zeros((0, 3)))
+            return
+        cmap = pg.colormap.get("viridis")
+        if scores is None:
+            col = np.tile([0.4, 0.4, 0.4, 0.7], (len(pts), 1))
+        else:
+            col = cmap.map(np.nan_to_num(np.clip(np.asarray(scores, float), 0, 1)), mode="float")
+        self.cands.setData(pos=pts, color=np.asarray(col, float))
+
+    def set_view(self, name):
+        if name not in VIEWS:
+            raise ValueError(f"view: expected one of {VIEWS}, got {name!r}")
+        self.view_name = name
+        elev, azim = {"iso": (25, 45), "top": (90, -90), "front": (0, -90), "side": (0, 0)}[name]
+        self.view.setCameraPosition(pos=QtGui.QVector3D(0.5, 0, 0.6), distance=3.6,
+                                    elevation=elev, azimuth=azim)
+
+    def ghost_count(self) -> int:
+        return 0 if self._ghosts is None else len(self._ghosts)
+
+
+def _c(rgb, a=1.0):
+    return (rgb[0] / 255, rgb[1] / 255, rgb[2] / 255, a)
+
+
+_SPHERE = None
+
+
+def _sphere():
+    global _SPHERE
+    if _SPHERE is None:
+        from .posestate import sphere_mesh
+
+        _SPHERE = sphere_mesh()
+    return _SPHERE

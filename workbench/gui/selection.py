@@ -1,0 +1,158 @@
+"""The one shared selection of result cells (pure Python + numpy, no Qt).
+
+Every linked view (map, histogram, pose list, scene ghosts) reads the same boolean mask and
+subscribes to its changes; a view that brushes calls :meth:`Selection.set_mask` (or one of the
+helpers) and names itself as ``source`` so it does not redraw from its own event.
+
+Brushing helpers turn a gesture into a mask over the flat cells of a result:
+
+* :func:`rect_mask` - a rectangle on a 2D grid map (axes in display units),
+* :func:`range_mask` - a value range of one measure (histogram),
+* :func:`rows_mask` - explicit cell indices (rows picked in the pose list).
+"""
+from __future__ import annotations
+
+from typing import Callable
+
+import numpy as np
+
+__all__ = ["Selection", "rect_mask", "range_mask", "rows_mask", "axis_index_range"]
+
+
+class Selection:
+    """A boolean mask over ``size`` result cells plus listeners.
+
+    Parameters
+    ----------
+    size : int
+        Number of cells (flat).
+
+    Listeners are called as ``fn(selection, source, final)``: ``source`` names the view that made
+    the change (or ``None``), ``final`` is False while a drag is still going on (views may show a
+    cheap preview then and do the full update when ``final`` is True).
+    """
+
+    def __init__(self, size: int = 0):
+        self._mask = np.zeros(int(size), dtype=bool)
+        self._active = False
+        self._count = 0
+        self._listeners: list[Callable] = []
+
+    # ---- state ---------------------------------------------------------------------------
+    @property
+    def size(self) -> int:
+        return self._mask.size
+
+    @property
+    def mask(self) -> np.ndarray:
+        """(size,) bool: the selected cells (read-only view)."""
+        v = self._mask.view()
+        v.flags.writeable = False
+        return v
+
+    @property
+    def active(self) -> bool:
+        """True when something is brushed (an empty brush is still active: it selects nothing)."""
+        return self._active
+
+    @property
+    def count(self) -> int:
+        return self._count
+
+    def indices(self) -> np.ndarray:
+        """(count,) int64 flat indices of the selected cells, ascending."""
+        return np.flatnonzero(self._mask)
+
+    # ---- changes -------------------------------------------------------------------------
+    def resize(self, size: int) -> None:
+        """Start over with ``size`` cells and nothing selected (a new result)."""
+        self._mask = np.zeros(int(size), dtype=bool)
+        self._active = False
+        self._count = 0
+        self._emit(None, True)
+
+    def set_mask(self, mask, source=None, final=True) -> None:
+        """Replace the selection with ``mask`` (size,) bool."""
+        mask = np.asarray(mask, dtype=bool)
+        if mask.shape != self._mask.shape:
+            raise ValueError(f"selection mask: expected shape {self._mask.shape}, got {mask.shape}")
+        self._mask = mask
+        self._active = True
+        self._count = int(np.count_nonzero(mask))
+        self._emit(source, final)
+
+    def clear(self, source=None) -> None:
+        """Nothing brushed."""
+        self._mask = np.zeros_like(self._mask)
+        self._active = False
+        self._count = 0
+        self._emit(source, True)
+
+    # ---- listeners -----------------------------------------------------------------------
+    def subscribe(self, fn: Callable) -> None:
+        self._listeners.append(fn)
+
+    def unsubscribe(self, fn: Callable) -> None:
+        if fn in self._listeners:
+            self._listeners.remove(fn)
+
+    def _emit(self, source, final) -> None:
+        for fn in list(self._listeners):
+            fn(self, source, final)
+
+
+def axis_index_range(values, lo, hi):
+    """Index range [i0, i1) of the sorted axis ``values`` (k,) whose cells lie within [lo, hi].
+
+    A cell counts when its centre is inside the closed interval.
+    """
+    v = np.asarray(values, dtype=float)
+    if lo > hi:
+        lo, hi = hi, lo
+    if v.size > 1 and v[0] > v[-1]:  # descending axis
+        i0 = v.size - int(np.searchsorted(v[::-1], hi, side="right"))
+        i1 = v.size - int(np.searchsorted(v[::-1], lo, side="left"))
+        return i0, i1
+    return int(np.searchsorted(v, lo, side="left")), int(np.searchsorted(v, hi, side="right"))
+
+
+def rect_mask(x, y, x0, x1, y0, y1) -> np.ndarray:
+    """Mask of the cells of a (len(y), len(x)) row-major grid whose centres are in the rectangle.
+
+    Parameters
+    ----------
+    x : (nx,) array
+        Cell-centre coordinates along the map's horizontal axis (display units).
+    y : (ny,) array
+        Cell-centre coordinates along the vertical axis.
+    x0, x1, y0, y1 : float
+        The rectangle (any order).
+
+    Returns
+    -------
+    (ny * nx,) bool
+    """
+    nx, ny = len(x), len(y)
+    i0, i1 = axis_index_range(x, x0, x1)
+    j0, j1 = axis_index_range(y, y0, y1)
+    m = np.zeros((ny, nx), dtype=bool)
+    m[j0:j1, i0:i1] = True
+    return m.reshape(-1)
+
+
+def range_mask(values, lo, hi) -> np.ndarray:
+    """Mask of the finite ``values`` (N,) within [lo, hi] (any order)."""
+    if lo > hi:
+        lo, hi = hi, lo
+    v = np.asarray(values)
+    with np.errstate(invalid="ignore"):
+        return (v >= lo) & (v <= hi)
+
+
+def rows_mask(size, rows) -> np.ndarray:
+    """Mask with the flat cell indices ``rows`` set."""
+    m = np.zeros(int(size), dtype=bool)
+    r = np.asarray(rows, dtype=np.int64)
+    if r.size:
+        m[r] = True
+    return m
