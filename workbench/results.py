@@ -28,6 +28,7 @@ from __future__ import annotations
 
 import json
 import os
+import tempfile
 import time
 from dataclasses import dataclass, field
 
@@ -160,6 +161,12 @@ def check_output_path(path) -> str:
         raise ResultsError(f"--out {path}: folder {folder} is not writable")
     if os.path.exists(p) and not os.access(p, os.W_OK):
         raise ResultsError(f"--out {path}: file exists and is not writable")
+    try:  # access() says yes to root everywhere: really try to create a file there
+        fd, probe = tempfile.mkstemp(prefix=".~probe", dir=folder)
+        os.close(fd)
+        os.unlink(probe)
+    except OSError as exc:
+        raise ResultsError(f"--out {path}: cannot create files in {folder} ({exc.strerror})") from None
     return p
 
 
@@ -510,7 +517,7 @@ def export_png(results: Results, path, measure: str | None = None, dpi: int = 12
     final, tmp = _atomic_target(path, "--png")
     names = results.measure_names()
     if measure is None:
-        for cand in ("inverse_condition", "inverse_condition_min"):
+        for cand in ("inverse_condition", "inverse_condition_mean", "inverse_condition_min"):
             if cand in names:
                 measure = cand
                 break
