@@ -41,6 +41,7 @@ __all__ = ["run_study", "prepare", "Prepared", "RunError", "EXECUTORS", "bench_s
 EXECUTORS = ("inprocess", "processes", "dask")
 #: with executor="auto", runs estimated below this many seconds stay in-process
 AUTO_INPROCESS_S = 3.0
+_SCHEMES = ("tcp://", "tls://", "inproc://", "ws://", "wss://", "ucx://")
 #: results larger than this are not read back into memory after a streamed run (lazy instead)
 READ_BACK_BYTES = 512 << 20
 #: the biggest chunk of result arrays a worker holds at once
@@ -235,6 +236,8 @@ def run_study(study, out=None, executor="inprocess", workers=None, scheduler=Non
         raise RunError(f"executor: expected one of {', '.join(EXECUTORS)}, got {executor!r}")
     if workers is not None and (not isinstance(workers, (int, np.integer)) or workers < 1):
         raise RunError(f"--workers: expected a whole number >= 1, got {workers!r}")
+    if scheduler is not None and scheduler != "local" and not str(scheduler).startswith(_SCHEMES):
+        raise RunError(f"--scheduler {scheduler}: expected 'local' or an address like tcp://host:8786")
     if out is not None:
         out = check_output_path(out)
     prep = study if isinstance(study, Prepared) else prepare(study, arm, cell, texts, chunk_cells)
@@ -382,8 +385,6 @@ def _run_dask(kind, plan, arm, cell, finished, is_cancelled, n_workers, schedule
                                        dashboard_address=None)
                 client = Client(cluster)
             else:
-                if not str(addr).startswith(("tcp://", "tls://", "inproc://", "ws://", "wss://")):
-                    raise RunError(f"--scheduler: expected 'local' or an address like tcp://host:8786, got {addr!r}")
                 client = Client(addr, timeout="10s")
         except RunError:
             raise

@@ -1,0 +1,139 @@
+"""Results files: write -> read round trip of every dataset and attribute, exports, atomic writes."""
+from __future__ import annotations
+
+import json
+import os
+from pathlib import Path
+
+import h5py
+import numpy as np
+import pytest
+
+import workbench
+from workbench.results import (SCHEMA_VERSION, ResultsError, ResultsWriter, export_csv, export_png, read_results)
+from workbench.runner import prepare, run_study
+from workbench.studies import StudySpec
+
+ROOT = Path(__file__).resolve().parents[1]
+S6 = str(ROOT / "arms" / "demo_s6.toml")
+
+
+def small_spec(**extra):
+    s = {"joints": ["j3", "j5"], "ranges": [[-100, 140], [-60, 60]], "steps": [23, 17], "store_sv": True,
+         "store_tcp": True}
+    s.update(extra)
+    return StudySpec("joint_sweep", S6, settings=s, name="round trip")
+
+
+def test_round_trip_of_every_dataset_and_attribute(tmp_path):
+    mem = run_study(small_spec(), chunk_cells=50)  # in memory
+    out = tmp_path / "r.h5"
+    disk = run_study(small_spec(), out=out, chunk_cells=50)
+    back = read_results(out)
+    assert [p.name for p in tmp_path.iterdir()] == ["r.h5"]  # the temporary name is gone
+    for r in (disk, back):
+        assert r.shape == mem.shape == (23, 17)
+        assert [f.name for f in r.fields] == [f.name for f in mem.fields]
+        for f, g in zip(r.fields, mem.fields):
+            assert (f.shape, f.dtype, f.unit, f.kind, f.description, f.flags) == \
+                   (g.shape, g.dtype, g.unit, g.kind, g.description, g.flags)
+            np.testing.assert_array_equal(r.arrays[f.name], mem.arrays[f.name])
+            assert r.arrays[f.name].shape == mem.shape + f.shape
+        for a, b in zip(r.axes, mem.axes):
+            assert (a.name, a.unit, a.display_unit, a.label) == (b.name, b.unit, b.display_unit, b.label)
+            np.testing.assert_array_equal(a.values, b.values)
+        assert r.finished.tolist() == [True] * 8 and not r.incomplete and r.chunk_cells == 50
+        assert r.arm_text == Path(S6).read_text() and r.cell_text is None
+        assert 'kind = "joint_sweep"' in r.study_text
+        assert set(r.tables) == {"near_singular", "best"}
+        for name, t in mem.tables.items():
+            u = r.tables[name]
+            assert (u.title, u.units, list(u.columns)) == (t.title, t.units, list(t.columns))
+            for c in t.columns:
+                np.testing.assert_array_equal(u.columns[c], t.columns[c])
+    a = back.attrs
+    assert a["schema_version"] == SCHEMA_VERSION and a["software_version"] == workbench.__version__
+    assert a["kind"] == "joint_sweep" and a["name"] == "round trip" and a["cells"] == 391
+    assert list(a["grid_shape"]) == [23, 17] and a["chunks_done"] == a["chunks_total"] == 8
+    assert a["created"].endswith("Z") and a["finished"] >= a["created"] and a["elapsed_s"] > 0
+    assert back.spec().settings == small_spec().settings and back.spec().arm_path == S6
+    np.testing.assert_array_equal(back.done_mask(), np.ones((23, 17), bool))
+    # the file itself: chunked and compressed datasets, flattened grid order
+    with h5py.File(out) as h:
+        ds = h["fields/manipulability"]
+        assert ds.shape == (391,) and ds.chunks is not None and ds.compression == "lzf"
+        assert h["fields/sv"].shape == (391, 6) and h["fields/status"].dtype == np.uint8
+        assert json.loads(h["axes"].attrs["order"]) == ["j3", "j5"]
+        assert h["axes/j3"].attrs["unit"] == "rad" and h["axes/j3"].attrs["display_unit"] == "deg"
+
+
+def test_unfinished_chunks_hold_the_fill_value_and_are_reported(tmp_path):
+    prep = prepare(small_spec(), chunk_cells=100)
+    w = ResultsWriter(tmp_path / "p.h5", prep.plan, prep.texts, compression="gzip")
+    c = prep.plan.chunk(1)
+    w.write_chunk(c, prep.kind.compute_chunk(prep.plan, prep.arm, None, c))
+    assert not (tmp_path / "p.h5").exists()  # nothing under the final name before close
+    w.close(incomplete=True)
+    r = read_results(tmp_path / "p.h5")
+    assert r.incomplete and r.finished.tolist() == [False, True, False, False]
+    flat = r.flat("manipulability")
+    assert np.isnan(flat[:100]).all() and np.isfinite(flat[100:200]).all() and np.isnan(flat[200:]).all()
+    assert (r.flat("status")[:100] == 0).all()
+    assert r.done_mask().reshape(-1)[100:200].all() and r.done_mask().sum() == 100
+
+
+def test_abort_leaves_nothing(tmp_path):
+    prep = prepare(small_spec())
+    w = ResultsWriter(tmp_path / "a.h5", prep.plan, prep.texts)
+    w.abort()
+    assert list(tmp_path.iterdir()) == []
+
+
+def test_read_errors(tmp_path):
+    with pytest.raises(ResultsError, match="no such file"):
+        read_results(tmp_path / "none.h5")
+    (tmp_path / "x.h5").write_text("hello")
+    with pytest.raises(ResultsError, match="not an HDF5 results file"):
+        read_results(tmp_path / "x.h5")
+    with h5py.File(tmp_path / "y.h5", "w") as h:
+        h.attrs["format"] = "something else"
+    with pytest.raises(ResultsError, match="not a workbench results file"):
+        read_results(tmp_path / "y.h5")
+
+
+def test_csv_and_png_exports(tmp_path):
+    r = run_study(small_spec(), out=tmp_path / "r.h5")
+    n = export_csv(r, tmp_path / "poses.csv")
+    lines = (tmp_path / "poses.csv").read_text().splitlines()
+    assert n == len(lines) - 1 == r.tables["near_singular"].rows > 0
+    head = lines[0].split(",")
+    assert head[:3] == ["cell", "j1 [deg]", "j2 [deg]"] and "inverse_condition" in head
+    row = dict(zip(head, lines[1].split(",")))
+    # near-singular rows of this j3 x j5 sweep sit at j5 = 0 (wrist axes 4 and 6 aligned)
+    assert float(row["j5 [deg]"]) == 0.0 and float(row["j2 [deg]"]) == pytest.approx(-90.0)
+    cells = export_csv(r, tmp_path / "cells.csv", table="cells")
+    assert cells == r.cells
+    allrows = np.loadtxt(tmp_path / "cells.csv", delimiter=",", skiprows=1)
+    hdr = (tmp_path / "cells.csv").read_text().splitlines()[0].split(",")
+    assert hdr[1:3] == ["j3 [deg]", "j5 [deg]"]
+    np.testing.assert_allclose(allrows[:, hdr.index("manipulability")], r.flat("manipulability"), rtol=1e-9)
+    np.testing.assert_allclose(np.unique(allrows[:, 1]), np.linspace(-100, 140, 23))
+    p = export_png(r, tmp_path / "map.png", measure="min_sv")
+    import matplotlib.image as mpimg
+
+    img = mpimg.imread(p)
+    assert img.ndim == 3 and img.shape[0] > 300 and img.shape[1] > 400
+    with pytest.raises(ResultsError, match="--measure nope: not a map"):
+        export_png(r, tmp_path / "bad.png", measure="nope")
+    assert not (tmp_path / "bad.png").exists()
+    with pytest.raises(ResultsError, match="is a directory"):
+        export_csv(r, tmp_path)
+    assert sorted(q.name for q in tmp_path.iterdir()) == ["cells.csv", "map.png", "poses.csv", "r.h5"]
+
+
+def test_png_of_samples_and_single_joint(tmp_path):
+    cloud = run_study(StudySpec("joint_sweep", S6, settings={"mode": "samples", "samples": 3000}))
+    line = run_study(StudySpec("joint_sweep", S6, settings={"joints": ["j5"], "steps": [50]}))
+    for r, name in ((cloud, "cloud.png"), (line, "line.png")):
+        export_png(r, tmp_path / name)
+        assert os.path.getsize(tmp_path / name) > 5000

@@ -1,0 +1,119 @@
+"""Runner: the same study gives identical arrays on every executor; cancel keeps finished chunks;
+runs that cannot fit are refused before they start."""
+from __future__ import annotations
+
+import threading
+import time
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+from workbench.errors import WorkbenchError
+from workbench.results import read_results
+from workbench.runner import RunError, run_study
+from workbench.studies import StudySpec
+
+ROOT = Path(__file__).resolve().parents[1]
+S6 = str(ROOT / "arms" / "demo_s6.toml")
+
+
+def spec(**extra):
+    s = {"joints": ["j2", "j3"], "ranges": [[-140, 90], [-120, 160]], "steps": [60, 70], "store_tcp": True}
+    s.update(extra)
+    return StudySpec("joint_sweep", S6, settings=s, name="executors")
+
+
+def cloud():
+    return StudySpec("joint_sweep", S6, settings={"mode": "samples", "samples": 6000, "seed": 11})
+
+
+def assert_same(a, b):
+    assert [f.name for f in a.fields] == [f.name for f in b.fields]
+    for name in a.arrays:
+        np.testing.assert_array_equal(a.arrays[name], b.arrays[name], err_msg=name)
+    assert not a.incomplete and not b.incomplete
+
+
+@pytest.fixture(scope="module")
+def in_process():
+    return run_study(spec(), executor="inprocess"), run_study(cloud(), executor="inprocess", chunk_cells=2048)
+
+
+def test_local_processes_match_in_process(in_process):
+    calls = []
+    r = run_study(spec(), executor="processes", workers=2, chunk_cells=1000,
+                  progress=lambda d, t, e: calls.append((d, t, e)))
+    assert_same(in_process[0], r)
+    assert r.finished.size == 5 and r.attrs["executor"] == "processes"
+    assert calls[0][0] == 0 and calls[-1][:2] == (4200, 4200) and calls[-1][2] == 0
+    assert [c[0] for c in calls] == sorted(c[0] for c in calls)
+    assert_same(in_process[1], run_study(cloud(), executor="processes", workers=2, chunk_cells=1500))
+
+
+def test_dask_local_cluster_matches_in_process(in_process):
+    distributed = pytest.importorskip("distributed")
+    cluster = distributed.LocalCluster(n_workers=2, threads_per_worker=1, processes=True, dashboard_address=None)
+    try:
+        with distributed.Client(cluster) as client:
+            assert len(client.scheduler_info()["workers"]) == 2
+            r = run_study(spec(), executor="dask", pool=client, chunk_cells=1000)
+            assert_same(in_process[0], r)
+            assert r.attrs["executor"] == "dask"
+            assert_same(in_process[1], run_study(cloud(), executor="dask", pool=client, chunk_cells=1000))
+    finally:
+        cluster.close()
+
+
+def test_cancel_keeps_finished_chunks_and_marks_incomplete(tmp_path, in_process):
+    stop = threading.Event()
+    out = tmp_path / "cancelled.h5"
+    r = run_study(spec(), out=out, chunk_cells=500, cancel=stop, on_chunk=lambda c, a: stop.set())
+    assert r.incomplete and r.finished.tolist() == [True] + [False] * 8
+    back = read_results(out)
+    assert back.incomplete and back.attrs["chunks_done"] == 1
+    ref = in_process[0].flat("manipulability")
+    np.testing.assert_array_equal(back.flat("manipulability")[:500], ref[:500])
+    assert np.isnan(back.flat("manipulability")[500:]).all()
+    # a callable works as well, and cancelling before the start computes nothing
+    r0 = run_study(spec(), cancel=lambda: True)
+    assert r0.incomplete and not r0.finished.any()
+
+
+def test_cancel_from_another_thread_stops_processes_promptly(tmp_path):
+    stop = threading.Event()
+    box = {}
+    first = threading.Event()
+
+    def work():
+        box["r"] = run_study(spec(steps=[400, 500]), out=tmp_path / "c.h5", executor="processes", workers=2,
+                             chunk_cells=2000, cancel=stop, progress=lambda d, t, e: d and first.set())
+
+    t = threading.Thread(target=work)
+    t.start()
+    assert first.wait(120)
+    t0 = time.perf_counter()
+    stop.set()
+    t.join(30)
+    waited = time.perf_counter() - t0
+    r = box["r"]
+    assert r.incomplete and 0 < r.finished.sum() < r.finished.size
+    # cooperative cancel: the runner polls every 0.1 s and does not wait for running chunks
+    # (generous limit: the machine is shared)
+    assert waited < 5.0, waited
+    assert read_results(tmp_path / "c.h5").incomplete
+
+
+def test_runs_that_cannot_fit_are_refused(tmp_path):
+    huge = spec(steps=[100000, 90000])  # 9e9 cells: hundreds of GB of results
+    with pytest.raises(RunError, match="of memory but only .* is free; stream them to a file with --out"):
+        run_study(huge)
+    with pytest.raises(RunError, match="on disk but"):
+        run_study(huge, out=tmp_path / "big.h5")
+    assert list(tmp_path.iterdir()) == []
+    with pytest.raises(WorkbenchError, match="executor: expected one of"):
+        run_study(spec(), executor="threads")
+    with pytest.raises(WorkbenchError, match="--workers: expected a whole number"):
+        run_study(spec(), executor="processes", workers=0)
+    with pytest.raises(WorkbenchError, match="--scheduler nowhere: expected 'local' or an address"):
+        run_study(spec(), scheduler="nowhere")
