@@ -287,6 +287,14 @@ def test_too_few_joints_for_the_rows():
     assert ok.cause == "none"
 
 
+def test_joints_after_the_frame(demo):
+    q = np.radians([10, -60, 80, 20, 40, 30])
+    note = singularity_note(demo, q, frame="joint:4")
+    assert note.cause == "joints_after_frame" and note.pairs == ((4, 5),)
+    assert "Joints 5 and 6 come after the chosen frame" in note.text
+    assert note.text.startswith("At a singularity (inverse condition 0): frame 'joint:4' cannot")
+
+
 def test_note_threshold_and_frame(demo):
     q = np.radians([10, -60, 80, 20, 40, 30])
     inv = pose_measures(demo, q)["inverse_condition"]

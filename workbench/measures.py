@@ -414,7 +414,7 @@ class SingularityNote:
         0-based joints taking part in v_m (|v_k| >= PARTICIPATION * max |v|).
     cause : str
         "aligned_axes", "stretched", "folded", "point_on_axis", "parallel_slides",
-        "too_few_joints", "joints_combine" or "none" (not near singular).
+        "too_few_joints", "joints_after_frame", "joints_combine" or "none" (not near singular).
     pairs : tuple
         Joint index tuples (0-based) the cause refers to.
     sentences : tuple of str
@@ -514,6 +514,7 @@ def singularity_note(arm, q, frame="tcp", rows="full", length=None, threshold=NE
     for a, ri in enumerate(r):
         (lt if ri < 3 else lr)[ri % 3] = u[a]
     where = "world" if world else "base"
+    what = "the tool" if str(frame).lower() in ("tcp", "flange") else f"frame {frame!r}"
     sentences = []
     cause, pairs = "none", ()
     joints = ()
@@ -536,14 +537,14 @@ def singularity_note(arm, q, frame="tcp", rows="full", length=None, threshold=NE
         lost = (f"rotate about {_vec_words(_unit(lr))} while moving along {_vec_words(_unit(lt))} "
                 f"(a mixed direction: {nt:.0%} of it translation, scaled by L = {length:.3g} m)")
     if near:
-        head = (f"Near a singularity (inverse condition {inv:.3g} < {threshold:g}): the tool "
+        head = (f"Near a singularity (inverse condition {inv:.3g} < {threshold:g}): {what} "
                 f"can hardly {lost} ({where} frame).")
         if s[iw] <= 1e-9 * max(s[0], 1e-300):
-            head = (f"At a singularity (inverse condition {inv:.3g}): the tool cannot {lost} "
+            head = (f"At a singularity (inverse condition {inv:.3g}): {what} cannot {lost} "
                     f"({where} frame).")
     else:
         head = (f"Not near a singularity (inverse condition {inv:.3g} >= {threshold:g}); the weakest "
-                f"tool direction is: {lost} ({where} frame).")
+                f"direction of {what} is: {lost} ({where} frame).")
     sentences.insert(0, head)
 
     if near and np.any(v):
@@ -575,8 +576,16 @@ def singularity_note(arm, q, frame="tcp", rows="full", length=None, threshold=NE
                 ref, ref_name = x, "the wrist centre"
                 through_ref = {n - 3, n - 2, n - 1}
         found = False
+        # 0. joints that come after the frame's link do not move it at all
+        Jsel = J[list(r), :]
+        idle = [k for k in range(n) if not np.any(Jsel[:, k])]
+        if idle and all(k in idle for k in part):
+            sentences.append(f"Joint{'s' if len(idle) > 1 else ''} {joint_list(idle)} "
+                             f"{'come' if len(idle) > 1 else 'comes'} after the chosen frame and "
+                             f"{'do' if len(idle) > 1 else 'does'} not move it.")
+            cause, pairs, found = "joints_after_frame", (tuple(idle),), True
         # 1. two revolute axes on one line
-        for a in range(len(part)):
+        for a in range(len(part) if not found else 0):
             for b in range(a + 1, len(part)):
                 i, j = part[a], part[b]
                 if rev[i] and rev[j] and collinear(i, j):
@@ -648,7 +657,7 @@ def singularity_note(arm, q, frame="tcp", rows="full", length=None, threshold=NE
                         cand.append((off, "stretched" if stretched else "folded", tuple(group),
                                      f"The arm is {word}: joints {joint_list(group)} turn about "
                                      f"parallel axes that lie in one plane, so their motions "
-                                     f"are dependent and the tool direction above is lost."))
+                                     f"are dependent and the direction above is lost."))
                     break
             for i in part:
                 dist = _line_distance(P[i], Z[i], ref)
@@ -662,7 +671,7 @@ def singularity_note(arm, q, frame="tcp", rows="full", length=None, threshold=NE
                 pairs, found = (grp,), True
         if not found:
             ratios = " : ".join(f"{v[k]:+.2f}" for k in part)
-            sentences.append(f"Joints {joint_list(part)} move together so that the tool stands "
+            sentences.append(f"Joints {joint_list(part)} move together so that the frame stands "
                              f"still (joint speed ratios {ratios}).")
             cause, pairs = ("too_few_joints" if structural and cause == "too_few_joints" else
                             "joints_combine"), (tuple(part),)
