@@ -47,8 +47,8 @@ def _fmt_time(s: float) -> str:
 class _Progress:
     """Progress on stderr: a redrawn bar on a terminal, a line per 10 % otherwise."""
 
-    def __init__(self, stream=sys.stderr, quiet=False):
-        self.stream = stream
+    def __init__(self, stream=None, quiet=False):
+        self.stream = stream = stream if stream is not None else sys.stderr
         self.quiet = quiet
         self.tty = hasattr(stream, "isatty") and stream.isatty()
         self.last = 0.0
