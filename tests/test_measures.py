@@ -192,6 +192,17 @@ def test_wrist_singularity_names_the_aligned_joints(demo):
     assert explain_singularity(demo, q) == note.text
 
 
+@pytest.mark.parametrize("th5_deg, words", [
+    (0.5, "Joints 4 and 6 cancel: their axes line up (angle between them 0.5 deg)"),
+    (6.0, "Joints 4 and 6 nearly cancel: their axes cross at a shallow angle of 6 deg"),
+])
+def test_near_wrist_singularity(demo, th5_deg, words):
+    q = np.radians([10, -80, 70, 20, th5_deg, 30])
+    note = singularity_note(demo, q)
+    assert note.near_singular and note.cause == "aligned_axes" and note.pairs == ((3, 5),)
+    assert words in note.text and "can hardly" in note.text
+
+
 def test_wrist_alone_loses_the_rotation_about_the_common_normal():
     # A bare spherical wrist (three revolute axes meeting at a point) at th2 = 0: axes 1 and 3
     # line up and the rotation about the normal of axes 1 and 2 is lost (common practice).
@@ -236,6 +247,13 @@ def test_elbow_singularities_stretched_and_folded(demo):
         assert "wrist centre" in note.text
     # stretched: the wrist centre is beyond joint 3 as seen from joint 2; folded: back towards it
     assert causes == ["stretched", "folded"]
+    # 4 degrees away from the stretched pose the note still recognises it, and says "nearly"
+    qq = q.copy()
+    qq[2] = roots[0] + 4 * D
+    note = singularity_note(demo, qq)
+    assert note.near_singular and note.cause == "stretched"
+    assert "The arm is nearly stretched out (4 deg from it): joints 2 and 3" in note.text
+    assert "can hardly move it" in note.text
 
 
 def test_shoulder_singularity_point_on_axis(demo):

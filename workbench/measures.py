@@ -120,6 +120,11 @@ NEAR_SINGULAR = 0.02
 PARTICIPATION = 0.3
 #: Two axis directions count as parallel when the angle between them is below this (rad, 5 degrees).
 PARALLEL_ANGLE = np.radians(5.0)
+#: Two crossing revolute axes of joints that dominate v_m are said to "nearly line up" below this
+#: angle (rad, 30 degrees); the point of a stretched/folded arm may lie this far off the plane
+#: of the two axes (seen from the second axis).
+ALIGN_NEAR = np.radians(30.0)
+PLANE_NEAR = np.radians(20.0)
 #: Two axis lines count as meeting / a point lies on a line or plane when closer than this fraction
 #: of the arm's nominal reach.
 NEAR_FRACTION = 0.02
@@ -584,19 +589,36 @@ def singularity_note(arm, q, frame="tcp", rows="full", length=None, threshold=NE
                              f"{'come' if len(idle) > 1 else 'comes'} after the chosen frame and "
                              f"{'do' if len(idle) > 1 else 'does'} not move it.")
             cause, pairs, found = "joints_after_frame", (tuple(idle),), True
-        # 1. two revolute axes on one line
+        # 1. two revolute axes on one line (or crossing at a shallow angle: nearly on one line)
+        best = None
         for a in range(len(part) if not found else 0):
             for b in range(a + 1, len(part)):
                 i, j = part[a], part[b]
-                if rev[i] and rev[j] and collinear(i, j):
-                    ang = np.degrees(np.arcsin(min(1.0, np.linalg.norm(np.cross(Z[i], Z[j])))))
-                    sentences.append(f"Joints {joint_list([i, j])} cancel: their axes line up "
-                                     f"(angle between them {ang:.2g} deg), so turning one against "
-                                     f"the other moves nothing.")
-                    cause, pairs, found = "aligned_axes", ((i, j),), True
-                    break
-            if found:
-                break
+                if not (rev[i] and rev[j]):
+                    continue
+                cr = np.cross(Z[i], Z[j])
+                sang = min(1.0, float(np.linalg.norm(cr)))
+                if sang < 1e-9:
+                    gap = max(_line_distance(P[i], Z[i], P[j]), _line_distance(P[j], Z[j], P[i]))
+                else:
+                    gap = abs(float(np.dot(P[j] - P[i], cr))) / sang
+                if gap < tol and sang < np.sin(ALIGN_NEAR) and (best is None or sang < best[0]):
+                    best = (sang, i, j)
+        near_cand = []  # looser matches, used only when no exact geometric cause is found:
+        #                 (sine of the angle off, cause, joints, sentence)
+        if best is not None:
+            sang, i, j = best
+            ang = np.degrees(np.arcsin(sang))
+            if sang < sin_tol:
+                sentences.append(f"Joints {joint_list([i, j])} cancel: their axes line up (angle "
+                                 f"between them {ang:.2g} deg), so turning one against the other "
+                                 f"moves nothing.")
+                cause, pairs, found = "aligned_axes", ((i, j),), True
+            else:
+                near_cand.append((sang, "aligned_axes", (i, j),
+                                  f"Joints {joint_list([i, j])} nearly cancel: their axes cross at "
+                                  f"a shallow angle of {ang:.0f} deg, so turning one against the "
+                                  f"other moves little."))
         # 2. two sliding joints along parallel axes
         if not found:
             for a in range(len(part)):
@@ -631,13 +653,20 @@ def singularity_note(arm, q, frame="tcp", rows="full", length=None, threshold=NE
                     C2 = ref - np.dot(ref, z) * z
                     ab = _unit(B2 - A2)
                     off = float(np.linalg.norm((C2 - A2) - np.dot(C2 - A2, ab) * ab))
-                    if off < tol and min(np.linalg.norm(C2 - A2), np.linalg.norm(C2 - B2)) > off:
+                    lever = float(np.linalg.norm(C2 - B2))
+                    dev = float(np.arcsin(min(1.0, off / lever))) if lever > 0 else np.pi / 2
+                    if (off < tol or dev < PLANE_NEAR) and min(np.linalg.norm(C2 - A2), lever) > off:
                         stretched = bool(np.dot(B2 - A2, C2 - B2) > 0)
                         word = "stretched out" if stretched else "folded back"
-                        cand.append((off, "stretched" if stretched else "folded", (i, j),
+                        lie, can, into = "lie", "cannot", cand
+                        if off >= tol:
+                            word = f"nearly {word} ({np.degrees(dev):.0f} deg from it)"
+                            lie, can, into = "nearly lie", "can hardly", near_cand
+                        into.append((off if into is cand else off / lever,
+                                     "stretched" if stretched else "folded", (i, j),
                                      f"The arm is {word}: joints {joint_list([i, j])} turn about "
-                                     f"parallel axes that lie in one plane with {ref_name}, so "
-                                     f"together they cannot move it towards or away from joint "
+                                     f"parallel axes that {lie} in one plane with {ref_name}, so "
+                                     f"together they {can} move it towards or away from joint "
                                      f"{jn(i)}'s axis."))
             if any(ri >= 3 for ri in r):
                 for a in range(len(part)):
@@ -665,14 +694,17 @@ def singularity_note(arm, q, frame="tcp", rows="full", length=None, threshold=NE
                     cand.append((dist, "point_on_axis", (i,),
                                  f"{ref_name[0].upper() + ref_name[1:]} lies on the axis of joint "
                                  f"{jn(i)}, so turning joint {jn(i)} does not move it."))
+            if not cand:
+                cand = near_cand
             if cand:
                 _, cause, grp, sent = min(cand, key=lambda c: c[0])
                 sentences.append(sent)
                 pairs, found = (grp,), True
         if not found:
             ratios = " : ".join(f"{v[k]:+.2f}" for k in part)
-            sentences.append(f"Joints {joint_list(part)} move together so that the frame stands "
-                             f"still (joint speed ratios {ratios}).")
+            still = "stands still" if s[iw] <= 1e-9 * max(s[0], 1e-300) else "hardly moves"
+            sentences.append(f"Joints {joint_list(part)} move together so that the frame {still} "
+                             f"(joint speed ratios {ratios}).")
             cause, pairs = ("too_few_joints" if structural and cause == "too_few_joints" else
                             "joints_combine"), (tuple(part),)
     elif near and structural:
