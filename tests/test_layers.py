@@ -10,7 +10,7 @@ ROOT = Path(__file__).resolve().parents[1]
 def test_import_linter_contracts_hold():
     exe = shutil.which("lint-imports")
     assert exe, "import-linter is part of the test extra"
-    res = subprocess.run([exe, "--no-cache", "--config", str(ROOT / "pyproject.toml")], cwd=ROOT,
+    res = subprocess.run([exe, "--no-cache", str(ROOT / "pyproject.toml")], cwd=ROOT,
                          capture_output=True, text=True)
     assert res.returncode == 0, res.stdout + res.stderr
 

@@ -17,10 +17,9 @@ __all__ = ["load_arm", "measures", "pose_measures", "Arm", "__version__"]
 
 def load_arm(path, base_link=None, tip_link=None):
     """Load an arm file (.toml) or URDF (.urdf) -> :class:`workbench.kinematics.Arm`."""
-    from .arm import read_arm_model
-    from .kinematics import Arm
+    from .kinematics.arm import load_arm as _load
 
-    return Arm(read_arm_model(path, base_link=base_link, tip_link=tip_link))
+    return _load(path, base_link=base_link, tip_link=tip_link)
 
 
 

@@ -16,11 +16,9 @@ from __future__ import annotations
 import importlib
 import os
 import time
-from pathlib import Path
 
 import numpy as np
 
-ARMS_DIR = Path(__file__).resolve().parent.parent / "arms"
 
 ENTRIES = [
     ("kernel", "workbench.bench:bench_kernel"),
@@ -35,18 +33,8 @@ ENTRIES = [
 ]
 
 
-def demo_arm_path(name: str = "demo_s6.toml") -> Path:
-    return ARMS_DIR / name
-
-
-def _best_time(fn, repeat=3):
-    best = np.inf
-    out = None
-    for _ in range(repeat):
-        t = time.perf_counter()
-        out = fn()
-        best = min(best, time.perf_counter() - t)
-    return best, out
+from .benchutil import best_time as _best_time  # noqa: E402
+from .benchutil import demo_arm_path  # noqa: E402,F401  (kept importable from here)
 
 
 def bench_kernel(quick: bool = False) -> dict:
@@ -57,7 +45,7 @@ def bench_kernel(quick: bool = False) -> dict:
     * per-pose loop: central-difference Jacobian of a per-pose numpy FK, then np.linalg.svd.
     Accuracy: max |s_engine - s_numpy| / s1 over random poses and near-singular poses.
     """
-    from . import load_arm
+    from .kinematics import load_arm
     from .kinematics.reference import fk_numpy, jacobian_numpy, numeric_jacobian
     from .measures import measures_from_sv
 

@@ -209,3 +209,22 @@ class Arm:
         lo = np.where(np.isfinite(self.model.lower), self.model.lower, -unlimited)
         hi = np.where(np.isfinite(self.model.upper), self.model.upper, unlimited)
         return rng.uniform(lo, hi, size=(int(count), self.model.n))
+
+    # ------------------------------------------------------------------------------------------
+    def ik(self, T_goal, seeds=8, orientation="fixed", **kwargs):
+        """Inverse kinematics of the TCP: T_goal (..., 4, 4) in the base frame -> (q (..., n), status (...)).
+
+        Status codes and the other keyword arguments (q_seed, pos_tol, rot_tol, max_iter, rng,
+        all_solutions) are those of :func:`workbench.kinematics.ik.solve_ik`; status 0 = converged.
+        """
+        from .ik import solve_ik
+
+        res = solve_ik(self, T_goal, seeds=seeds, orientation=orientation, **kwargs)
+        return res.q, res.status
+
+
+def load_arm(path, base_link=None, tip_link=None) -> Arm:
+    """Load an arm file (.toml) or URDF (.urdf) -> :class:`Arm` (also ``workbench.load_arm``)."""
+    from ..arm import read_arm_model
+
+    return Arm(read_arm_model(path, base_link=base_link, tip_link=tip_link))
