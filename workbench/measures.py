@@ -120,10 +120,11 @@ NEAR_SINGULAR = 0.02
 PARTICIPATION = 0.3
 #: Two axis directions count as parallel when the angle between them is below this (rad, 5 degrees).
 PARALLEL_ANGLE = np.radians(5.0)
-#: Two crossing revolute axes of joints that dominate v_m are said to "nearly line up" below this
-#: angle (rad, 30 degrees); the point of a stretched/folded arm may lie this far off the plane
-#: of the two axes (seen from the second axis).
+#: Two crossing revolute axes of joints that dominate v_m "nearly line up" below this angle (rad,
+#: 30 degrees).
 ALIGN_NEAR = np.radians(30.0)
+#: The point of a "nearly stretched / folded" arm may lie up to this angle (rad, 20 degrees) off
+#: the plane of two parallel axes, seen from the second axis.
 PLANE_NEAR = np.radians(20.0)
 #: Two axis lines count as meeting / a point lies on a line or plane when closer than this fraction
 #: of the arm's nominal reach.
@@ -476,7 +477,18 @@ def _meeting_point(points, dirs):
 
 def singularity_note(arm, q, frame="tcp", rows="full", length=None, threshold=NEAR_SINGULAR,
                      world=False) -> SingularityNote:
-    """Structured form of :func:`explain_singularity` for one pose q (n,)."""
+    """Structured form of :func:`explain_singularity` for one pose q (n,) (rad, m).
+
+    Parameters are those of :func:`explain_singularity`; returns a :class:`SingularityNote`
+    whose ``text`` is what :func:`explain_singularity` returns.
+
+    The geometric tests use the joint axis lines at q (from ``arm.frames``) and tolerances
+    stated at the top of this section: axes parallel within ``PARALLEL_ANGLE`` (5 deg), lines
+    meeting / points on lines or planes within ``NEAR_FRACTION`` (2 %) of the nominal reach;
+    looser "nearly" matches (axes crossing below ``ALIGN_NEAR`` = 30 deg, a point up to
+    ``PLANE_NEAR`` = 20 deg off the plane of two parallel axes) are used only when no exact
+    cause fits.
+    """
     m_ = arm.model
     q = np.asarray(q, dtype=float)
     if q.shape != (m_.n,):
@@ -707,8 +719,6 @@ def singularity_note(arm, q, frame="tcp", rows="full", length=None, threshold=NE
                              f"(joint speed ratios {ratios}).")
             cause, pairs = ("too_few_joints" if structural and cause == "too_few_joints" else
                             "joints_combine"), (tuple(part),)
-    elif near and structural:
-        pass
     return SingularityNote(bool(near), inv, float(threshold), names, s.copy(), u, lt, lr, v,
                            joints, cause, pairs, tuple(sentences))
 
