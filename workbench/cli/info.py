@@ -31,9 +31,10 @@ def add_arm_arguments(p) -> None:
 
 def load(args):
     """The :class:`workbench.kinematics.Arm` named by ``args.arm`` (with --base/--tip)."""
-    from .. import load_arm
+    from ..arm import read_arm_model
+    from ..kinematics import Arm
 
-    return load_arm(args.arm, base_link=args.base, tip_link=args.tip)
+    return Arm(read_arm_model(args.arm, base_link=args.base, tip_link=args.tip))
 
 
 def joint_unit(joint) -> tuple[float, str]:
@@ -177,12 +178,12 @@ def warnings_for(arm) -> list[str]:
         if par and (on_line or m.kinds[k] == 1):
             how = "share one axis line" if m.kinds[k] == 0 else "slide along parallel axes"
             out.append(f"joints {names([k, k + 1])} {how}: the arm is singular at every pose")
-    if arm.nominal_reach() <= 1e-9 or np.allclose(m.origins[1:, :3, 3], 0) and np.allclose(m.tcp_offset[:3, 3], 0):
+    if np.all(m.kinds == 0) and np.allclose(m.origins[1:, :3, 3], 0) and np.allclose(m.tcp_offset[:3, 3], 0):
         out.append("all link lengths are zero: the tool point never leaves joint 1's frame")
     if np.array_equal(m.tcp_offset, np.eye(4)) and m.n > 0:
         out.append("no tool and no flange offset: the TCP is the last joint's frame")
     if m.n < 6:
-        out.append(f"{m.n} joints: full 6-row measures are zero at every pose; use --rows translation, "
+        out.append(f"{m.n} joint{'s' if m.n != 1 else ''}: full 6-row measures are zero at every pose; use --rows translation, "
                    f"planar or a custom row list")
     elif m.n > 6:
         out.append(f"{m.n} joints: redundant for 6 task rows; inverse kinematics picks one of many "
@@ -236,7 +237,8 @@ def format_info(info: dict) -> str:
     lines = [f"{info['name']}" + (f"  ({info['file']})" if info.get("file") else "")]
     if info.get("description"):
         lines.append(f"  {info['description']}")
-    lines.append(f"  {info['dof']} joints: {info['revolute']} revolute, {info['prismatic']} prismatic")
+    lines.append(f"  {info['dof']} joint{'s' if info['dof'] != 1 else ''}: {info['revolute']} revolute, "
+                 f"{info['prismatic']} prismatic")
     lines.append("")
     rows = [("#", "joint", "type", "limits", "max speed", "max effort", "mass kg", "COM mm (joint frame)")]
     for j in info["joints"]:

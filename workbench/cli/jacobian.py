@@ -128,8 +128,11 @@ def _note(arm, q, frame, rows, length, world):
 def format_jacobian(data: dict, J: np.ndarray, arm) -> str:
     """The text ``workbench jacobian`` prints."""
     m = arm.model
-    qs = ", ".join(f"{fmt_num(v, 6)}" + ("" if u == "deg" else " mm") for v, u in zip(data["q"], data["q_units"]))
-    lines = [f"{data['arm']}: Jacobian of '{data['frame']}' at q = [{qs}] deg ({data['reference']} frame)"]
+    if all(u == "deg" for u in data["q_units"]):
+        qs = "[" + ", ".join(fmt_num(v, 6) for v in data["q"]) + "] deg"
+    else:
+        qs = "[" + ", ".join(f"{fmt_num(v, 6)} {u}" for v, u in zip(data["q"], data["q_units"])) + "]"
+    lines = [f"{data['arm']}: Jacobian of '{data['frame']}' at q = {qs} ({data['reference']} frame)"]
     lines.append("  columns: joints; rows: tool velocity vx vy vz (m/s) and angular velocity wx wy wz (rad/s) "
                  "per unit joint speed (rad/s, or m/s for prismatic joints)")
     heads = [n if len(n) <= 10 else n[:9] + "~" for n in m.names]
