@@ -210,3 +210,37 @@ def test_random_urdf_trees_only_raise_arm_file_errors(text, base, tip):
         m = parse_urdf_text(text, "random.urdf", base_link=base, tip_link=tip)
         assert 1 <= m.n and np.all(np.isfinite(m.origins))
         assert same_arm(m, parse_arm_text(dumps_arm(m), "urdf.toml"), atol=1e-9)
+
+
+@settings(max_examples=25, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@given(valid_arm(), st.integers(0, 2**31 - 1))
+def test_info_and_jacobian_commands_handle_random_valid_arms(d, seed):
+    from workbench.cli.info import format_info, summarise
+
+    arm = Arm(parse_arm_dict(copy.deepcopy(d), "random.toml"))
+    info = summarise(arm, samples=50, seed=seed)
+    assert info["dof"] == arm.n and len(info["joints"]) == arm.n
+    assert info["reach"]["from_axis_m"] <= info["reach"]["from_origin_m"] + 1e-9
+    assert arm.model.name in format_info(info)
+    # the jacobian command's text for a random pose (no exception, one column per joint)
+    import argparse
+    import contextlib
+    import io
+
+    from workbench.cli import jacobian
+
+    q = arm.random_q(1, rng=seed)[0]
+    tokens = [",".join(repr(float(v * (180 / math.pi if j.revolute else 1000))) for v, j in zip(q, arm.model.joints))]
+    np.testing.assert_allclose(jacobian.parse_q(tokens, arm), q, rtol=1e-12, atol=1e-12)
+    buf = io.StringIO()
+    args = argparse.Namespace(arm=None, base=None, tip=None, q=tokens, frame="tcp", rows="translation",
+                              length=None, world=True, json=False)
+    jacobian.load = lambda a, _arm=arm: _arm  # the arm is built in memory here
+    try:
+        with contextlib.redirect_stdout(buf):
+            assert jacobian.run(args) == 0
+    finally:
+        from workbench.cli import info as _info
+
+        jacobian.load = _info.load
+    assert "singular values:" in buf.getvalue()
