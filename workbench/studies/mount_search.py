@@ -441,6 +441,16 @@ def summarise_mount_search(plan, arrays, top: int = 20) -> dict:
          "reached": f[order] * 100, "worst_measure": w[order], "min_margin": mm[order], "score": score[order]},
         {"x": "mm", "y": "mm", "height": "mm", "yaw": "deg", "reached": "%"},
         formula)}
+    pr = np.asarray(arrays["point_reached"]).reshape(-1, len(plan.data["point_names"]))
+    never = ~(pr[done] > 0).any(axis=0) if done.any() else np.ones(pr.shape[1], bool)
+    if never.any():
+        names = [nm for nm, nv in zip(plan.data["point_names"], never) if nv]
+        tables["unreachable"] = Table(
+            "Work points not reached from any candidate mount",
+            {"point": np.array(names, dtype=object),
+             "note": np.array(["unreachable from every candidate mount of the region (out of reach, "
+                               "blocked by joint limits, or not found from the IK seeds)"] * len(names), dtype=object)},
+            {}, f"{len(names)} of {len(never)} work points are unreachable from all {int(done.sum())} candidates")
     if not len(order) or score[order[0]] <= 0:
         return tables
     arm = Arm(plan.data["arm_model"])

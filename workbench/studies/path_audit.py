@@ -402,6 +402,9 @@ def compute_audit_chunk(plan, arm, start, stop) -> dict:
         sl = slice(lo - p0, hi - p0)
         qq, ff = q[sl], flags[sl]
         a = audit_samples(arm, qq, d["twist"][lo:hi], rule, s, R_base)
+        miss = (ff & REACHED) == 0  # no pose there: no measures either
+        for key in ("inverse_condition", "min_sv", "manipulability", "qdot", "speed_ratio", "margin"):
+            a[key] = np.where(miss.reshape((-1,) + (1,) * (a[key].ndim - 1)), np.nan, a[key])
         ff = ff | np.where(a["inverse_condition"] < s.near_singular, NEAR_SINGULAR, 0).astype(np.uint8)
         ff = ff | np.where(a["speed_ratio"] > 1.0, OVER_SPEED, 0).astype(np.uint8)
         o = slice(lo - start, hi - start)
