@@ -44,6 +44,8 @@ SCHEMA_VERSION = 1
 FORMAT = "manipulability-workbench results"
 #: target size of one compressed HDF5 chunk (bytes, before compression)
 H5_CHUNK_BYTES = 1 << 20
+#: results up to this size are mirrored in memory while streaming to a file
+MIRROR_BYTES = 256 << 20
 
 
 class ResultsError(WorkbenchError):
@@ -209,6 +211,25 @@ class _WriterBase:
         return a
 
 
+    def _results(self, flat_arrays, incomplete, tables, attrs, path=None) -> Results:
+        p = self.plan
+        arrays = {f.name: flat_arrays[f.name].reshape(p.shape + f.shape) for f in p.fields}
+        return Results(kind=p.kind, name=attrs["name"], axes=p.axes, fields=p.fields, arrays=arrays,
+                       finished=self.finished.copy(), chunk_cells=p.chunk_cells, incomplete=bool(incomplete),
+                       tables=dict(tables or {}), study_text=self.study_text, arm_text=self.arm_text,
+                       cell_text=self.cell_text, attrs=attrs, path=path, plan=p)
+
+
+def _fill_unfinished(plan, finished, arrays):
+    """Set the cells of unfinished chunks to each field's fill value (arrays are allocated empty)."""
+    if finished.all():
+        return
+    for i in np.flatnonzero(~finished):
+        c = plan.chunk(int(i))
+        for f in plan.fields:
+            arrays[f.name][c.start:c.stop] = f.fill
+
+
 class MemoryWriter(_WriterBase):
     """Collects chunks in memory; :meth:`close` returns :class:`Results`."""
 
@@ -222,13 +243,7 @@ class MemoryWriter(_WriterBase):
         self.finished[chunk.index] = True
 
     def close(self, incomplete: bool, tables=None, attrs=None) -> Results:
-        p = self.plan
-        a = self._root_attrs(incomplete, attrs)
-        arrays = {f.name: v.reshape(p.shape + f.shape) for f, v in zip(p.fields, self.arrays.values())}
-        return Results(kind=p.kind, name=a["name"], axes=p.axes, fields=p.fields, arrays=arrays,
-                       finished=self.finished.copy(), chunk_cells=p.chunk_cells, incomplete=bool(incomplete),
-                       tables=dict(tables or {}), study_text=self.study_text, arm_text=self.arm_text,
-                       cell_text=self.cell_text, attrs=a, path=None, plan=p)
+        return self._results(self.arrays, incomplete, tables, self._root_attrs(incomplete, attrs))
 
     def abort(self) -> None:
         self.arrays = {}
@@ -248,13 +263,21 @@ class ResultsWriter(_WriterBase):
     texts : dict
         ``{"study": str, "arm": str, "cell": str or None}`` input file texts.
     compression : str
-        "gzip" (level 1, readable by any HDF5 tool; default) or "lzf" (faster, h5py only) or None.
+        "lzf" (fast; h5py's built-in filter, default) or "gzip" (level 1, readable by any HDF5 tool)
+        or None; both after the byte-shuffle filter.
+    mirror_bytes : int
+        Keep a copy of the arrays in memory when the results are at most this big.
     """
 
-    def __init__(self, path, plan: Plan, texts=None, attrs=None, compression="gzip"):
+    def __init__(self, path, plan: Plan, texts=None, attrs=None, compression="lzf", mirror_bytes=MIRROR_BYTES):
         import h5py
 
         super().__init__(plan, texts, attrs)
+        if compression not in ("lzf", "gzip", None):
+            raise ResultsError(f"compression: expected 'lzf', 'gzip' or none, got {compression!r}")
+        # small results are also kept in memory: summaries and the returned Results need no re-read
+        self.mirror = ({f.name: np.empty((plan.cells,) + f.shape, f.dtype) for f in plan.fields}
+                       if plan.result_bytes <= mirror_bytes else None)
         self.path = check_output_path(path)
         folder, base = os.path.split(self.path)
         self.tmp = os.path.join(folder, f".{base}.{os.getpid()}.partial")
@@ -285,9 +308,9 @@ class ResultsWriter(_WriterBase):
         cells = max(1, p.cells)
         kw = {}
         if compression == "gzip":
-            kw = dict(compression="gzip", compression_opts=1)
+            kw = dict(compression="gzip", compression_opts=1, shuffle=True)
         elif compression == "lzf":
-            kw = dict(compression="lzf")
+            kw = dict(compression="lzf", shuffle=True)
         self.ds = {}
         for f in p.fields:
             per = max(1, f.cell_bytes)
@@ -308,19 +331,25 @@ class ResultsWriter(_WriterBase):
         """Write one chunk's arrays ``{field: (chunk.size, *shape)}`` and mark it finished."""
         for f in self.plan.fields:
             self.ds[f.name][chunk.start:chunk.stop] = arrays[f.name]
+            if self.mirror is not None:
+                self.mirror[f.name][chunk.start:chunk.stop] = arrays[f.name]
         self.finished[chunk.index] = True
         self.fin[chunk.index] = True
 
-    def full_arrays(self, max_bytes: int = 256 << 20):
-        """The arrays written so far, read back (flattened) when they fit in ``max_bytes``;
-        None otherwise."""
-        if self.plan.result_bytes > max_bytes:
-            return None
-        return {name: ds[...] for name, ds in self.ds.items()}
+    def full_arrays(self):
+        """The arrays written so far (flattened) when they are kept in memory; None otherwise.
+        Cells of unfinished chunks hold the fill value."""
+        if self.mirror is not None:
+            _fill_unfinished(self.plan, self.finished, self.mirror)
+        return self.mirror
 
-    def close(self, incomplete: bool, tables=None, attrs=None) -> str:
-        """Write tables and attributes, close and rename onto the final name. Returns the path."""
+    def close(self, incomplete: bool, tables=None, attrs=None):
+        """Write tables and attributes, close and rename onto the final name.
+
+        Returns :class:`Results` (arrays from memory) when the arrays were kept in memory, else
+        the path (read it with :func:`read_results`)."""
         h = self.h5
+        root = self._root_attrs(incomplete, attrs)
         try:
             if tables:
                 gt = h.create_group("tables")
@@ -330,14 +359,17 @@ class ResultsWriter(_WriterBase):
                                    columns=json.dumps(list(t.columns)), units=json.dumps(t.units))
                     for col, v in t.columns.items():
                         g.create_dataset(col, data=np.asarray(v))
-            for k, v in self._root_attrs(incomplete, attrs).items():
+            for k, v in root.items():
                 h.attrs[k] = v
             h.close()
         except BaseException:
             self.abort()
             raise
         os.replace(self.tmp, self.path)
-        return self.path
+        if self.mirror is None:
+            return self.path
+        _fill_unfinished(self.plan, self.finished, self.mirror)
+        return self._results(self.mirror, incomplete, tables, root, path=self.path)
 
     def abort(self) -> None:
         """Close and delete the temporary file (nothing appears under the final name)."""

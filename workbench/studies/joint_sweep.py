@@ -409,12 +409,12 @@ class JointSweep(StudyKind):
         v = np.asarray(arrays[key], dtype=float).reshape(-1)
         ok = np.isfinite(v)
         tables = {}
-        order = np.argsort(np.where(ok, v, np.inf), kind="stable")
-        low = order[: min(count, int(ok.sum()))]
+        k = min(count, int(ok.sum()))
+        low = _smallest(np.where(ok, v, np.inf), k)
         low = low[v[low] < st.near_singular]
         tables["near_singular"] = self._pose_table(plan, arrays, low, f"Near-singular poses ({key} < "
                                                    f"{st.near_singular:g}), most singular first")
-        high = np.argsort(np.where(ok, -v, np.inf), kind="stable")[: min(count, int(ok.sum()))]
+        high = _smallest(np.where(ok, -v, np.inf), k)
         tables["best"] = self._pose_table(plan, arrays, high, f"Best-conditioned poses (highest {key})")
         return tables
 
@@ -457,3 +457,17 @@ class JointSweep(StudyKind):
                 cols[f.name] = np.asarray(arrays[f.name]).reshape(-1)[flat_index].astype(float)
                 units[f.name] = ""
         return Table(title=title, columns=cols, units=units)
+
+
+def _smallest(v: np.ndarray, k: int) -> np.ndarray:
+    """Indices of the k smallest values of v, ascending (ties by index); O(N) selection."""
+    if k <= 0:
+        return np.empty(0, dtype=np.int64)
+    if k < v.size:
+        part = np.argpartition(v, k - 1)[:k]
+        kth = v[part].max()
+        cand = np.flatnonzero(v <= kth)  # all ties of the k-th value, so the order is stable
+    else:
+        cand = np.arange(v.size)
+    order = np.lexsort((cand, v[cand]))
+    return cand[order][:k]
