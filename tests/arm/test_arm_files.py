@@ -423,3 +423,9 @@ def test_near_orthonormal_rot_is_cleaned_to_a_rotation():
     O = a.joints[2].origin[:3, :3]
     np.testing.assert_allclose(O.T @ O, np.eye(3), atol=1e-14)
     np.testing.assert_allclose(O, rot_z(0.3)[:3, :3], atol=1e-7)
+
+
+def test_write_into_a_missing_folder_is_one_clear_error(tmp_path):
+    with pytest.raises(ArmFileError, match=r"no_dir/a\.toml: cannot be written"):
+        write_arm_file(_code_arm(), tmp_path / "no_dir" / "a.toml")
+    assert not (tmp_path / "no_dir").exists()

@@ -652,6 +652,8 @@ def write_arm_file(model: ArmModel, path) -> None:
         with open(tmp, "w", encoding="utf-8") as fh:
             fh.write(text)
         os.replace(tmp, path)
+    except OSError as exc:
+        raise ArmFileError(f"{path}: cannot be written ({exc.strerror or exc})") from None
     finally:
         if os.path.exists(tmp):
             os.unlink(tmp)

@@ -217,6 +217,7 @@ def summarise(arm, samples=REACH_SAMPLES, seed=0) -> dict:
         "file": m.path and os.fspath(m.path),
         "name": m.name,
         "description": m.description,
+        "described_as": _described_as(m),
         "dof": m.n,
         "revolute": int(np.sum(m.kinds == 0)),
         "prismatic": int(np.sum(m.kinds == 1)),
@@ -232,13 +233,21 @@ def summarise(arm, samples=REACH_SAMPLES, seed=0) -> dict:
     }
 
 
+def _described_as(m) -> str:
+    if m.source is None:
+        return "URDF" if (m.path or "").lower().endswith((".urdf", ".xml")) else "built in code"
+    arm = m.source.get("arm", {})
+    geometry = {"dh": "standard DH", "mdh": "modified DH", "origins": "origins (xyz, rpy, axis)"}
+    return f"{geometry.get(arm.get('geometry', 'origins'), '?')} in {arm.get('length_unit', 'm')}"
+
+
 def format_info(info: dict) -> str:
     """The text ``workbench info`` prints."""
     lines = [f"{info['name']}" + (f"  ({info['file']})" if info.get("file") else "")]
     if info.get("description"):
         lines.append(f"  {info['description']}")
     lines.append(f"  {info['dof']} joint{'s' if info['dof'] != 1 else ''}: {info['revolute']} revolute, "
-                 f"{info['prismatic']} prismatic")
+                 f"{info['prismatic']} prismatic; described as {info['described_as']}")
     lines.append("")
     rows = [("#", "joint", "type", "limits", "max speed", "max effort", "mass kg", "COM mm (joint frame)")]
     for j in info["joints"]:
