@@ -688,7 +688,7 @@ def sample_path(cell: Cell, path: Path, spacing: float) -> PathSamples:
         a, b = prev.position, nxt.position
         if seg.kind == "line":
             length = float(np.linalg.norm(b - a))
-            m = max(2, int(math.ceil(length / spacing)) + 1)
+            m = max(2, int(math.ceil(length / spacing - 1e-9)) + 1)
             u = np.linspace(0.0, 1.0, m)
             pos = a + u[:, None] * (b - a)
             tan = np.tile((b - a) / length, (m, 1))
@@ -710,7 +710,7 @@ def sample_path(cell: Cell, path: Path, spacing: float) -> PathSamples:
 
             th_b = ang(b)  # the arc from a (0) runs positively about axis through via then to b
             length = radius * th_b
-            m = max(2, int(math.ceil(length / spacing)) + 1)
+            m = max(2, int(math.ceil(length / spacing - 1e-9)) + 1)
             th = np.linspace(0.0, th_b, m)
             pos = centre + radius * (np.cos(th)[:, None] * e1 + np.sin(th)[:, None] * e2)
             tan = -np.sin(th)[:, None] * e1 + np.cos(th)[:, None] * e2
