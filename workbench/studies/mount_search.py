@@ -437,7 +437,7 @@ def summarise_mount_search(plan, arrays, top: int = 20) -> dict:
         "Mount ranking (grid)",
         {"rank": np.arange(1, len(order) + 1), "x": ax["x"][xi] * 1000, "y": ax["y"][yyi] * 1000,
          "height": ax["height"][hi] * 1000, "yaw": np.degrees(ax["yaw"][yi]),
-         "style": np.array([styles[k] for k in si], dtype=object),
+         "style": (np.array([styles[k] for k in si], dtype=object) if len(si) else np.zeros(0, dtype="S1")),
          "reached": f[order] * 100, "worst_measure": w[order], "min_margin": mm[order], "score": score[order]},
         {"x": "mm", "y": "mm", "height": "mm", "yaw": "deg", "reached": "%"},
         formula)}

@@ -381,6 +381,13 @@ class PathAudit(StudyKind):
         return summarise_audit(plan, arrays)
 
 
+def _col(values, text=False):
+    """A table column: text as an object array of str (an empty one as bytes, which HDF5 can store)."""
+    if text:
+        return np.array(values, dtype=object) if len(values) else np.zeros(0, dtype="S1")
+    return np.array(values, dtype=float)
+
+
 def _rows_text(rows):
     return rows if isinstance(rows, str) else ",".join(map(str, rows))
 
@@ -457,7 +464,7 @@ def summarise_audit(plan, arrays) -> dict:
             note = f"(no note: {exc})"
         rows["note"].append(note)
     tables["near_singular"] = Table(
-        "Near-singular spans", {k: np.array(v, dtype=object if k in ("path", "note") else float) for k, v in rows.items()},
+        "Near-singular spans", {k: _col(v, k in ("path", "note")) for k, v in rows.items()},
         {"from": "mm", "to": "mm", "at": "mm"},
         f"samples with inverse condition ({_rows_text(s.rows)} rows) below {s.near_singular:g}")
     wrow = {"path": [], "length": [], "tool_speed": [], "worst_speed_ratio": [], "at": [], "joint": [],
@@ -480,7 +487,7 @@ def summarise_audit(plan, arrays) -> dict:
         wrow["forced"].append(int((m & ((flags & FORCED) > 0)).sum()))
     tables["paths"] = Table(
         "Paths: worst joint-speed ratio and tracking",
-        {k: np.array(v, dtype=object if k in ("path", "joint") else float) for k, v in wrow.items()},
+        {k: _col(v, k in ("path", "joint")) for k, v in wrow.items()},
         {"length": "mm", "tool_speed": "mm/s", "at": "mm"},
         "speed ratio = |joint speed needed| / joint speed limit (> 1: the tool speed cannot be kept)")
     fl = np.flatnonzero(done & ((flags & JUMP) > 0))
