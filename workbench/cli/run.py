@@ -116,7 +116,10 @@ def run(args) -> int:
     old = signal.signal(signal.SIGINT, on_sigint) if threading.current_thread() is threading.main_thread() else None
     bar = _Progress(quiet=args.quiet)
     if not args.quiet:
-        sys.stderr.write(f"study {prep.plan.spec.name!r} ({prep.kind.title}): {prep.plan.cells:,} cells\n")
+        from ..studies.base import calibrate
+
+        est = calibrate(prep.kind, prep.plan, prep.arm, prep.cell)
+        sys.stderr.write(f"study {prep.plan.spec.name!r} ({prep.kind.title}): {est.describe()}\n")
     try:
         res = run_study(prep, out=out, executor=executor, workers=args.workers, scheduler=args.scheduler,
                         progress=bar, cancel=cancel, compression=args.compression)

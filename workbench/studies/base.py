@@ -206,7 +206,8 @@ class Table:
 class Estimate:
     """What a run will cost, measured before it starts (see :func:`calibrate`).
 
-    ``seconds`` is for one worker at full speed; ``result_bytes`` the raw size of every output
+    ``seconds`` is at the speed measured in the calibrating process (all its threads);
+    ``result_bytes`` the raw size of every output
     array; ``chunk_bytes`` the largest chunk's arrays (what a worker holds at once).
     """
 
@@ -218,7 +219,7 @@ class Estimate:
 
     def describe(self) -> str:
         return (f"{self.cells:,} cells, about {_fmt_bytes(self.result_bytes)} of results, "
-                f"about {_fmt_seconds(self.seconds)} of compute on one worker")
+                f"about {_fmt_seconds(self.seconds)} of compute at the speed measured in this process")
 
 
 @dataclass(frozen=True, eq=False)
