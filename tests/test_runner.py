@@ -60,7 +60,8 @@ def test_dask_local_cluster_matches_in_process(in_process):
             r = run_study(spec(), executor="dask", pool=client, chunk_cells=1000)
             assert_same(in_process[0], r)
             assert r.attrs["executor"] == "dask"
-            assert_same(in_process[1], run_study(cloud(), executor="dask", pool=client, chunk_cells=1000))
+        # the runner's own client, connecting to the scheduler's address (--scheduler tcp://...)
+        assert_same(in_process[1], run_study(cloud(), scheduler=cluster.scheduler_address, chunk_cells=1000))
     finally:
         cluster.close()
 
@@ -117,3 +118,14 @@ def test_runs_that_cannot_fit_are_refused(tmp_path):
         run_study(spec(), executor="processes", workers=0)
     with pytest.raises(WorkbenchError, match="--scheduler nowhere: expected 'local' or an address"):
         run_study(spec(), scheduler="nowhere")
+
+
+def test_sweep_bench_reports_in_the_shared_shape():
+    from workbench.runner import bench_sweep
+
+    res = bench_sweep(quick=True)
+    m = res["metrics"]
+    assert res["name"] == "sweep" and m["cells"] == 90000 and m["file_mb"] > 0.1
+    assert m["run_s"] > 0 and m["compute_s"] > 0
+    value, bar, passed = res["bars"]["runner+writer overhead<20%"]
+    assert value == res["ratios"]["overhead_vs_compute"] and bar == 0.2 and passed == (value < 0.2)

@@ -474,9 +474,10 @@ def _run_dask(kind, plan, arm, cell, finished, is_cancelled, n_workers, schedule
         if pending:
             client.cancel(list(pending))
     finally:
-        if cluster is not None:
+        if pool is None:  # our own client (and cluster): close them
             client.close()
-            cluster.close()
+            if cluster is not None:
+                cluster.close()
 
 
 # ----------------------------------------------------------------------------------------------
