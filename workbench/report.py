@@ -239,12 +239,18 @@ def _map_figure(title, Z, ax_x, ax_y, cbar_label, cell=None, draw_cell_xy=False,
     ax = fig.add_subplot(111)
     Z = np.asarray(Z, float)
     finite = np.isfinite(Z)
+    extend = "neither"
+    if vmax is None and finite.sum() > 20:
+        hi, top = np.percentile(Z[finite], 99), np.max(Z[finite])
+        lo = np.min(Z[finite])
+        if top - lo > 3 * (hi - lo) > 0:  # a few outliers would wash out the map: clip, say so
+            vmax, extend = hi, "max"
     im = ax.imshow(np.ma.masked_invalid(Z), origin="lower", extent=_extent(ax_x, ax_y), aspect="auto",
                    cmap=cmap, interpolation="nearest",
                    vmin=vmin if vmin is not None else (np.nanmin(Z) if finite.any() else 0),
                    vmax=vmax if vmax is not None else (np.nanmax(Z) if finite.any() else 1))
-    cb = fig.colorbar(im, ax=ax)
-    cb.set_label(cbar_label)
+    cb = fig.colorbar(im, ax=ax, extend=extend)
+    cb.set_label(cbar_label + (" (top 1 % clipped)" if extend == "max" else ""))
     ax.set_xlabel(_unit_label(ax_x))
     ax.set_ylabel(_unit_label(ax_y))
     ax.set_title(title, fontsize=10)
@@ -349,6 +355,7 @@ def _mount_blocks(r, cell):
         for a, kind, unit in ((a1, "position", "mm"), (a2, "yaw", "deg")):
             m = kinds == kind
             pct = 100 * drop[m] / nom if nom > 0 else drop[m] * 0
+            pct = np.where(np.abs(pct) < 1e-4, 0.0, pct)  # round-off of an unchanged score
             a.bar([f"{v:g} {unit}" for v in off[m]], pct, color="tab:orange")
             a.set_ylabel("score drop (% of best)")
             a.set_xlabel(f"placement error ({unit})")
