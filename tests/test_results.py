@@ -137,3 +137,24 @@ def test_png_of_samples_and_single_joint(tmp_path):
     for r, name in ((cloud, "cloud.png"), (line, "line.png")):
         export_png(r, tmp_path / name)
         assert os.path.getsize(tmp_path / name) > 5000
+
+
+def test_context_rebuilds_plan_and_poses_from_the_stored_texts(tmp_path):
+    arm_copy = tmp_path / "arm.toml"
+    arm_copy.write_text(Path(S6).read_text())
+    spec = StudySpec("joint_sweep", str(arm_copy), settings={"joints": ["j2", "j6"], "steps": [5, 4]})
+    run_study(spec, out=tmp_path / "r.h5", chunk_cells=7)
+    arm_copy.unlink()  # the results file carries the arm text
+    r = read_results(tmp_path / "r.h5")
+    kind, plan, arm, cell = r.context()
+    assert cell is None and plan.chunk_cells == 7 and plan.shape == (5, 4)
+    q = kind.cell_poses(plan, [0, 7, 19], r.arrays)
+    j2, j6 = plan.axes[0].values, plan.axes[1].values
+    np.testing.assert_allclose(q[:, 1], [j2[0], j2[1], j2[4]])
+    np.testing.assert_allclose(q[:, 5], [j6[0], j6[3], j6[3]])
+    np.testing.assert_allclose(q[:, [0, 2, 3, 4]], np.radians([[0, 90, 0, 45]] * 3))
+    # the measures stored for those cells are the ones of those poses
+    from workbench.measures import pose_measures
+
+    ref = pose_measures(arm, q)
+    np.testing.assert_allclose(r.flat("inverse_condition")[[0, 7, 19]], ref["inverse_condition"], rtol=1e-12)

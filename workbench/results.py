@@ -140,6 +140,36 @@ class Results:
         base = os.path.dirname(sp) if sp else "."
         return parse_study_dict(tomllib.loads(self.study_text or ""), source=sp or "study", base_dir=base)
 
+    def context(self):
+        """``(kind, plan, arm, cell)`` rebuilt from the texts stored in the file (the arm and cell
+        files need not exist any more); ``plan`` has this file's chunking. Use it to turn cells
+        into poses (``kind.cell_poses(plan, flat_index, arrays)``)."""
+        from .kinematics import Arm
+        from .studies.base import get_kind
+
+        spec = self.spec()
+        kind = get_kind(self.kind)
+        where = self.path or "results"
+        if not self.arm_text:
+            raise ResultsError(f"{where}: holds no arm file text")
+        arm_name = self.attrs.get("arm_path") or "arm"
+        if arm_name.lower().endswith((".urdf", ".xml")):
+            from .arm.urdf import parse_urdf_text
+
+            model = parse_urdf_text(self.arm_text, arm_name, spec.base_link, spec.tip_link)
+        else:
+            from .arm import parse_arm_text
+
+            model = parse_arm_text(self.arm_text, arm_name)
+        arm = Arm(model)
+        cell = None
+        if self.cell_text:
+            from .studies.cell import parse_cell_text
+
+            cell = parse_cell_text(self.cell_text, self.attrs.get("cell_path") or "cell")
+        plan = self.plan or kind.plan(spec, arm, cell, chunk_cells=self.chunk_cells)
+        return kind, plan, arm, cell
+
     def measure_names(self) -> list[str]:
         """Scalar fields that can be drawn as maps."""
         return [f.name for f in self.fields if f.kind == "measure" and f.shape == ()]

@@ -86,3 +86,15 @@ def test_chunks_cover_the_grid_and_rng_blocks_do_not_depend_on_chunks():
     assert (whole == __import__("numpy").concatenate(parts)).all()
     assert isinstance(Chunk(0, 1, 3).size, int) and Chunk(0, 1, 3).size == 2
     assert Plan.__dataclass_params__.frozen
+
+
+def test_urdf_chain_links_round_trip(tmp_path):
+    p = tmp_path / "u.toml"
+    p.write_text('[study]\nkind = "joint_sweep"\narm = "robot.urdf"\nbase_link = "base"\ntip_link = "tool0"\n')
+    spec = read_study_file(p)
+    assert (spec.base_link, spec.tip_link) == ("base", "tool0")
+    again = write_study_file(spec, tmp_path / "v.toml")
+    assert (again.base_link, again.tip_link) == ("base", "tool0") and again.arm_path == str(tmp_path / "robot.urdf")
+    p.write_text('[study]\nkind = "joint_sweep"\narm = "robot.urdf"\ntip_link = 3\n')
+    with pytest.raises(StudyError, match=r"\[study\] tip_link: expected a string, got 3"):
+        read_study_file(p)

@@ -368,6 +368,19 @@ class StudyKind:
         ``plan.fields``. Pure and deterministic; no files, no globals."""
         raise NotImplementedError
 
+    def cell_poses(self, plan: Plan, flat_index, arrays: Mapping | None = None):
+        """Joint values (k, n) (rad / m) behind the cells ``flat_index`` (flattened grid order), for
+        pose lists and for showing a picked cell in the scene; ``arrays`` are the results (flat or
+        grid-shaped). Default: the first "pose" field of the results (e.g. a best IK solution);
+        None when the kind has no pose per cell."""
+        if arrays is None:
+            return None
+        for f in plan.fields:
+            if f.kind == "pose" and f.name in arrays:
+                a = np.asarray(arrays[f.name]).reshape((plan.cells,) + f.shape)
+                return a[np.asarray(flat_index, dtype=np.int64).reshape(-1)]
+        return None
+
     def summarise(self, plan: Plan, arrays: Mapping) -> dict:
         """Summary tables ``{name: Table}`` from the full arrays ``{field: (cells, *shape)}``
         (flattened grid order; cells of unfinished chunks hold the field's fill value)."""

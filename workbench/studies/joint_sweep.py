@@ -425,11 +425,11 @@ class JointSweep(StudyKind):
         flat_index = np.asarray(flat_index, dtype=np.int64).reshape(-1)
         if st.mode == "samples":
             if arrays is not None and "q" in arrays:
-                return np.asarray(arrays["q"])[flat_index]
+                return np.asarray(arrays["q"]).reshape(plan.cells, -1)[flat_index]
             return np.array([self.chunk_poses(plan, None, Chunk(0, int(i), int(i) + 1))[0]
                              for i in flat_index]).reshape(-1, st.pose.size)
         if st.mode == "reduce":
-            return np.asarray(arrays["worst_q"])[flat_index]
+            return np.asarray(arrays["worst_q"]).reshape(plan.cells, -1)[flat_index]
         return self._grid_poses(plan, flat_index)
 
     def _grid_poses(self, plan, flat_index):

@@ -31,7 +31,7 @@ from .base import StudyError, get_kind
 __all__ = ["StudySpec", "read_study_file", "parse_study_dict", "dumps_study", "write_study_file",
            "load_context", "read_text", "CELL_READERS"]
 
-_STUDY_KEYS = {"name", "kind", "arm", "cell", "description"}
+_STUDY_KEYS = {"name", "kind", "arm", "cell", "description", "base_link", "tip_link"}
 _TOP_KEYS = {"study", "settings"}
 
 #: where cell-file readers may live ("module:function(path) -> cell"); the first that imports wins
@@ -62,6 +62,8 @@ class StudySpec:
         specs built in code).
     source : str or None
         The study file this spec was read from, if any.
+    base_link, tip_link : str or None
+        URDF arms only: the links that start and end the chain.
     """
 
     kind: str
@@ -72,6 +74,8 @@ class StudySpec:
     description: str = ""
     base_dir: str = "."
     source: str | None = None
+    base_link: str | None = None
+    tip_link: str | None = None
 
     @property
     def arm_path(self) -> str:
@@ -111,6 +115,9 @@ class StudySpec:
             study["cell"] = rel(self.cell)
         if self.description:
             study["description"] = self.description
+        for key in ("base_link", "tip_link"):
+            if getattr(self, key):
+                study[key] = getattr(self, key)
         return {"study": study, "settings": copy.deepcopy(dict(self.settings))}
 
 
@@ -180,6 +187,10 @@ def parse_study_dict(data: dict, source: str = "study", base_dir: str = ".") -> 
     settings = data.get("settings", {})
     if not isinstance(settings, dict):
         raise StudyError(f"{source}: [settings]: expected a table, got {type(settings).__name__}")
+    for key in ("base_link", "tip_link", "description"):
+        v = study.get(key)
+        if v is not None and not isinstance(v, str):
+            raise StudyError(f"{source}: [study] {key}: expected a string, got {v!r}")
     name = study.get("name")
     if name is not None and not isinstance(name, str):
         raise StudyError(f"{source}: [study] name: expected a string, got {name!r}")
@@ -187,7 +198,8 @@ def parse_study_dict(data: dict, source: str = "study", base_dir: str = ".") -> 
         name = os.path.splitext(os.path.basename(source))[0] if source != "study" else kind
     return StudySpec(kind=kind, arm=study["arm"].strip(), cell=cell.strip() if cell else None,
                      settings=settings, name=name, description=str(study.get("description", "")),
-                     base_dir=os.path.abspath(base_dir), source=source if source != "study" else None)
+                     base_dir=os.path.abspath(base_dir), source=source if source != "study" else None,
+                     base_link=study.get("base_link"), tip_link=study.get("tip_link"))
 
 
 def dumps_study(spec: StudySpec, relative_to: str | None = None) -> str:
@@ -229,7 +241,7 @@ def load_context(spec: StudySpec):
     if os.path.isdir(arm_path):
         raise StudyError(f"{where}: [study] arm: {arm_path} is a directory, expected an arm file")
     arm_text = read_text(arm_path, f"{where}: [study] arm")
-    arm = Arm(read_arm_model(arm_path))
+    arm = Arm(read_arm_model(arm_path, base_link=spec.base_link, tip_link=spec.tip_link))
     cell = cell_text = None
     if spec.cell is not None:
         cell_path = spec.cell_path
