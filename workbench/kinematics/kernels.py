@@ -138,6 +138,16 @@ def jacobi_sv(B, out):
             for j in range(i + 1, cols):
                 alpha = out[i]
                 beta = out[j]
+                if alpha <= 0.0 or beta <= 0.0:
+                    # the carried squared norms can round to <= 0 once a column is (nearly)
+                    # zero: recompute both from the columns (rare; keeps sqrt and zeta finite)
+                    alpha = 0.0
+                    beta = 0.0
+                    for r in range(rows):
+                        alpha += B[r, i] * B[r, i]
+                        beta += B[r, j] * B[r, j]
+                    out[i] = alpha
+                    out[j] = beta
                 if alpha == 0.0 or beta == 0.0:
                     continue
                 gamma = 0.0
