@@ -239,3 +239,22 @@ def test_real_process_exit_status_and_output():
     good = subprocess.run(env_cmd + ["info", str(ARMS / "demo_p3.toml"), "--samples", "200"],
                           capture_output=True, text=True, timeout=120, cwd=ROOT)
     assert good.returncode == 0 and "P3 demo planar arm" in good.stdout
+
+
+@pytest.mark.parametrize("path", DEMOS, ids=lambda p: p.name)
+def test_jacobian_every_frame_of_every_demo_arm(path, capsys):
+    # regression: a centre-of-mass frame with many zero columns once crashed the singular-value
+    # kernel (a carried squared norm rounded below zero)
+    from workbench import load_arm
+
+    arm = load_arm(path)
+    L = arm.nominal_reach()
+    frames = ["tcp", "flange", "base"] + [f"com:{k + 1}" for k in range(arm.n)] + [f"joint:{k + 1}" for k in range(arm.n)]
+    for frame in frames:
+        code, out, err = _run(capsys, "jacobian", path, "--frame", frame, "--json")
+        assert code == 0, (frame, err)
+        d = json.loads(out)
+        J = np.array(d["jacobian"])
+        ref = np.linalg.svd(np.diag([1 / L] * 3 + [1] * 3) @ J, compute_uv=False)
+        k = min(6, arm.n)
+        np.testing.assert_allclose(d["singular_values"][:k], ref[:k], atol=1e-12 * max(ref[0], 1e-300))
