@@ -126,17 +126,26 @@ def reach_estimate(arm, samples=REACH_SAMPLES, seed=0) -> dict:
         ``from_axis_m``, ``from_origin_m``, ``nominal_m`` (m) and ``samples``.
     """
     m = arm.model
-    q = arm.random_q(samples, rng=seed)
-    q = np.vstack([q, arm.home_q[None, :]])
-    p = arm.fk(q)[:, :3, 3]
+    rng = np.random.default_rng(seed)
     o0 = m.origins[0]
     c = o0[:3, 3]
     z = o0[:3, :3] @ m.axes[0]
-    d = p - c
-    radial = d - np.outer(d @ z, z)
-    return {"from_axis_m": float(np.linalg.norm(radial, axis=1).max()),
-            "from_origin_m": float(np.linalg.norm(d, axis=1).max()),
-            "nominal_m": float(arm.nominal_reach()), "samples": int(q.shape[0])}
+    best_axis = best_origin = 0.0
+    left = int(samples)
+    first = True
+    while first or left > 0:  # blocks of at most 100 000 poses keep the memory small
+        k = min(left, 100_000)
+        q = arm.random_q(k, rng=rng)
+        if first:
+            q = np.vstack([q, arm.home_q[None, :]])
+            first = False
+        left -= k
+        d = arm.fk(q)[:, :3, 3] - c
+        radial = d - np.outer(d @ z, z)
+        best_axis = max(best_axis, float(np.linalg.norm(radial, axis=1).max()))
+        best_origin = max(best_origin, float(np.linalg.norm(d, axis=1).max()))
+    return {"from_axis_m": best_axis, "from_origin_m": best_origin,
+            "nominal_m": float(arm.nominal_reach()), "samples": int(samples) + 1}
 
 
 def warnings_for(arm) -> list[str]:
