@@ -13,6 +13,12 @@ ICRA 2013), and solved with the batched multi-seed IK. Per candidate:
   0 at a limit) over the reached work points;
 * ``score`` = f^p * w^a * m^b  (defaults p = 2, a = 1, b = 0.5; 0 when nothing is reached).
 
+Which IK solution counts: the map uses the first solution found per work point (seeds tried in
+order: home pose, then random poses; fast). The 40 best grid candidates are then re-scored with
+every seed's solution, keeping per point the reached one with the largest measure^a * margin^b
+(setting ``solutions = "best"`` does this for the whole grid, about ``seeds`` times slower). Joints
+with more than a full turn of travel are counted at the equivalent angle nearest mid range.
+
 The grid is then refined off the grid: the best few candidates are polished over (x, y, yaw) by
 Nelder-Mead (scipy.optimize), and a sensitivity check reports how much the score drops when the
 base is placed 1-2 cm or 1-2 degrees off.
@@ -30,7 +36,7 @@ from .base import Axis, Field, Plan, StudyError, StudyKind, Table
 from .cell import WorkPoint, candidate_grid, mount_transforms, relative_targets
 
 __all__ = ["MountSearch", "MountSettings", "evaluate_mounts", "score_candidates", "score_formula",
-           "refine_candidate", "sensitivity", "solve_targets", "reached_check", "bench_mount_search",
+           "refine_candidate", "sensitivity", "solve_targets", "reached_check", "center_turns", "bench_mount_search",
            "MEASURES"]
 
 _DEG = math.pi / 180.0
@@ -72,6 +78,35 @@ def solve_targets(arm, T, orientation: str, seeds=8, q0=None):
         kw["q_seed"] = np.asarray(q0, float).reshape(-1, arm.n)
     res = solve_ik(arm, T, seeds=seeds, orientation=orientation, **kw)
     return np.asarray(res.q, float).reshape(-1, arm.n), np.asarray(res.status).reshape(-1)
+
+
+def center_turns(arm, q):
+    """The same poses with every revolute joint turned by whole turns (+-2 pi) to the value nearest
+    its mid range that stays inside its limits (joints with more than a turn of travel reach one
+    pose several ways; the limit margin should count the best of them).
+
+    Parameters
+    ----------
+    q : (N, n) ndarray
+
+    Returns
+    -------
+    (N, n) ndarray
+    """
+    q = np.array(q, float, copy=True)
+    m = arm.model
+    for j in range(m.n):
+        lo, hi = m.lower[j], m.upper[j]
+        if m.kinds[j] != 0 or not (np.isfinite(lo) and np.isfinite(hi)) or hi - lo <= 2 * np.pi:
+            continue
+        mid = 0.5 * (lo + hi)
+        best = q[:, j].copy()
+        for k in (-2, -1, 1, 2):
+            cand = q[:, j] + 2 * np.pi * k
+            ok = (cand >= lo) & (cand <= hi) & (np.abs(cand - mid) < np.abs(best - mid))
+            best = np.where(ok, cand, best)
+        q[:, j] = best
+    return q
 
 
 def reached_check(arm, q, T, rule: str, tol, atol):
@@ -126,10 +161,11 @@ class MountSettings:
     refine: int = 3
     refine_evaluations: int = 120
     sensitivity: bool = True
+    solutions: str = "first"
 
 
 _KEYS = {"measure", "rows", "length", "seeds", "reach_power", "measure_power", "margin_power", "refine",
-         "refine_evaluations", "sensitivity"}
+         "refine_evaluations", "sensitivity", "solutions"}
 
 
 def score_formula(s: MountSettings) -> str:
@@ -175,6 +211,11 @@ def _validate(settings: Mapping, arm, where: str) -> MountSettings:
             if isinstance(v, bool) or not isinstance(v, (int, float)) or not (0 <= v <= 20):
                 raise StudyError(f"{where} {key}: expected an exponent between 0 and 20, got {v!r}")
             out[key] = float(v)
+    if "solutions" in settings:
+        if settings["solutions"] not in ("first", "best"):
+            raise StudyError(f"{where} solutions: expected 'first' (fast) or 'best' (every seed), "
+                             f"got {settings['solutions']!r}")
+        out["solutions"] = settings["solutions"]
     if "sensitivity" in settings:
         if not isinstance(settings["sensitivity"], bool):
             raise StudyError(f"{where} sensitivity: expected true or false, got {settings['sensitivity']!r}")
@@ -200,7 +241,7 @@ def _measure_of_q(arm, q, s: MountSettings) -> np.ndarray:
     return measures_from_sv(sv)[s.measure]
 
 
-def evaluate_mounts(arm, mounts, points, s: MountSettings, q0=None) -> dict:
+def evaluate_mounts(arm, mounts, points, s: MountSettings, q0=None, choose: str = "first") -> dict:
     """IK of every work point from every mount and the per-point measures.
 
     Parameters
@@ -212,7 +253,12 @@ def evaluate_mounts(arm, mounts, points, s: MountSettings, q0=None) -> dict:
         The P work points (cell frame).
     s : MountSettings
     q0 : (C, P, n) ndarray, optional
-        Preferred seeds (warm start).
+        Preferred seeds (warm start), tried first.
+    choose : {"first", "best"}
+        "first": the first solution found (seeds in order: ``q0``, home, random; fast).
+        "best": every seed runs and each point keeps the reached solution with the largest
+        ``measure^a * margin^b`` (the score's exponents): slower by about the number of seeds,
+        but it finds the better branch (e.g. the unflipped wrist).
 
     Returns
     -------
@@ -231,18 +277,41 @@ def evaluate_mounts(arm, mounts, points, s: MountSettings, q0=None) -> dict:
             continue
         Tg = T[:, idx].reshape(-1, 4, 4)
         seed = None if q0 is None else np.asarray(q0)[:, idx].reshape(-1, n)
-        qs, _status = solve_targets(arm, Tg, rule, seeds=s.seeds, q0=seed)
         tol = np.tile([points[k].tolerance for k in idx], C)
         atol = np.tile([points[k].angle_tolerance for k in idx], C)
-        ok = reached_check(arm, qs, Tg, rule, tol, atol)
+        if choose == "best":
+            qs, ok = _best_solutions(arm, Tg, rule, s, seed, tol, atol)
+        else:
+            qs, _status = solve_targets(arm, Tg, rule, seeds=s.seeds, q0=seed)
+            ok = reached_check(arm, qs, Tg, rule, tol, atol)
         q[:, idx] = np.where(np.isfinite(qs), qs, 0.0).reshape(C, len(idx), n)
         reached[:, idx] = ok.reshape(C, len(idx))
-    flat = q.reshape(-1, n)
+    flat = center_turns(arm, q.reshape(-1, n))
+    q = flat.reshape(C, P, n)
     meas = _measure_of_q(arm, flat, s).reshape(C, P)
     marg = arm.limit_margin(flat).reshape(C, P)
     meas = np.where(reached, meas, 0.0)
     marg = np.where(reached, np.clip(marg, 0.0, 1.0), 0.0)
     return {"q": q, "reached": reached, "measure": meas, "margin": marg}
+
+
+def _best_solutions(arm, Tg, rule, s, seed, tol, atol):
+    """Every seed's solution; per target the reached one with the largest measure^a * margin^b."""
+    from ..kinematics.ik import solve_ik
+
+    N, n = Tg.shape[0], arm.n
+    kw = {} if seed is None else {"q_seed": seed.reshape(N, n)}
+    res = solve_ik(arm, Tg, seeds=s.seeds, orientation=rule, all_solutions=True, **kw)
+    K = res.q.shape[1]
+    qK = center_turns(arm, np.where(np.isfinite(res.q), res.q, 0.0).reshape(-1, n))
+    okK = reached_check(arm, qK, np.repeat(Tg, K, axis=0), rule, np.repeat(tol, K), np.repeat(atol, K))
+    with np.errstate(invalid="ignore"):
+        val = (np.maximum(_measure_of_q(arm, qK, s), 0) ** s.measure_power
+               * np.clip(arm.limit_margin(qK), 0, 1) ** s.margin_power)
+    val = np.where(okK, val, -1.0).reshape(N, K)
+    pick = np.argmax(val, axis=1)
+    rows = np.arange(N)
+    return qK.reshape(N, K, n)[rows, pick], okK.reshape(N, K)[rows, pick]
 
 
 def score_candidates(reached, measure, margin, s: MountSettings) -> dict:
@@ -271,7 +340,9 @@ def score_candidates(reached, measure, margin, s: MountSettings) -> dict:
 
 def _score_at(arm, points, s, x, y, h, yaw, tilt, q0=None):
     M = mount_transforms(x, y, h, yaw, tilt)[None]
-    ev = evaluate_mounts(arm, M, points, s, q0=q0)
+    # warm-started from chosen solutions the first solution stays on their branch (cheap);
+    # without a warm start every seed is tried
+    ev = evaluate_mounts(arm, M, points, s, q0=q0, choose="first" if q0 is not None else "best")
     sc = score_candidates(ev["reached"], ev["measure"], ev["margin"], s)
     return float(sc["score"][0]), ev
 
@@ -407,7 +478,7 @@ class MountSearch(StudyKind):
         ax = {a.name: a.values for a in plan.axes}
         M = mount_transforms(ax["x"][xi], ax["y"][yyi], ax["height"][hi], ax["yaw"][yi], plan.data["tilts"][si])
         points = plan.data["points"]
-        ev = evaluate_mounts(arm, M, points, s)
+        ev = evaluate_mounts(arm, M, points, s, choose=s.solutions)
         sc = score_candidates(ev["reached"], ev["measure"], ev["margin"], s)
         return {"score": sc["score"], "reached_fraction": sc["reached_fraction"],
                 "worst_measure": sc["worst_measure"], "min_margin": sc["min_margin"],
@@ -427,20 +498,42 @@ def summarise_mount_search(plan, arrays, top: int = 20) -> dict:
     styles = plan.data["styles"]
     score = np.asarray(arrays["score"], float).reshape(-1)
     done = np.isfinite(score)
-    order = np.argsort(-np.where(done, score, -np.inf), kind="stable")[: min(top, int(done.sum()))]
-    si, hi, yi, yyi, xi = np.unravel_index(order, plan.shape)
+    order = np.argsort(-np.where(done, score, -np.inf), kind="stable")[: min(2 * top, int(done.sum()))]
     formula = plan.data["formula"]
     f = np.asarray(arrays["reached_fraction"]).reshape(-1)
     w = np.asarray(arrays["worst_measure"]).reshape(-1)
     mm = np.asarray(arrays["min_margin"]).reshape(-1)
+    points = plan.data["points"]
+    arm = Arm(plan.data["arm_model"])
+    qall = np.asarray(arrays["q"], float).reshape((-1,) + (len(points), arm.n))
+    grid_score = score[order]
+    if len(order) and s.solutions == "first" and score[order[0]] > 0:
+        # the grid kept the first solution per point; re-score the leaders with the best solution
+        # of every seed (other branches, e.g. the unflipped wrist, can have much more margin)
+        si, hi, yi, yyi, xi = np.unravel_index(order, plan.shape)
+        M = mount_transforms(ax["x"][xi], ax["y"][yyi], ax["height"][hi], ax["yaw"][yi], plan.data["tilts"][si])
+        ev = evaluate_mounts(arm, M, points, s, q0=qall[order], choose="best")
+        sc = score_candidates(ev["reached"], ev["measure"], ev["margin"], s)
+        f, w, mm = f.copy(), w.copy(), mm.copy()
+        f[order], w[order], mm[order] = sc["reached_fraction"], sc["worst_measure"], sc["min_margin"]
+        score = score.copy()
+        score[order] = sc["score"]
+        qall = qall.copy()
+        qall[order] = ev["q"]
+        resort = np.argsort(-score[order], kind="stable")
+        order, grid_score = order[resort], grid_score[resort]
+    order, grid_score = order[:top], grid_score[:top]
+    si, hi, yi, yyi, xi = np.unravel_index(order, plan.shape)
     tables = {"ranking": Table(
         "Mount ranking (grid)",
         {"rank": np.arange(1, len(order) + 1), "x": ax["x"][xi] * 1000, "y": ax["y"][yyi] * 1000,
          "height": ax["height"][hi] * 1000, "yaw": np.degrees(ax["yaw"][yi]),
          "style": (np.array([styles[k] for k in si], dtype=object) if len(si) else np.zeros(0, dtype="S1")),
-         "reached": f[order] * 100, "worst_measure": w[order], "min_margin": mm[order], "score": score[order]},
+         "reached": f[order] * 100, "worst_measure": w[order], "min_margin": mm[order], "map_score": grid_score,
+         "score": score[order]},
         {"x": "mm", "y": "mm", "height": "mm", "yaw": "deg", "reached": "%"},
-        formula)}
+        formula + ("; map_score: the map's value (first IK solution per point); score: the best solution of "
+                   "every seed" if s.solutions == "first" else ""))}
     pr = np.asarray(arrays["point_reached"]).reshape(-1, len(plan.data["point_names"]))
     never = ~(pr[done] > 0).any(axis=0) if done.any() else np.ones(pr.shape[1], bool)
     if never.any():
@@ -453,9 +546,6 @@ def summarise_mount_search(plan, arrays, top: int = 20) -> dict:
             {}, f"{len(names)} of {len(never)} work points are unreachable from all {int(done.sum())} candidates")
     if not len(order) or score[order[0]] <= 0:
         return tables
-    arm = Arm(plan.data["arm_model"])
-    points = plan.data["points"]
-    qall = np.asarray(arrays["q"], float).reshape((-1,) + (len(points), arm.n))
     refined = []
     seen = []
     for k in order:
@@ -494,7 +584,7 @@ def summarise_mount_search(plan, arrays, top: int = 20) -> dict:
              "nominal_score": np.full(len(rows), sens["score"])},
             {}, "worst score over +-x, +-y (position) or +-yaw offsets of the best refined mount")
     ev = evaluate_mounts(arm, mount_transforms(best["x"], best["y"], best["height"], best["yaw"], best["tilt"])[None],
-                         points, s, q0=best["q"][None])
+                         points, s, q0=best["q"][None], choose="best")
     tables["best_points"] = Table(
         "Work points from the best refined mount",
         {"point": np.array([p.name for p in points], dtype=object), "reached": ev["reached"][0].astype(int),
