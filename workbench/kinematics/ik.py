@@ -64,6 +64,8 @@ MAX_STEP = 0.5   # largest joint step per iteration, rad (prismatic: times the a
 POOL = 65536     # random in-limit poses from which the seeds nearest each target are picked
 NEAR = 7         # how many of the generated seeds are picked from the pool (the rest: home, random)
 GRID_CELLS_PER_LENGTH = 24  # pool bucketing: cell size = arm length / this
+NEAR_CANDIDATES = 32  # pool poses nearest a target among which the spread-out near seeds are picked
+NEAR_SPREAD = 1.0     # rad: picked near seeds differ by at least this in some joint (when possible)
 
 
 class IKError(WorkbenchError):
@@ -259,7 +261,7 @@ def solve_ik(arm, T_goal, seeds=8, orientation="fixed", q_seed=None, pos_tol=1e-
     out_iter = np.empty((N, slots), dtype=np.int32)
     m = arm.model
     if N:
-        _k.ik_batch(goals, np.ascontiguousarray(common), user, *pool, n_near, m.origins, m.axes, m.kinds,
+        _k.ik_batch(goals, np.ascontiguousarray(common), user, *pool, n_near, NEAR_CANDIDATES, NEAR_SPREAD, m.origins, m.axes, m.kinds,
                     np.ascontiguousarray(m.tcp_offset), lower, upper, mode, 1.0 / L, cap, center, reach,
                     float(pos_tol), float(rot_tol), int(max_iter), W0, LAMBDA0, MAX_STEP, wrap, bool(all_solutions),
                     out_q, out_status, out_pos, out_rot, out_iter)
@@ -288,7 +290,7 @@ def target_seeds(arm, T_goal, seeds=8, orientation="fixed", rng=0) -> np.ndarray
     n_near = min(NEAR, common.shape[0] - 1)
     pool = seed_pool(arm, rng)
     idx = np.empty((goals.shape[0], n_near), dtype=np.int64)
-    _k.near_seeds_batch(goals, *pool[:6], n_near, mode, 1.0 / float(arm.nominal_reach()), idx)
+    _k.near_seeds_batch(goals, *pool[:6], n_near, NEAR_CANDIDATES, NEAR_SPREAD, mode, 1.0 / float(arm.nominal_reach()), idx)
     rest = np.concatenate([common[:1], common[1 + n_near:]])
     out = np.concatenate([pool[0][idx], np.broadcast_to(rest, (goals.shape[0],) + rest.shape)], axis=1)
     return out.reshape(lead + out.shape[1:])

@@ -26,7 +26,8 @@ Safeguards (ours): the step is scaled down to at most ``max_step`` rad (or max_s
 prismatic joints); joint limits are kept by an active set (a joint sitting on a limit whose step
 points outward is frozen and the step re-solved without its column), then clipping; revolute joints
 whose range spans a full turn wrap across a limit instead; a seed that stops lowering its error
-(no step accepted up to mu = 1e4, or 8 steps in a row each lowering the squared error by < 0.2 %)
+(no step accepted up to mu = 1e4, or SLOW_STEPS steps in a row each lowering the squared error by
+less than 1 - SLOW_RATIO)
 is ended.
 
 Seeds: besides shared seeds, each target gets the poses of a large pool of random in-limit poses
@@ -45,11 +46,12 @@ from .kernels import _chain, _fill_jacobian
 MODE_FIXED, MODE_AXIS, MODE_FREE = 0, 1, 2
 CONVERGED, OUT_OF_REACH, LIMITS, NOT_CONVERGED = 0, 1, 2, 3
 TBLOCK = 16  # targets per parallel work item
-NEAR_CANDIDATES = 32  # pool poses nearest a target among which the spread-out seeds are picked
-NEAR_SPREAD = 1.0     # rad: picked pool seeds differ by at least this in some joint (when possible)
 # adaptive damping (Levenberg-Marquardt style): divided after a step that lowers the error,
 # multiplied after one that does not
 MU_START, MU_MIN, MU_MAX, MU_DOWN, MU_UP, MU_RETRY = 1e-3, 1e-12, 1e4, 0.1, 10.0, 1e-4
+# a seed has settled on a non-zero error after SLOW_STEPS accepted steps in a row that each keep
+# more than SLOW_RATIO of the squared error
+SLOW_RATIO, SLOW_STEPS = 0.99, 4
 
 
 @njit(cache=True, inline="always")
@@ -342,7 +344,7 @@ def _solve_seed(goal, q, origins, axes, kinds, off, lower, upper, mode, m, inv_l
                 break
         if not accepted:
             return (LIMITS if nlocked > 0 else OUT_OF_REACH), it, sq
-        slow = slow + 1 if sqt > 0.998 * sq else 0
+        slow = slow + 1 if sqt > SLOW_RATIO * sq else 0
         for j in range(n):
             q[j] = qt[j]
             for r in range(3):
@@ -357,7 +359,7 @@ def _solve_seed(goal, q, origins, axes, kinds, off, lower, upper, mode, m, inv_l
         errs[0] = errt[0]
         errs[1] = errt[1]
         sq = sqt
-        if slow >= 8:  # settled on a non-zero residual
+        if slow >= SLOW_STEPS:  # settled on a non-zero residual
             if errs[0] <= pos_tol and errs[1] <= rot_tol:
                 return CONVERGED, it, sq
             return (LIMITS if nlocked > 0 else OUT_OF_REACH), it, sq
@@ -434,8 +436,8 @@ def _nearest_grid(goal, pool_T, lo, h, dims, starts, mode, inv_len, k, best_d, b
 
 
 @njit(cache=True, inline="always")
-def _spread(pool_q, cand_i, n_cand, k, out_i):
-    """Pick k of the candidates (nearest first): skip a candidate within NEAR_SPREAD rad (max over
+def _spread(pool_q, cand_i, n_cand, k, spread, out_i):
+    """Pick k of the candidates (nearest first): skip a candidate within ``spread`` rad (max over
     joints) of one already picked while others remain; fill up with the nearest skipped ones."""
     n = pool_q.shape[1]
     taken = np.zeros(n_cand, dtype=np.bool_)
@@ -448,7 +450,7 @@ def _spread(pool_q, cand_i, n_cand, k, out_i):
             dmax = 0.0
             for j in range(n):
                 dmax = max(dmax, abs(pool_q[cand_i[c], j] - pool_q[out_i[a], j]))
-            if dmax < NEAR_SPREAD:
+            if dmax < spread:
                 ok = False
                 break
         if ok:
@@ -464,7 +466,7 @@ def _spread(pool_q, cand_i, n_cand, k, out_i):
 
 
 @njit(cache=True, parallel=True)
-def ik_batch(goals, seeds, user, pool_q, pool_T, grid_lo, grid_h, grid_dims, grid_starts, n_near, origins, axes, kinds, off, lower, upper, mode, inv_len, cap,
+def ik_batch(goals, seeds, user, pool_q, pool_T, grid_lo, grid_h, grid_dims, grid_starts, n_near, n_candidates, spread, origins, axes, kinds, off, lower, upper, mode, inv_len, cap,
              reach_center, reach, pos_tol, rot_tol, max_iter, w0, lam0, max_step, wrap, all_solutions,
              out_q, out_status, out_pos, out_rot, out_iter):
     """Solve IK for N goal poses (N, 4, 4) in the base frame.
@@ -495,7 +497,7 @@ def ik_batch(goals, seeds, user, pool_q, pool_T, grid_lo, grid_h, grid_dims, gri
         errs = scratch[9]
         q = np.empty(n)
         best_q = np.empty(n)
-        n_cand = min(P, max(n_near, NEAR_CANDIDATES))
+        n_cand = min(P, max(n_near, n_candidates))
         near_d = np.empty(max(n_cand, 1))
         cand_i = np.zeros(max(n_cand, 1), dtype=np.int64)
         near_i = np.zeros(max(n_near, 1), dtype=np.int64)
@@ -504,7 +506,7 @@ def ik_batch(goals, seeds, user, pool_q, pool_T, grid_lo, grid_h, grid_dims, gri
             if n_near > 0:
                 _nearest_grid(goal, pool_T, grid_lo, grid_h, grid_dims, grid_starts, mode, inv_len, n_cand,
                               near_d, cand_i)
-                _spread(pool_q, cand_i, n_cand, n_near, near_i)
+                _spread(pool_q, cand_i, n_cand, n_near, spread, near_i)
             dx = goal[0, 3] - reach_center[0]
             dy = goal[1, 3] - reach_center[1]
             dz = goal[2, 3] - reach_center[2]
@@ -578,14 +580,15 @@ def ik_batch(goals, seeds, user, pool_q, pool_T, grid_lo, grid_h, grid_dims, gri
 
 
 @njit(cache=True, parallel=True)
-def near_seeds_batch(goals, pool_q, pool_T, grid_lo, grid_h, grid_dims, grid_starts, n_near, mode, inv_len, out):
+def near_seeds_batch(goals, pool_q, pool_T, grid_lo, grid_h, grid_dims, grid_starts, n_near, n_candidates, spread,
+                     mode, inv_len, out):
     """The pool indices ``ik_batch`` picks as near seeds for each goal: out (N, n_near) int64."""
     N = goals.shape[0]
     P = pool_q.shape[0]
-    n_cand = min(P, max(n_near, NEAR_CANDIDATES))
+    n_cand = min(P, max(n_near, n_candidates))
     for i in prange(N):
         near_d = np.empty(n_cand)
         cand_i = np.zeros(n_cand, dtype=np.int64)
         _nearest_grid(goals[i], pool_T, grid_lo, grid_h, grid_dims, grid_starts, mode, inv_len, n_cand,
                       near_d, cand_i)
-        _spread(pool_q, cand_i, n_cand, n_near, out[i])
+        _spread(pool_q, cand_i, n_cand, n_near, spread, out[i])
