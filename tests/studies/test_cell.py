@@ -35,7 +35,7 @@ tolerance = 0.5
 
 def test_demo_cell_reads():
     cell = read_cell_file(ROOT / "arms" / "cells" / "tray_cell.toml")
-    assert len(cell.points) == 14 and len(cell.paths) == 2 and len(cell.boxes) == 3
+    assert len(cell.points) == 16 and len(cell.paths) == 3 and len(cell.boxes) == 3
     assert cell.mount.shape == (1, 2, 8, 13, 21)
     assert len(cell.sha256) == 64
 
