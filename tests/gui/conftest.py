@@ -1,9 +1,19 @@
 """GUI tests run offscreen (no display, no OpenGL: the 2D scene is what they exercise)."""
+import gc
 import os
 
 os.environ["QT_QPA_PLATFORM"] = "offscreen"
 
 import pytest  # noqa: E402
+
+
+@pytest.fixture(autouse=True, scope="session")
+def _refcount_guard(qapp):
+    # a PySide6 build that leaks references to None/True on Python 3.11 (see workbench.gui.qtfix)
+    from workbench.gui.qtfix import guard
+
+    guard()
+    yield
 
 
 @pytest.fixture
@@ -13,6 +23,18 @@ def qsettings(tmp_path):
     return QtCore.QSettings(str(tmp_path / "settings.ini"), QtCore.QSettings.IniFormat)
 
 
+def dispose(w):
+    """Close a window and free it (and its Qt children) now, while the interpreter is whole."""
+    from PySide6 import QtCore, QtWidgets
+
+    w.stop_run()
+    w.close()
+    w.deleteLater()
+    QtCore.QCoreApplication.sendPostedEvents(None, QtCore.QEvent.DeferredDelete)
+    QtWidgets.QApplication.processEvents()
+    gc.collect()
+
+
 @pytest.fixture
 def window(qtbot, qsettings):
     from workbench.gui.app import make_app
@@ -20,12 +42,7 @@ def window(qtbot, qsettings):
 
     make_app()
     w = MainWindow(settings=qsettings)
-    qtbot.addWidget(w)
     w.resize(1400, 900)
     w.show()
     yield w
-    w.stop_run()
-
-
-def wait_run(qtbot, w, timeout=30000):
-    qtbot.waitUntil(lambda: not w.running, timeout=timeout)
+    dispose(w)

@@ -18,7 +18,9 @@ def make_app(argv=None):
     if app is None:
         app = QtWidgets.QApplication(list(argv) if argv else [sys.argv[0]])
     from .main_window import APP_NAME, ORG_NAME
+    from .qtfix import guard
 
+    guard()
     app.setOrganizationName(ORG_NAME)
     app.setApplicationName(APP_NAME)
     return app

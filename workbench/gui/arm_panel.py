@@ -146,7 +146,9 @@ class ArmPanel(QtWidgets.QWidget):
         arm = self.state.arm
         while self.joint_grid.count():
             w = self.joint_grid.takeAt(0).widget()
-            if w is not None:
+            if w is not None:   # hide and detach now: deferred deletes wait for the event loop
+                w.hide()
+                w.setParent(None)
                 w.deleteLater()
         self.rows = []
         for k, j in enumerate(arm.model.joints):

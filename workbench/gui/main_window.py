@@ -76,7 +76,7 @@ class MainWindow(QtWidgets.QMainWindow):
         self.results_file = None
         self.run_dir = None
         self._run_count = 0
-        self.executor = "inprocess"
+        self.executor = "auto"      # in-process for short runs, local processes for long ones
 
         arm = _load_arm(DEMO_ARM)
         self.arm_path = DEMO_ARM
@@ -153,6 +153,13 @@ class MainWindow(QtWidgets.QMainWindow):
         self._refresh_timer.setInterval(150)
         self._refresh_timer.timeout.connect(self._refresh_results)
 
+        from .qtfix import guard
+
+        guard()
+        self._guard_timer = QtCore.QTimer(self)      # see qtfix: keeps the headroom topped up
+        self._guard_timer.timeout.connect(guard)
+        self._guard_timer.start(5000)
+
         if load_demo:
             demo_cell = find_demo_cell()
             if demo_cell:
@@ -225,7 +232,8 @@ class MainWindow(QtWidgets.QMainWindow):
                 self._apply_arm(path)
             elif kind == "cell":
                 self._apply_cell(path)
-                self._arm_changed(keep_arm=True)
+                self._set_arm(self._with_mount(self.state.arm, np.eye(4)) if self.cell.placement is None
+                              else self.state.arm)
             elif kind == "study":
                 self._apply_study(path)
             else:
@@ -248,11 +256,21 @@ class MainWindow(QtWidgets.QMainWindow):
 
     def _set_arm(self, arm):
         if self.cell is not None and getattr(self.cell, "placement", None) is not None:
-            model = dataclasses.replace(arm.model, mount=np.asarray(self.cell.placement, float))
-            from ..kinematics import Arm
-
-            arm = Arm(model)
+            arm = self._with_mount(arm, self.cell.placement)
         self.state.set_arm(arm)
+        self.study_panel.set_context(self.state.arm, self.arm_path, self.cell, self.cell_path)
+
+    @staticmethod
+    def _with_mount(arm, mount):
+        from ..kinematics import Arm
+
+        return Arm(dataclasses.replace(arm.model, mount=np.asarray(mount, float)))
+
+    def _place_arm(self, mount):
+        """Move the arm's base to ``mount`` (4, 4) for display (a mount search cell, a path audit)."""
+        if mount is None or np.allclose(self.state.arm.model.mount, mount):
+            return
+        self.state.set_arm(self._with_mount(self.state.arm, mount))
 
     def _apply_cell(self, path):
         from ..studies.cell import read_cell_file
@@ -315,13 +333,14 @@ class MainWindow(QtWidgets.QMainWindow):
     # ---- arm state -----------------------------------------------------------------------
     def _arm_changed(self, keep_arm=False):
         self.arm_panel.rebuild()
-        self.study_panel.set_context(self.state.arm, self.arm_path, self.cell, self.cell_path)
+        if not keep_arm:
+            self.study_panel.set_context(self.state.arm, self.arm_path, self.cell, self.cell_path)
         self.scene.set_pose(self.state.info())
         self.scene.set_ghosts(None)
 
     def _state_changed(self, what):
         if what == "arm":
-            self._arm_changed()
+            self._arm_changed(keep_arm=True)
             return
         info = self.state.info()
         self.arm_panel.refresh()
@@ -386,6 +405,9 @@ class MainWindow(QtWidgets.QMainWindow):
     def _refresh_results(self):
         if self.result is None:
             return
+        if self.session is not None:
+            self.session.refresh_derived()
+        self._show_candidates()
         self.map_view.refresh(final=not self.running)
         self.hist_view.set_measure(self.map_view.measure or self.result.threshold_measure, self.state.threshold)
         self.pose_list.refresh()
@@ -440,11 +462,29 @@ class MainWindow(QtWidgets.QMainWindow):
             self.map_view.set_result(data)
             self.map_view.set_threshold(self.state.threshold)
         else:
-            self.map_view.data = data
+            if self.map_view.roi is not None:
+                self.map_view.brush_btn.setChecked(False)
+            self.map_view.set_result_series(data)
         self.hist_view.set_result(data, data.threshold_measure)
         self.pose_list.set_result(data)
+        if data.mount_fn is not None and "mount_full_index" in data.extras:
+            col = next(i for i, c in enumerate(self.pose_list.model.columns) if c[1] == ("m", "score"))
+            self.pose_list.table.sortByColumn(col, QtCore.Qt.DescendingOrder)
+            self._show_candidates()
         self._show_series()
         self.scene.set_ghosts(None)
+
+    def _show_candidates(self):
+        """Mount search: the floor cells drawn in the scene, coloured by their best score."""
+        d = self.result
+        if d is None or d.mount_fn is None or "mount_full_index" not in d.extras:
+            return
+        X, Y = np.meshgrid(d.x, d.y)
+        pts = np.column_stack([X.ravel(), Y.ravel(), np.zeros(X.size)])
+        sc = d.measures["score"]
+        f = sc[np.isfinite(sc)]
+        top = float(f.max()) if f.size and f.max() > 0 else 1.0
+        self.scene.set_candidates(pts, np.where(np.isfinite(sc), sc / top, np.nan))
 
     def _show_series(self):
         """Series results (no 2D grid): the map area shows the measure along the series axis."""
@@ -461,6 +501,8 @@ class MainWindow(QtWidgets.QMainWindow):
     def _selection_changed(self, sel, source, final):
         if not final or self.result is None or sel.size != self.result.size:
             return
+        if not self.result.is_map:
+            self._show_series()
         if not sel.active or sel.count == 0 or not self.result.has_poses:
             self.scene.set_ghosts(None)
             if sel.active:
@@ -471,8 +513,14 @@ class MainWindow(QtWidgets.QMainWindow):
         if idx.size > MAX_GHOSTS:
             idx = idx[np.linspace(0, idx.size - 1, MAX_GHOSTS).round().astype(np.int64)]
         q = self.result.poses(idx)
-        q = q[np.all(np.isfinite(q), axis=1)] if q is not None else None
-        self.scene.set_ghosts(self.state.link_points(q) if q is not None and len(q) else None)
+        mounts = None
+        if q is not None and self.result.mount_fn is not None:
+            mounts = np.array([self.result.mount_fn(c) for c in idx])
+        if q is not None:
+            ok = np.all(np.isfinite(q), axis=1)
+            q = q[ok]
+            mounts = mounts[ok] if mounts is not None else None
+        self.scene.set_ghosts(self.state.link_points(q, mounts) if q is not None and len(q) else None)
         self.status.showMessage(f"{sel.count} cells brushed; {0 if q is None else len(q)} shown as ghost arms", 5000)
 
     def pick_cell(self, c):
@@ -485,6 +533,8 @@ class MainWindow(QtWidgets.QMainWindow):
         if not np.all(np.isfinite(q)):
             self.status.showMessage("no pose behind this cell (not reached)", 4000)
             return False
+        if d.mount_fn is not None:
+            self._place_arm(d.mount_fn(c))
         self.state.set_q(q)
         x, y = d.cell_xy(c)
         self.status.showMessage(f"cell {c} ({d.x_label} {x:.4g}" + (f", {d.y_label} {y:.4g}" if y is not None else "")

@@ -190,14 +190,19 @@ class PoseState:
                         ellipsoid_axes=axes, near_singular=bool(near), note=note,
                         in_limits=bool(arm.in_limits(q)), limit_margin=float(arm.limit_margin(q)))
 
-    def link_points(self, Q) -> np.ndarray:
-        """Link polylines for many poses Q (k, n) -> (k, n + 2, 3) world points (ghost arms)."""
+    def link_points(self, Q, mounts=None) -> np.ndarray:
+        """Link polylines for many poses Q (k, n) -> (k, n + 2, 3) world points (ghost arms).
+
+        ``mounts`` (k, 4, 4) places each arm (mount search); default: the arm's own mount.
+        """
         arm = self.arm
         Q = np.asarray(Q, dtype=float).reshape(-1, arm.n)
-        F = arm.frames(Q, world=True)
-        tcp = arm.fk(Q, frame="tcp", world=True)
-        base = np.broadcast_to(arm.model.mount[:3, 3], (Q.shape[0], 1, 3))
-        return np.concatenate([base, F[:, :, :3, 3], tcp[:, None, :3, 3]], axis=1)
+        F = arm.frames(Q, world=False)
+        tcp = arm.fk(Q, frame="tcp", world=False)
+        base = np.zeros((Q.shape[0], 1, 3))
+        pts = np.concatenate([base, F[:, :, :3, 3], tcp[:, None, :3, 3]], axis=1)
+        M = np.broadcast_to(arm.model.mount, (Q.shape[0], 4, 4)) if mounts is None else np.asarray(mounts, float)
+        return np.einsum("kij,kmj->kmi", M[:, :3, :3], pts) + M[:, None, :3, 3]
 
     # ---- listeners -----------------------------------------------------------------------
     def subscribe(self, fn):

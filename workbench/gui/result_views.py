@@ -115,6 +115,14 @@ class MapView(QtWidgets.QWidget):
 
     def set_result(self, data: ResultData):
         self.data = data
+        for it in getattr(self, "_series_items", []):
+            self.plot.removeItem(it)
+        self._series_items = []
+        if getattr(self, "series_region", None) is not None:
+            self.plot.removeItem(self.series_region)
+            self.series_region = None
+        self.image.show()
+        self.cbar.show()
         self.measure_combo.blockSignals(True)
         self.measure_combo.clear()
         for m in data.measure_names:
@@ -136,6 +144,23 @@ class MapView(QtWidgets.QWidget):
         self.image.setRect(self._rect)
         self.plot.getPlotItem().vb.autoRange(padding=0.02)
 
+    def set_result_series(self, data: ResultData):
+        """A series result: the series module draws it into this plot."""
+        self.brush_btn.setChecked(False)
+        self._toggle_series_region(False)
+        self.data = data
+        self.measure_combo.blockSignals(True)
+        self.measure_combo.clear()
+        for m in data.measure_names:
+            self.measure_combo.addItem(measure_label(m), m)
+        if data.threshold_measure in data.measures:
+            self.measure_combo.setCurrentIndex(data.measure_names.index(data.threshold_measure))
+        self.measure_combo.blockSignals(False)
+        self.image.clear()
+        self.overlay.clear()
+        self.contour.setData(None)
+        self.contour_shadow.setData(None)
+
     def set_threshold(self, t):
         self.threshold = float(t)
         self._update_contour()
@@ -156,7 +181,9 @@ class MapView(QtWidgets.QWidget):
 
     def _update_contour(self):
         d = self.data
-        if d is None or not d.is_map or "inverse_condition" not in d.measures:
+        if d is not None and not d.is_map:
+            return
+        if d is None or "inverse_condition" not in d.measures:
             self.contour.setData(None)
             self.contour_shadow.setData(None)
             self.legend.setText("")
@@ -175,11 +202,19 @@ class MapView(QtWidgets.QWidget):
                             f"orange: brushed")
 
     def _measure_chosen(self, _i):
-        self.refresh(final=False)
+        if self.data is not None and not self.data.is_map:
+            from .series import show_series
+
+            show_series(self, self.data, self.threshold)
+        else:
+            self.refresh(final=False)
         self.measure_changed.emit(self.measure)
 
     # ---- brushing ------------------------------------------------------------------------
     def _toggle_roi(self, on):
+        if self.data is not None and not self.data.is_map:
+            self._toggle_series_region(on)
+            return
         if on and self.data is not None and self.data.is_map and self.roi is None:
             r = self._rect
             self.roi = pg.RectROI([r.x() + r.width() * 0.3, r.y() + r.height() * 0.3],
@@ -192,6 +227,21 @@ class MapView(QtWidgets.QWidget):
         elif not on and self.roi is not None:
             self.plot.removeItem(self.roi)
             self.roi = None
+
+    def _toggle_series_region(self, on):
+        reg = getattr(self, "series_region", None)
+        if on and reg is None:
+            x = self.data.x
+            lo, hi = float(np.nanmin(x)), float(np.nanmax(x))
+            reg = pg.LinearRegionItem([lo + 0.3 * (hi - lo), lo + 0.5 * (hi - lo)], brush=(255, 140, 0, 60))
+            reg.setZValue(20)
+            self.plot.addItem(reg)
+            reg.sigRegionChangeFinished.connect(lambda *_: self.brush_series(*reg.getRegion(), final=True))
+            self.series_region = reg
+            self.brush_series(*reg.getRegion(), final=True)
+        elif not on and reg is not None:
+            self.plot.removeItem(reg)
+            self.series_region = None
 
     def brush_rect(self, x0, x1, y0, y1, final=True):
         """Brush the cells whose centres lie in [x0, x1] x [y0, y1] (axis units)."""
@@ -216,7 +266,13 @@ class MapView(QtWidgets.QWidget):
 
     def _clicked(self, ev):
         d = self.data
-        if d is None or not d.is_map or ev.button() != QtCore.Qt.LeftButton:
+        if d is None or ev.button() != QtCore.Qt.LeftButton:
+            return
+        if not d.is_map:   # a series: the sample nearest to the click along the axis
+            p = self.plot.getPlotItem().vb.mapSceneToView(ev.scenePos())
+            ok = np.flatnonzero(d.done)
+            if ok.size:
+                self.cell_picked.emit(int(ok[np.argmin(np.abs(d.x[ok] - p.x()))]))
             return
         p = self.image.mapFromScene(ev.scenePos())
         i, j = int(np.floor(p.x())), int(np.floor(p.y()))

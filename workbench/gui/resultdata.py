@@ -63,6 +63,7 @@ class ResultData:
     done: np.ndarray = None
     pose_fn: object = None          # fn(flat indices (k,)) -> (k, n) joint values, when q is None
     tcp: np.ndarray | None = None   # (N, 3) TCP points of sample studies (m), or None
+    mount_fn: object = None         # fn(flat cell) -> (4, 4) arm mount for that cell, or None
 
     def __post_init__(self):
         if self.done is None:

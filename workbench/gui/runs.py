@@ -26,7 +26,7 @@ __all__ = ["StudySession", "StudyWorker", "session_from_spec", "session_from_res
 #: the runner sizes chunks to about this many seconds when the window runs a study in-process:
 #: a compiled kernel holds the interpreter lock for one chunk, so short chunks keep the event loop
 #: responsive (DESIGN §8: no stall over 100 ms) and results show up often
-GUI_CHUNK_SECONDS = 0.03
+GUI_CHUNK_SECONDS = 0.05
 
 
 def _axis_label(ax):
@@ -53,8 +53,7 @@ class StudySession:
         self.spec = plan.spec
         if arrays is None:
             arrays = {f.name: f.empty(plan.cells) for f in plan.fields}
-        self.arrays = {k: np.asarray(v).reshape((plan.cells,) + np.asarray(v).shape[len(plan.shape):])
-                       for k, v in arrays.items()}
+        self.arrays = {k: np.asarray(v) for k, v in arrays.items()}   # each (cells, *field shape)
         self.data = self._result_data()
         if done is not None:
             self.data.done[:] = np.asarray(done, bool).reshape(-1)
@@ -65,6 +64,90 @@ class StudySession:
 
     # ---- the view of the result ----------------------------------------------------------
     def _result_data(self) -> ResultData:
+        plan = self.plan
+        if plan.kind == "mount_search" and len(plan.axes) == 5:
+            return self._mount_view()
+        data = self._grid_view()
+        if plan.kind == "path_audit" and "s" in plan.data:
+            self._path_axis(data)
+        mount = plan.data.get("mount")
+        if isinstance(mount, np.ndarray) and mount.shape == (4, 4):
+            data.mount_fn = lambda c, M=mount: M
+        return data
+
+    def _path_axis(self, data):
+        """Path audit: the series axis is the distance along the paths (one after the other)."""
+        d = self.plan.data
+        s, idx = np.asarray(d["s"], float), np.asarray(d["path_index"], int)
+        offsets = np.concatenate([[0.0], np.cumsum(d.get("lengths", [0.0] * (idx.max() + 1)))])[:-1]
+        data.x = s + offsets[idx]
+        data.x_label = "distance along the path" + ("s" if len(offsets) > 1 else "") + " (m)"
+        data.extras["path_names"] = list(d.get("names", []))
+        data.extras["path_starts"] = offsets
+
+    def _mount_view(self) -> ResultData:
+        """Mount search: the floor map holds, per base (x, y), the best candidate over styles,
+        heights and yaws; picking a floor cell places the arm there at its best candidate."""
+        plan, arm = self.plan, self.arm
+        S, H, Y, ny, nx = plan.shape
+        ax = {a.name: a for a in plan.axes}
+        score = self.arrays["score"].reshape(S * H * Y, ny * nx)
+        best = np.argmax(np.where(np.isfinite(score), score, -np.inf), axis=0)   # (ny * nx,)
+        self._mount_best = best
+        cols = np.arange(ny * nx)
+        full = best * (ny * nx) + cols
+        names = ("score", "reached_fraction", "worst_measure", "min_margin")
+        measures = {m: self.arrays[m][full].astype(float) for m in names if m in self.arrays}
+        data = ResultData(kind=self.kind.title or plan.kind, shape=(ny, nx), x=ax["x"].values, y=ax["y"].values,
+                          x_label="base x (m)", y_label="base y (m)", measures=measures, q=None,
+                          joint_names=tuple(arm.names), joint_kinds=tuple(j.kind for j in arm.model.joints),
+                          title=(self.spec.name if self.spec is not None else "") or self.kind.title,
+                          threshold_measure="score")
+        data.extras["mount_full_index"] = full
+        data.pose_fn = self._mount_pose
+        data.mount_fn = self._mount_of_cell
+        data.done = np.isfinite(measures["score"])
+        return data
+
+    def refresh_derived(self):
+        """Recompute views that reduce the raw arrays (the mount search floor map) after new chunks."""
+        if self.plan.kind != "mount_search" or len(self.plan.axes) != 5:
+            return
+        fresh = self._mount_view()
+        for k, v in fresh.measures.items():
+            self.data.measures[k][:] = v
+        self.data.done[:] = fresh.done
+        self.data.extras.update(fresh.extras)
+
+    def _mount_full(self, c):
+        return int(self.data.extras["mount_full_index"][int(c)])
+
+    def _mount_of_cell(self, c):
+        from ..studies.cell import mount_transforms
+
+        plan = self.plan
+        si, hi, yi, yyi, xi = np.unravel_index(self._mount_full(c), plan.shape)
+        ax = {a.name: a.values for a in plan.axes}
+        return mount_transforms(ax["x"][xi], ax["y"][yyi], ax["height"][hi], ax["yaw"][yi],
+                                plan.data["tilts"][si])
+
+    def _mount_pose(self, cells):
+        """The arm at each floor cell's best candidate, posed at the first work point it reaches."""
+        n = self.arm.n
+        out = np.full((len(cells), n), np.nan)
+        q = self.arrays.get("q")
+        reached = self.arrays.get("point_reached")
+        if q is None or reached is None:
+            return out
+        P = reached.shape[1]
+        for k, c in enumerate(np.asarray(cells).reshape(-1)):
+            full = self._mount_full(c)
+            hit = np.flatnonzero(reached[full] > 0)
+            if hit.size:
+                out[k] = q[full].reshape(P, n)[hit[0]]
+        return out
+
+    def _grid_view(self) -> ResultData:
         plan, arm = self.plan, self.arm
         axes = plan.axes
         if len(axes) == 2:
@@ -108,6 +191,8 @@ class StudySession:
         for name, v in arrays.items():
             if name in self.arrays:
                 self.arrays[name][start:stop] = np.asarray(v).reshape((stop - start,) + self.arrays[name].shape[1:])
+        if self.plan.kind == "mount_search":
+            return
         self.data.done[start:stop] = True
 
     @property
@@ -169,7 +254,7 @@ class StudyWorker(QtCore.QObject):
     progress = QtCore.Signal(int, int, float)
     finished = QtCore.Signal(str, object)
 
-    def __init__(self, spec, out_path, executor="inprocess", chunk_seconds=GUI_CHUNK_SECONDS):
+    def __init__(self, spec, out_path, executor="auto", chunk_seconds=GUI_CHUNK_SECONDS):
         super().__init__()
         self.spec = spec
         self.out_path = out_path
@@ -187,7 +272,7 @@ class StudyWorker(QtCore.QObject):
 
     @QtCore.Slot()
     def run(self):
-        from ..runner import run_study
+        from ..runner import prepare, run_study
 
         def on_chunk(chunk, arrays):
             self.chunk_finished.emit(chunk.start, chunk.stop, {k: np.array(v) for k, v in arrays.items()})
@@ -196,7 +281,12 @@ class StudyWorker(QtCore.QObject):
             self.progress.emit(int(done), int(total), float(eta))
 
         try:
-            res = run_study(self.spec, out=self.out_path, executor=self.executor, progress=progress,
+            study = prepare(self.spec)
+            if study.plan.n_chunks > 1:
+                study = self.spec    # let the runner size the chunks (about chunk_seconds each)
+            # else: the kind wants the whole grid in one chunk (a path audit tracks each path from
+            # its start), so run its own plan as it is
+            res = run_study(study, out=self.out_path, executor=self.executor, progress=progress,
                             cancel=self._cancel, on_chunk=on_chunk, chunk_seconds=self.chunk_seconds)
             status = "cancelled" if (self._cancel.is_set() and res.incomplete) else "done"
             self.finished.emit(status, self.out_path if os.path.exists(self.out_path) else None)

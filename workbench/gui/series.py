@@ -59,10 +59,12 @@ def show_series(view, data, threshold):
         view._series_items.append(pts)
     plot.setLabel("bottom", data.x_label)
     plot.setLabel("left", measure_label(m))
-    plot.setTitle(f"{data.title or data.kind}: red bands = near singular (1/k < {threshold:g})")
+    plot.setTitle(data.title or data.kind)
+    view.legend.setText(f"red bands: near singular (1/k < {threshold:g}); orange: brushed")
     plot.getPlotItem().vb.autoRange(padding=0.02)
 
     def brush(lo, hi, final=True):
         sel.set_mask(range_mask(x, lo, hi), source="series", final=final)
 
     view.brush_series = brush
+    view.series_x = x

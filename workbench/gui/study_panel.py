@@ -157,7 +157,9 @@ class StudyPanel(QtWidgets.QWidget):
     def _build_form(self, settings):
         while self.form.count():
             w = self.form.takeAt(0).widget()
-            if w is not None:
+            if w is not None:   # hide and detach now: deferred deletes wait for the event loop
+                w.hide()
+                w.setParent(None)
                 w.deleteLater()
         self.edits, self.reasons = {}, {}
         for r, (key, value) in enumerate(settings.items()):
@@ -210,6 +212,9 @@ class StudyPanel(QtWidgets.QWidget):
                 self.estimate_label.setText(f"<span style='color:#b01010'>{exc}</span>")
                 self.run_btn.setEnabled(False)
                 return False
+            except Exception as exc:  # a failure inside a study kind: say so, keep the window going
+                self.estimate_label.setText(f"<span style='color:#b01010'>no estimate: the study failed on a "
+                                            f"few test cells ({exc.__class__.__name__}: {exc})</span>")
         elif not ok:
             self.estimate_label.setText("")
         self.spec_changed.emit()
