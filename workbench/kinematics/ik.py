@@ -64,7 +64,7 @@ MAX_STEP = 0.5   # largest joint step per iteration, rad (prismatic: times the a
 POOL = 65536     # random in-limit poses from which the seeds nearest each target are picked
 NEAR = 7         # how many of the generated seeds are picked from the pool (the rest: home, random)
 GRID_CELLS_PER_LENGTH = 24  # pool bucketing: cell size = arm length / this
-NEAR_CANDIDATES = 32  # pool poses nearest a target among which the spread-out near seeds are picked
+NEAR_CANDIDATES = 64  # pool poses nearest a target among which the spread-out near seeds are picked
 NEAR_SPREAD = 1.0     # rad: picked near seeds differ by at least this in some joint (when possible)
 
 
@@ -290,7 +290,7 @@ def target_seeds(arm, T_goal, seeds=8, orientation="fixed", rng=0) -> np.ndarray
     n_near = min(NEAR, common.shape[0] - 1)
     pool = seed_pool(arm, rng)
     idx = np.empty((goals.shape[0], n_near), dtype=np.int64)
-    _k.near_seeds_batch(goals, *pool[:6], n_near, NEAR_CANDIDATES, NEAR_SPREAD, mode, 1.0 / float(arm.nominal_reach()), idx)
+    _k.near_seeds_batch(goals, *pool[:6], n_near, NEAR_CANDIDATES, NEAR_SPREAD, arm.model.kinds, mode, 1.0 / float(arm.nominal_reach()), idx)
     rest = np.concatenate([common[:1], common[1 + n_near:]])
     out = np.concatenate([pool[0][idx], np.broadcast_to(rest, (goals.shape[0],) + rest.shape)], axis=1)
     return out.reshape(lead + out.shape[1:])

@@ -436,9 +436,10 @@ def _nearest_grid(goal, pool_T, lo, h, dims, starts, mode, inv_len, k, best_d, b
 
 
 @njit(cache=True, inline="always")
-def _spread(pool_q, cand_i, n_cand, k, spread, out_i):
+def _spread(pool_q, kinds, cand_i, n_cand, k, spread, out_i):
     """Pick k of the candidates (nearest first): skip a candidate within ``spread`` rad (max over
-    joints) of one already picked while others remain; fill up with the nearest skipped ones."""
+    joints; revolute differences wrapped to [-pi, pi]) of one already picked while others remain;
+    fill up with the nearest skipped ones."""
     n = pool_q.shape[1]
     taken = np.zeros(n_cand, dtype=np.bool_)
     got = 0
@@ -449,7 +450,11 @@ def _spread(pool_q, cand_i, n_cand, k, spread, out_i):
         for a in range(got):
             dmax = 0.0
             for j in range(n):
-                dmax = max(dmax, abs(pool_q[cand_i[c], j] - pool_q[out_i[a], j]))
+                d = abs(pool_q[cand_i[c], j] - pool_q[out_i[a], j])
+                if kinds[j] == 0:
+                    d = d % (2.0 * np.pi)
+                    d = min(d, 2.0 * np.pi - d)
+                dmax = max(dmax, d)
             if dmax < spread:
                 ok = False
                 break
@@ -506,7 +511,7 @@ def ik_batch(goals, seeds, user, pool_q, pool_T, grid_lo, grid_h, grid_dims, gri
             if n_near > 0:
                 _nearest_grid(goal, pool_T, grid_lo, grid_h, grid_dims, grid_starts, mode, inv_len, n_cand,
                               near_d, cand_i)
-                _spread(pool_q, cand_i, n_cand, n_near, spread, near_i)
+                _spread(pool_q, kinds, cand_i, n_cand, n_near, spread, near_i)
             dx = goal[0, 3] - reach_center[0]
             dy = goal[1, 3] - reach_center[1]
             dz = goal[2, 3] - reach_center[2]
@@ -581,7 +586,7 @@ def ik_batch(goals, seeds, user, pool_q, pool_T, grid_lo, grid_h, grid_dims, gri
 
 @njit(cache=True, parallel=True)
 def near_seeds_batch(goals, pool_q, pool_T, grid_lo, grid_h, grid_dims, grid_starts, n_near, n_candidates, spread,
-                     mode, inv_len, out):
+                     kinds, mode, inv_len, out):
     """The pool indices ``ik_batch`` picks as near seeds for each goal: out (N, n_near) int64."""
     N = goals.shape[0]
     P = pool_q.shape[0]
@@ -591,4 +596,4 @@ def near_seeds_batch(goals, pool_q, pool_T, grid_lo, grid_h, grid_dims, grid_sta
         cand_i = np.zeros(n_cand, dtype=np.int64)
         _nearest_grid(goals[i], pool_T, grid_lo, grid_h, grid_dims, grid_starts, mode, inv_len, n_cand,
                       near_d, cand_i)
-        _spread(pool_q, cand_i, n_cand, n_near, spread, out[i])
+        _spread(pool_q, kinds, cand_i, n_cand, n_near, spread, out[i])
