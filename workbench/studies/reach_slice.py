@@ -4,6 +4,9 @@ Per grid point the tool goal is the point with an orientation rule; batched IK
 (:func:`workbench.kinematics.ik.solve_ik`) runs from several seeds; the study records whether the
 point is reached, how many distinct joint solutions the seeds found, the measures of DESIGN §4 at
 the best of them (highest ``best`` measure, default inverse condition) and that joint solution.
+A point that no seed reaches is retried once from the solutions its grid neighbours found (a
+missed point inside a reached region is most often a seeding miss; the neighbours' first passes are
+recomputed when they lie outside the chunk, so results do not depend on the chunking).
 
 Optionally (orientation = "sampled") a **reachability index** per point: the fraction of a set of
 sampled tool orientations that are reached (Zacharias, Borst & Hirzinger, "Capturing robot workspace
@@ -30,6 +33,7 @@ Settings (study file ``[settings]``; lengths in m, angles in degrees)::
     directions = 26                # sampled: approach directions on the sphere
     spins = 4                      # sampled: turns about each direction (0 = spin free)
     seeds = 8                      # IK seeds per target (<= 8 is enough, see `workbench bench`)
+    neighbour_seeds = true         # retry a missed point from its grid neighbours' solutions
     frame = "tcp"; rows = "full"; length = <nominal reach>   # measures, as in the joint sweep
     best = "inverse_condition"     # measure that picks the best solution
     distinct_tol = 0.1             # deg: solutions closer than this in every joint are one
@@ -58,7 +62,7 @@ __all__ = ["ReachSlice", "ReachSettings", "sphere_orientations", "bench_reach_sl
 _DEG = math.pi / 180.0
 _KEYS = {"grid", "plane", "at", "origin", "plane_rpy", "u", "v", "x", "y", "z", "step", "steps",
          "orientation", "rpy", "axis", "directions", "spins", "seeds", "frame", "rows", "length", "best",
-         "distinct_tol", "near_singular", "mount_xyz", "mount_rpy"}
+         "distinct_tol", "near_singular", "mount_xyz", "mount_rpy", "neighbour_seeds"}
 _PLANES = {"xy": (0, 1, 2), "xz": (0, 2, 1), "yz": (1, 2, 0)}
 _BEST = {"inverse_condition": 1.0, "manipulability": 1.0, "min_sv": 1.0, "condition": -1.0}
 MAX_POINTS = 4_000_000
@@ -98,6 +102,7 @@ class ReachSettings:
     distinct_tol: float
     near_singular: float
     mount: np.ndarray
+    neighbour_seeds: bool = True
 
 
 def sphere_orientations(directions: int, spins: int) -> np.ndarray:
@@ -266,6 +271,9 @@ def _validate(settings: Mapping, arm, cell, where: str) -> ReachSettings:
     near = _num(settings, where, "near_singular", 0.01)
     if not 0 <= near <= 1:
         raise _err(where, "near_singular", f"expected an inverse condition between 0 and 1, got {near!r}")
+    nbs = settings.get("neighbour_seeds", True)
+    if not isinstance(nbs, bool):
+        raise _err(where, "neighbour_seeds", f"expected true or false, got {nbs!r}")
     if "mount_xyz" in settings or "mount_rpy" in settings:
         mount = make_transform(_nums(settings, where, "mount_xyz", 3, [0, 0, 0]),
                                _nums(settings, where, "mount_rpy", 3, [0, 0, 0]) * _DEG)
@@ -276,7 +284,7 @@ def _validate(settings: Mapping, arm, cell, where: str) -> ReachSettings:
     return ReachSettings(grid=grid, axes_values=vals, plane=plane if grid == "plane" else "", plane_frame=F,
                          orientation=orientation, rule=rule, rotations=np.ascontiguousarray(rot), seeds=seeds,
                          frame=str(frame), rows=rows if isinstance(rows, str) else list(rows), length=length,
-                         best=best, distinct_tol=dtol, near_singular=near, mount=mount)
+                         best=best, distinct_tol=dtol, near_singular=near, mount=mount, neighbour_seeds=nbs)
 
 
 def _ik_status_bits(status):
@@ -342,16 +350,19 @@ class ReachSlice(StudyKind):
                                 fill=0))
         fields.append(Field("q", (n,), "float64", "rad/m", "joint values of the best solution", kind="pose"))
         fields.append(Field("target", (3,), "float64", "m", "grid point in the cell frame", kind="point"))
-        default_chunk = 2048 if s.orientation != "sampled" else max(16, 4096 // len(s.rotations))
+        default_chunk = 4096 if s.orientation != "sampled" else max(16, 4096 // len(s.rotations))
         return Plan(self.name, spec, s, axes, tuple(fields), chunk_cells=chunk_cells or default_chunk,
                     data={"base_from_cell": inverse_transform(s.mount)})
 
     # ------------------------------------------------------------------------------------------
     def points(self, plan: Plan, start: int, stop: int) -> np.ndarray:
         """Grid points [start, stop) of the flattened grid in the cell frame, (count, 3) m."""
+        return self.points_at(plan, np.arange(start, stop))
+
+    def points_at(self, plan: Plan, idx) -> np.ndarray:
+        """Grid points of flat grid indices ``idx`` (count,) in the cell frame, (count, 3) m."""
         s = plan.settings
-        idx = np.arange(start, stop)
-        sub = np.unravel_index(idx, plan.shape)
+        sub = np.unravel_index(np.asarray(idx, dtype=np.int64), plan.shape)
         if s.grid == "plane":
             v = plan.axes[0].values[sub[0]]
             u = plan.axes[1].values[sub[1]]
@@ -362,29 +373,113 @@ class ReachSlice(StudyKind):
         x = plan.axes[2].values[sub[2]]
         return np.stack([x, y, z], axis=-1)
 
+    @staticmethod
+    def _targets(plan, P):
+        """Tool goals (count, K, 4, 4) in the arm base frame for cell points P (count, 3)."""
+        s = plan.settings
+        T = np.tile(np.eye(4), (len(P), len(s.rotations), 1, 1))
+        T[:, :, :3, :3] = s.rotations[None]
+        T[:, :, :3, 3] = P[:, None, :]
+        return plan.data["base_from_cell"] @ T
+
+    def _first_pass(self, plan, arm, idx):
+        """IK of grid points ``idx`` from the generated seeds, every seed run:
+        (q (count, S, n), status (count, S), distinct mask (count, S))."""
+        from ..kinematics.ik import distinct_solutions, solve_ik
+
+        s = plan.settings
+        Tb = self._targets(plan, self.points_at(plan, idx))[:, 0]
+        res = solve_ik(arm, Tb, seeds=s.seeds, orientation=s.rule, all_solutions=True)
+        return res.q, res.status, distinct_solutions(arm, res.q, res.status, s.distinct_tol)
+
+    @staticmethod
+    def _neighbours(plan, idx):
+        """Flat indices (count, 2 * dims) of the grid neighbours of ``idx`` along each axis; -1 off
+        the grid."""
+        shape = plan.shape
+        sub = np.unravel_index(idx, shape)
+        out = []
+        for ax in range(len(shape)):
+            for d in (-1, 1):
+                s2 = [a.copy() for a in sub]
+                s2[ax] = s2[ax] + d
+                valid = (s2[ax] >= 0) & (s2[ax] < shape[ax])
+                s2[ax] = np.clip(s2[ax], 0, shape[ax] - 1)
+                out.append(np.where(valid, np.ravel_multi_index(tuple(s2), shape), -1))
+        return np.stack(out, axis=1)
+
+    def _neighbour_pass(self, plan, arm, idx, q, status, keep):
+        """Retry the missed points of ``idx`` from the distinct solutions their grid neighbours found
+        in the first pass (neighbours outside the chunk get their first pass here too, so the result
+        does not depend on the chunking). Updates q, status, keep in place."""
+        from ..kinematics.ik import distinct_solutions, solve_ik
+
+        s = plan.settings
+        miss = np.where(~keep.any(axis=1))[0]
+        if miss.size == 0:
+            return
+        start, stop = int(idx[0]), int(idx[-1]) + 1
+        nb = self._neighbours(plan, idx[miss])                     # (F, D)
+        need = np.unique(nb[nb >= 0])
+        outside = need[(need < start) | (need >= stop)]
+        S, n = q.shape[1], q.shape[2]
+        if outside.size:
+            qo, _sto, keepo = self._first_pass(plan, arm, outside)
+        F, D = nb.shape
+        NQ = np.zeros((F, D, S, n))
+        NK = np.zeros((F, D, S), dtype=bool)
+        ins = (nb >= start) & (nb < stop)
+        r, c = np.nonzero(ins)
+        NQ[r, c] = q[nb[r, c] - start]
+        NK[r, c] = keep[nb[r, c] - start]
+        r, c = np.nonzero((nb >= 0) & ~ins)
+        if r.size:
+            pos = np.searchsorted(outside, nb[r, c])
+            NQ[r, c] = qo[pos]
+            NK[r, c] = keepo[pos]
+        NQ = NQ.reshape(F, D * S, n)
+        NK = NK.reshape(F, D * S)
+        has = NK.any(axis=1)
+        if not has.any():
+            return
+        order = np.argsort(~NK[has], axis=1, kind="stable")[:, :S]      # kept solutions first
+        seeds = np.take_along_axis(NQ[has], order[:, :, None], axis=1)
+        counts = np.minimum(NK[has].sum(axis=1), S)
+        rows = miss[has]
+        for c in np.unique(counts):  # one batch per seed count: no padded duplicate seeds
+            sel = counts == c
+            r_ = rows[sel]
+            Tb = self._targets(plan, self.points_at(plan, idx[r_]))[:, 0]
+            res = solve_ik(arm, Tb, seeds=0, q_seed=np.ascontiguousarray(seeds[sel, :c]), orientation=s.rule,
+                           all_solutions=True)
+            k2 = distinct_solutions(arm, res.q, res.status, s.distinct_tol)
+            got = k2.any(axis=1)
+            g = r_[got]
+            q[g, :c] = res.q[got]
+            status[g, :c] = res.status[got]
+            keep[g] = False
+            keep[g, :c] = k2[got]
+
     def compute_chunk(self, plan, arm, cell, chunk) -> dict:
         from ..kinematics import Arm
-        from ..kinematics.ik import CONVERGED, distinct_solutions, solve_ik
+        from ..kinematics.ik import CONVERGED, solve_ik
         from ..measures import pose_measures
 
         s = plan.settings
-        P = self.points(plan, chunk.start, chunk.stop)
+        idx = np.arange(chunk.start, chunk.stop)
+        P = self.points_at(plan, idx)
         M = len(P)
-        K = len(s.rotations)
         n = arm.n
-        T = np.tile(np.eye(4), (M, K, 1, 1))
-        T[:, :, :3, :3] = s.rotations[None]
-        T[:, :, :3, 3] = P[:, None, :]
-        Tb = plan.data["base_from_cell"] @ T
         marm = Arm(replace(arm.model, mount=s.mount))
         if s.orientation == "sampled":
+            Tb = self._targets(plan, P)
             res = solve_ik(arm, Tb, seeds=s.seeds, orientation=s.rule)  # (M, K)
             q, ok, status = res.q, res.status == CONVERGED, res.status
             reach_index = ok.mean(axis=1)
         else:
-            res = solve_ik(arm, Tb[:, 0], seeds=s.seeds, orientation=s.rule, all_solutions=True)  # (M, S)
-            q, status = res.q, res.status
-            ok = distinct_solutions(arm, q, status, s.distinct_tol)
+            q, status, ok = self._first_pass(plan, arm, idx)                     # (M, S, ...)
+            if s.neighbour_seeds and M:
+                self._neighbour_pass(plan, arm, idx, q, status, ok)
             count = ok.sum(axis=1).astype(np.int16)
         meas = pose_measures(marm, q, frame=s.frame, rows=s.rows, length=s.length, world=True)
         key = np.where(ok, _BEST[s.best] * meas[s.best], -np.inf)
