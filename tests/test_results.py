@@ -158,3 +158,27 @@ def test_context_rebuilds_plan_and_poses_from_the_stored_texts(tmp_path):
 
     ref = pose_measures(arm, q)
     np.testing.assert_allclose(r.flat("inverse_condition")[[0, 7, 19]], ref["inverse_condition"], rtol=1e-12)
+
+
+def test_text_columns_round_trip_and_reach_the_csv(tmp_path):
+    from workbench.studies import Table
+
+    prep = prepare(small_spec(), chunk_cells=400)
+    w = ResultsWriter(tmp_path / "t.h5", prep.plan, prep.texts)
+    c = prep.plan.chunk(0)
+    w.write_chunk(c, prep.kind.compute_chunk(prep.plan, prep.arm, None, c))
+    t = Table("joints that limit", {"joint": np.array(["j1", "wrist, 2", None], dtype=object),
+                                    "cells": np.array([3, 0, 7])}, {"cells": ""})
+    empty = Table("no spans", {"path": np.array([], dtype=object), "at": np.array([], dtype=float)})
+    w.close(incomplete=False, tables={"limiting": t, "spans": empty})
+    r = read_results(tmp_path / "t.h5")
+    assert list(r.tables["limiting"].columns["joint"]) == ["j1", "wrist, 2", ""]
+    assert r.tables["spans"].rows == 0
+    assert export_csv(r, tmp_path / "l.csv", table="limiting") == 3
+    assert (tmp_path / "l.csv").read_text() == 'joint,cells\nj1,3\n"wrist, 2",0\n,7\n'
+
+
+def test_png_of_a_three_joint_grid_reduces_the_first_axis(tmp_path):
+    r = run_study(StudySpec("joint_sweep", S6, settings={"joints": ["j1", "j2", "j3"], "steps": [3, 10, 12]}))
+    export_png(r, tmp_path / "m.png")
+    assert os.path.getsize(tmp_path / "m.png") > 5000

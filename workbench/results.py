@@ -388,7 +388,14 @@ class ResultsWriter(_WriterBase):
                     g.attrs.update(title=t.title, description=t.description,
                                    columns=json.dumps(list(t.columns)), units=json.dumps(t.units))
                     for col, v in t.columns.items():
-                        g.create_dataset(col, data=np.asarray(v))
+                        a = np.asarray(v)
+                        if a.dtype.kind in "OUS":  # text columns
+                            a = np.array(["" if x is None else (x.decode("utf-8") if isinstance(x, bytes)
+                                                                  else str(x)) for x in a.reshape(-1)],
+                                         dtype=object)
+                            g.create_dataset(col, data=a, dtype=__import__("h5py").string_dtype("utf-8"))
+                        else:
+                            g.create_dataset(col, data=a)
             for k, v in root.items():
                 h.attrs[k] = v
             h.close()
@@ -476,7 +483,8 @@ def read_results(path, load: bool = True) -> Results:
         tables = {}
         if "tables" in h:
             for name, g in h["tables"].items():
-                cols = {c: g[c][...] for c in json.loads(_attr(g.attrs["columns"]))}
+                cols = {c: (g[c].asstr()[...] if h5py.check_string_dtype(g[c].dtype) else g[c][...])
+                        for c in json.loads(_attr(g.attrs["columns"]))}
                 tables[name] = Table(_attr(g.attrs["title"]), cols, json.loads(_attr(g.attrs["units"])),
                                      _attr(g.attrs.get("description", "")))
         finished = h["chunks"]["finished"][...].astype(bool)
@@ -532,20 +540,30 @@ def export_csv(results: Results, path, table: str | None = None, max_rows: int =
     names = list(cols)
     header = [f"{c} [{units.get(c)}]" if units.get(c) else c for c in names]
     n = len(cols[names[0]]) if names else 0
+    fmts = [_csv_formatter(np.asarray(cols[c])) for c in names]
     try:
+        import csv
+
         with open(tmp, "w", encoding="utf-8", newline="") as fh:
-            fh.write(",".join(header) + "\n")
-            if n:
-                data = np.column_stack([np.asarray(cols[c], dtype=float) for c in names])
-                ints = [np.issubdtype(np.asarray(cols[c]).dtype, np.integer) for c in names]
-                fmt = ",".join("%d" if i else "%.10g" for i in ints)
-                np.savetxt(fh, data, fmt=fmt, delimiter=",")
+            w = csv.writer(fh, lineterminator="\n")
+            w.writerow(header)
+            arrays = [np.asarray(cols[c]) for c in names]
+            for i in range(n):
+                w.writerow([f(a[i]) for f, a in zip(fmts, arrays)])
     except BaseException:
         if os.path.exists(tmp):
             os.unlink(tmp)
         raise
     _replace_or_clean(tmp, final)
     return n
+
+
+def _csv_formatter(a: np.ndarray):
+    if a.dtype.kind in "iub":
+        return lambda v: str(int(v))
+    if a.dtype.kind == "f":
+        return lambda v: "%.10g" % v
+    return lambda v: v.decode("utf-8") if isinstance(v, bytes) else str(v)
 
 
 def _cell_columns(results, max_rows):
@@ -572,10 +590,14 @@ def _cell_columns(results, max_rows):
 
 
 def export_png(results: Results, path, measure: str | None = None, dpi: int = 120) -> str:
-    """Draw a map of ``measure`` (default: inverse condition, or its min over reduced joints) as a
-    PNG with a colour bar and axes in degrees or metres. 1-joint studies give a line plot, 3-joint
-    studies the middle slice of the third joint, random samples a scatter of the frame positions
-    (x, y) or a histogram. Returns the written path."""
+    """Draw a map of ``measure`` as a PNG with a colour bar and axes in degrees or metres.
+
+    Default measure: the inverse condition (or its mean over reduced joints), else the first map.
+    Axes with one value are dropped; two or more axes give a heat map of the last two (further
+    axes are reduced to the best value over them: the maximum, or the minimum for a condition
+    number, as the title says); one axis gives a line plot; random samples and path samples a
+    scatter of their positions (x, y) coloured by the measure, or a histogram without positions.
+    Returns the written path."""
     final, tmp = _atomic_target(path, "--png")
     names = results.measure_names()
     if measure is None:
@@ -590,8 +612,8 @@ def export_png(results: Results, path, measure: str | None = None, dpi: int = 12
     import matplotlib
 
     matplotlib.use("Agg", force=False)
-    from matplotlib.figure import Figure
     from matplotlib.backends.backend_agg import FigureCanvasAgg
+    from matplotlib.figure import Figure
 
     v = np.asarray(results.arrays[measure], dtype=float)
     fig = Figure(figsize=(7, 5.5), dpi=dpi)
@@ -600,15 +622,16 @@ def export_png(results: Results, path, measure: str | None = None, dpi: int = 12
     title = f"{results.name}: {measure}"
     if results.incomplete:
         title += " (incomplete run)"
-    axes = results.axes
 
     def lab(a):
         return f"{a.label} [{a.display_unit}]" if a.display_unit else a.label
 
     finite = v[np.isfinite(v)]
-    vmax = float(np.percentile(finite, 99.5)) if finite.size and measure.startswith("condition") else None
-    if axes and axes[0].name == "sample":
-        pts = next((results.flat(f.name) for f in results.fields if f.kind == "point"), None)
+    worse_high = measure == "condition" or measure.startswith("condition_")
+    vmax = float(np.percentile(finite, 99.5)) if finite.size and worse_high else None
+    axes = list(results.axes)
+    if axes and axes[0].name == "sample" and len(axes) == 1:
+        pts = next((results.flat(f.name) for f in results.fields if f.kind == "point" and f.shape == (3,)), None)
         if pts is not None:
             ok = np.isfinite(v)
             sc = ax.scatter(pts[ok, 0], pts[ok, 1], c=v[ok], s=2, cmap="viridis", vmax=vmax)
@@ -620,23 +643,39 @@ def export_png(results: Results, path, measure: str | None = None, dpi: int = 12
             ax.hist(finite, bins=100)
             ax.set_xlabel(measure)
             ax.set_ylabel("samples")
-    elif len(axes) == 1:
-        ax.plot(axes[0].display_values(), v)
-        ax.set_xlabel(lab(axes[0]))
-        ax.set_ylabel(measure)
     else:
-        if len(axes) == 3:
-            k = axes[2].size // 2
-            v = v[:, :, k]
-            title += f" at {axes[2].name} = {axes[2].display_values()[k]:.4g} {axes[2].display_unit}"
-        a0, a1 = axes[0], axes[1]
-        x, y = a0.display_values(), a1.display_values()
-        ext = [y[0], y[-1], x[0], x[-1]]
-        im = ax.imshow(v, origin="lower", aspect="auto", extent=ext, cmap="viridis", vmax=vmax,
-                       interpolation="nearest")
-        ax.set_xlabel(lab(a1))
-        ax.set_ylabel(lab(a0))
-        fig.colorbar(im, ax=ax, label=measure)
+        keep = [i for i, a in enumerate(axes) if a.size > 1]
+        fixed = [f"{a.label} = {a.display_values()[0]:.4g} {a.display_unit}".rstrip()
+                 for a in axes if a.size == 1]
+        v = v.reshape([a.size for a in axes if a.size > 1]) if keep else v.reshape(1)
+        axes = [axes[i] for i in keep]
+        if len(axes) > 2:
+            extra = tuple(range(len(axes) - 2))
+            with np.errstate(all="ignore"), __import__("warnings").catch_warnings():
+                __import__("warnings").simplefilter("ignore", RuntimeWarning)
+                v = np.nanmin(v, axis=extra) if worse_high else np.nanmax(v, axis=extra)
+            fixed.append(f"best ({'min' if worse_high else 'max'}) over "
+                         + ", ".join(a.label for a in axes[:-2]))
+            axes = axes[-2:]
+        if fixed:
+            title += "\n" + "; ".join(fixed)
+        if len(axes) == 0:
+            ax.bar([0], [float(v.reshape(-1)[0])])
+            ax.set_ylabel(measure)
+        elif len(axes) == 1:
+            ax.plot(axes[0].display_values(), v)
+            ax.set_xlabel(lab(axes[0]))
+            ax.set_ylabel(measure)
+        else:
+            a0, a1 = axes
+            x, y = a0.display_values(), a1.display_values()
+            dy, dx = (y[-1] - y[0]) / (y.size - 1), (x[-1] - x[0]) / (x.size - 1)  # cell centres on the values
+            ext = [y[0] - dy / 2, y[-1] + dy / 2, x[0] - dx / 2, x[-1] + dx / 2]
+            im = ax.imshow(v, origin="lower", aspect="auto", extent=ext, cmap="viridis", vmax=vmax,
+                           interpolation="nearest")
+            ax.set_xlabel(lab(a1))
+            ax.set_ylabel(lab(a0))
+            fig.colorbar(im, ax=ax, label=measure)
     ax.set_title(title, fontsize=10)
     fig.tight_layout()
     try:
@@ -647,4 +686,3 @@ def export_png(results: Results, path, measure: str | None = None, dpi: int = 12
         raise
     _replace_or_clean(tmp, final)
     return final
-
