@@ -162,10 +162,11 @@ class MountSettings:
     refine_evaluations: int = 120
     sensitivity: bool = True
     solutions: str = "first"
+    points: tuple = ()
 
 
 _KEYS = {"measure", "rows", "length", "seeds", "reach_power", "measure_power", "margin_power", "refine",
-         "refine_evaluations", "sensitivity", "solutions"}
+         "refine_evaluations", "sensitivity", "solutions", "points"}
 
 
 def score_formula(s: MountSettings) -> str:
@@ -211,6 +212,12 @@ def _validate(settings: Mapping, arm, where: str) -> MountSettings:
             if isinstance(v, bool) or not isinstance(v, (int, float)) or not (0 <= v <= 20):
                 raise StudyError(f"{where} {key}: expected an exponent between 0 and 20, got {v!r}")
             out[key] = float(v)
+    if "points" in settings:
+        pts = settings["points"]
+        if (not isinstance(pts, list) or not pts or not all(isinstance(x, str) for x in pts)
+                or len(set(pts)) != len(pts)):
+            raise StudyError(f"{where} points: expected a non-empty list of distinct work point names, got {pts!r}")
+        out["points"] = tuple(pts)
     if "solutions" in settings:
         if settings["solutions"] not in ("first", "best"):
             raise StudyError(f"{where} solutions: expected 'first' (fast) or 'best' (every seed), "
@@ -436,7 +443,13 @@ class MountSearch(StudyKind):
             raise StudyError(f"{where}: a mount search needs a cell file ([study] cell)")
         if cell.mount is None:
             raise StudyError(f"{cell.path}: no [mount] table; a mount search needs the candidate region")
-        return _validate(settings or {}, arm, where)
+        s = _validate(settings or {}, arm, where)
+        names = [p.name for p in cell.points]
+        for nm in s.points:
+            if nm not in names:
+                raise StudyError(f"{where} points: no work point named {nm!r} in {cell.path}; points are "
+                                 f"{', '.join(names)}")
+        return s
 
     def plan(self, spec, arm, cell, chunk_cells=None) -> Plan:
         where = f"{spec.where}: [settings]"
@@ -449,7 +462,8 @@ class MountSearch(StudyKind):
             Axis("y", reg.ys, "m", "base y"),
             Axis("x", reg.xs, "m", "base x"),
         )
-        P, n = len(cell.points), arm.n
+        pts = tuple(cell.points) if not s.points else tuple(cell.point(nm) for nm in s.points)
+        P, n = len(pts), arm.n
         formula = score_formula(s)
         fields = (
             Field("score", (), "float64", "", formula, kind="measure"),
@@ -462,8 +476,8 @@ class MountSearch(StudyKind):
                   kind="other"),
             Field("q", (P, n), "float64", "rad", "IK solution of each work point", kind="pose"),
         )
-        data = {"point_names": [p.name for p in cell.points], "tilts": reg.tilts, "styles": list(reg.styles),
-                "formula": formula, "arm_model": arm.model, "points": tuple(cell.points),
+        data = {"point_names": [p.name for p in pts], "tilts": reg.tilts, "styles": list(reg.styles),
+                "formula": formula, "arm_model": arm.model, "points": pts,
                 "step_x": float(reg.xs[1] - reg.xs[0]) if len(reg.xs) > 1 else 0.05,
                 "step_y": float(reg.ys[1] - reg.ys[0]) if len(reg.ys) > 1 else 0.05,
                 "step_yaw": float(np.min(np.diff(np.sort(reg.yaws)))) if len(reg.yaws) > 1 else 10 * _DEG,
