@@ -62,6 +62,7 @@ class Prepared:
     cell: object
     texts: dict
     estimate: object = None
+    fixed_chunks: bool = False
 
 
 def prepare(study, arm=None, cell=None, texts=None, chunk_cells=None) -> Prepared:
@@ -103,7 +104,8 @@ def prepare(study, arm=None, cell=None, texts=None, chunk_cells=None) -> Prepare
         plan = kind.plan(spec, arm, cell, chunk_cells=chunk_cells)
     elif chunk_cells is not None:
         plan = plan.with_chunk_cells(chunk_cells)
-    return Prepared(kind=kind, plan=plan, arm=arm, cell=cell, texts=texts)
+    return Prepared(kind=kind, plan=plan, arm=arm, cell=cell, texts=texts,
+                    fixed_chunks=chunk_cells is not None or isinstance(study, Plan))
 
 
 def _is_cancelled(cancel):
@@ -210,7 +212,9 @@ def run_study(study, out=None, executor="inprocess", workers=None, scheduler=Non
     on_chunk : callable(chunk, arrays), optional
         Called in the runner's thread after each chunk is written (for live views).
     chunk_cells : int, optional
-        Fixed chunk size (cells); default: calibrated to about ``chunk_seconds`` per chunk.
+        Fixed chunk size (cells); default: calibrated to about ``chunk_seconds`` per chunk (a
+        ``Plan`` given as ``study``, a kind with ``calibrated_chunks = False`` and a single-chunk
+        plan keep their chunks).
     compression : {"lzf", "gzip", None}
         HDF5 filter of the field datasets: LZF (fast, h5py's built-in filter) or gzip level 1
         (readable by any HDF5 tool, slower to write).
@@ -250,11 +254,12 @@ def run_study(study, out=None, executor="inprocess", workers=None, scheduler=Non
     from .kinematics import kernels
 
     kernels.set_threads(None)
-    est = calibrate(kind, plan, arm, cell)
+    est = prep.estimate if prep.estimate is not None else calibrate(kind, plan, arm, cell)
     prep.estimate = est
     if executor == "auto":  # processes cost a second or two to start: not worth it for short runs
         executor = "inprocess" if est.seconds < AUTO_INPROCESS_S or n_workers == 1 else "processes"
-    if chunk_cells is None and not isinstance(study, Prepared | Plan):
+    if (chunk_cells is None and not prep.fixed_chunks and plan.n_chunks > 1
+            and getattr(kind, "calibrated_chunks", True)):
         per_thread = est.seconds_per_cell * (1 if executor == "inprocess" else max(1, _threads()))
         target = chunk_seconds / max(per_thread, 1e-12)
         target = min(target, MAX_CHUNK_BYTES / max(1, plan.cell_bytes))

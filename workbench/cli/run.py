@@ -118,7 +118,7 @@ def run(args) -> int:
     if not args.quiet:
         from ..studies.base import calibrate
 
-        est = calibrate(prep.kind, prep.plan, prep.arm, prep.cell)
+        est = prep.estimate = calibrate(prep.kind, prep.plan, prep.arm, prep.cell)
         sys.stderr.write(f"study {prep.plan.spec.name!r} ({prep.kind.title}): {est.describe()}\n")
     try:
         res = run_study(prep, out=out, executor=executor, workers=args.workers, scheduler=args.scheduler,

@@ -333,6 +333,10 @@ class StudyKind:
     title: str = ""
     #: whether the kind needs a cell file (mount search, path audit ...)
     needs_cell: bool = False
+    #: whether the runner may re-cut the plan's chunks to about 0.25 s each (after calibrating).
+    #: Set False to keep the kind's own chunking; a plan of a single chunk is always kept as it is
+    #: (e.g. sequential work such as tracking along a path).
+    calibrated_chunks: bool = True
 
     def default_settings(self, arm) -> dict:
         """Settings as they would appear in a study file (degrees, mm where the file says so) for
@@ -453,25 +457,27 @@ def get_kind(name: str, where: str = "kind") -> StudyKind:
     return inst
 
 
-def calibrate(kind: StudyKind, plan: Plan, arm, cell, sample_cells: int = 2048,
-              budget_s: float = 0.5) -> Estimate:
-    """Time ``compute_chunk`` on a few cells spread over the grid and extrapolate.
+def calibrate(kind: StudyKind, plan: Plan, arm, cell, sample_cells: int = 65536,
+              min_seconds: float = 0.05) -> Estimate:
+    """Time ``compute_chunk`` on the first cells of the grid and extrapolate.
 
-    The first call also pays any compile/warm-up cost, so the sample is computed twice and the
-    second timing is used. Returns an :class:`Estimate` for one worker.
+    A first call on 8 cells pays any compile / warm-up cost and is not used; then the sample grows
+    8-fold from 8 cells until one call takes ``min_seconds`` (or reaches ``sample_cells`` or the
+    grid), so calibrating costs well under a second even for slow kinds. Returns an
+    :class:`Estimate` at the speed of the calling process (all its threads).
     """
     cells = plan.cells
-    n = max(1, min(int(sample_cells), cells))
-    chunk = Chunk(0, 0, n)
-    kind.compute_chunk(plan, arm, cell, Chunk(0, 0, min(cells, 16)))  # warm (compile / caches)
-    t0 = time.perf_counter()
-    kind.compute_chunk(plan, arm, cell, chunk)
-    dt = time.perf_counter() - t0
-    if dt < 0.02 and n < cells and n < 1 << 16:  # too quick to trust: try a bigger sample once
-        n2 = min(cells, n * 8)
+    if cells == 0:
+        return Estimate(0, 0, 0, 0.0, 0.0)
+    kind.compute_chunk(plan, arm, cell, Chunk(0, 0, min(cells, 8)))  # warm (compile / caches)
+    n = min(cells, 8)
+    while True:
         t0 = time.perf_counter()
-        kind.compute_chunk(plan, arm, cell, Chunk(0, 0, n2))
-        dt, n = time.perf_counter() - t0, n2
+        kind.compute_chunk(plan, arm, cell, Chunk(0, 0, n))
+        dt = time.perf_counter() - t0
+        if dt >= min_seconds or n >= min(cells, sample_cells):
+            break
+        n = min(cells, sample_cells, n * 8)
     spc = dt / n
     return Estimate(cells=cells, result_bytes=plan.result_bytes,
                     chunk_bytes=min(cells, plan.chunk_cells) * plan.cell_bytes,
