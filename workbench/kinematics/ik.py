@@ -190,7 +190,7 @@ def solve_ik(arm, T_goal, seeds=8, orientation="fixed", q_seed=None, pos_tol=1e-
         Orientation rule (see module docstring).
     q_seed : array_like, optional
         User seeds tried first: (n,) or (K, n) for all targets, or (..., n) / (..., K, n) matching
-        the leading shape of ``T_goal``.
+        the leading shape of ``T_goal`` (an (N, n) array for N targets is one seed per target).
     pos_tol : float
         Position tolerance (m). Default 1e-6.
     rot_tol : float
@@ -220,6 +220,8 @@ def solve_ik(arm, T_goal, seeds=8, orientation="fixed", q_seed=None, pos_tol=1e-
             raise IKError(f"{name}: expected a positive tolerance, got {v!r}")
     if int(max_iter) < 1:
         raise IKError(f"max_iter: expected at least 1 iteration, got {max_iter!r}")
+    if isinstance(rng, (int, np.integer)) and not isinstance(rng, bool) and rng < 0:
+        raise IKError(f"rng: expected a seed >= 0 or a numpy Generator, got {rng!r}")
     n = arm.model.n
     lead = G.shape[:-2]
     goals = np.ascontiguousarray(G.reshape(-1, 4, 4))
