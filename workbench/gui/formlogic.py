@@ -13,8 +13,8 @@ __all__ = ["parse_value", "format_value", "unit_hint", "check_fields"]
 
 # what the screen says next to a setting (file units; the kinds read degrees and metres)
 UNIT_HINTS = {
-    "ranges": "deg (m for sliding joints)",
-    "pose": "deg (m for sliding joints)",
+    "ranges": "deg (m: sliding)",
+    "pose": "deg (m: sliding)",
     "steps": "points",
     "coarse_steps": "points",
     "length": "m",

@@ -78,6 +78,12 @@ class MainWindow(QtWidgets.QMainWindow):
         self._run_count = 0
         self.executor = "auto"      # in-process for short runs, local processes for long ones
 
+        # one pose at a time on this (the GUI) thread: the compiled kernels' thread pool costs far
+        # more than it gains for a batch of one, and a busy machine makes the hand-off slower still.
+        # numba's thread count is per calling thread, so study workers keep all their threads.
+        from ..kinematics import kernels
+
+        kernels.set_threads(1)
         arm = _load_arm(DEMO_ARM)
         self.arm_path = DEMO_ARM
         self.state = PoseState(arm)
@@ -104,11 +110,13 @@ class MainWindow(QtWidgets.QMainWindow):
             b = QtWidgets.QPushButton(name)
             b.clicked.connect(lambda _=False, n=name: self.scene.set_view(n))
             vb.addWidget(b)
-        vb.addStretch(1)
         self.scene_caption = QtWidgets.QLabel("blue: arm (red near a singularity) · purple: velocity "
-                                              "ellipsoid · orange: brushed poses · green: work points, paths")
+                                              "ellipsoid · orange: brushed poses · green: work points, paths "
+                                              "· grey: equipment · dots: mount candidates (colour = score)")
         self.scene_caption.setStyleSheet("color: #444")
-        vb.addWidget(self.scene_caption)
+        self.scene_caption.setWordWrap(True)
+        self.scene_caption.setMinimumWidth(100)
+        vb.addWidget(self.scene_caption, 1)
         sl.addLayout(vb)
         sl.addWidget(self.scene, 1)
         self.central = QtWidgets.QSplitter(QtCore.Qt.Vertical)
@@ -130,10 +138,10 @@ class MainWindow(QtWidgets.QMainWindow):
             scroll.setWidgetResizable(True)
             scroll.setWidget(w)
             dock.setWidget(scroll)
-            dock.setMinimumWidth(360)
+            dock.setMinimumWidth(300)
             self.addDockWidget(area, dock)
             setattr(self, name, dock)
-        self.resizeDocks([self.arm_dock, self.study_dock], [380, 400], QtCore.Qt.Horizontal)
+        self.resizeDocks([self.arm_dock, self.study_dock], [330, 350], QtCore.Qt.Horizontal)
 
         self._build_menus()
         self.status = self.statusBar()
@@ -150,7 +158,8 @@ class MainWindow(QtWidgets.QMainWindow):
         self.study_panel.load_requested.connect(lambda: self.open_dialog("Load a study file"))
         self._refresh_timer = QtCore.QTimer(self)
         self._refresh_timer.setSingleShot(True)
-        self._refresh_timer.setInterval(150)
+        self._refresh_timer.setInterval(250)
+        self._slow_refresh_t = 0.0
         self._refresh_timer.timeout.connect(self._refresh_results)
 
         from .qtfix import guard
@@ -331,7 +340,23 @@ class MainWindow(QtWidgets.QMainWindow):
             self.recent_menu.addAction("(none yet)").setEnabled(False)
 
     # ---- arm state -----------------------------------------------------------------------
+    def _fit_scene(self):
+        """Scene bounds: the arm's reach around its base, and the cell's content."""
+        arm = self.state.arm
+        base = arm.model.mount[:3, 3]
+        r = arm.nominal_reach()
+        lo, hi = base - r, base + r
+        lo[2] = min(0.0, lo[2])
+        c = getattr(self, "cell_content", None)
+        if c is not None and self.cell is not None:
+            pts = [c.points] + list(c.paths) + list(c.boxes) + [c.candidates]
+            pts = np.vstack([p for p in pts if len(p)]) if any(len(p) for p in pts) else np.zeros((0, 3))
+            if len(pts):
+                lo, hi = np.minimum(lo, pts.min(0)), np.maximum(hi, pts.max(0))
+        self.scene.fit(lo, hi)
+
     def _arm_changed(self, keep_arm=False):
+        self._fit_scene()
         self.arm_panel.rebuild()
         if not keep_arm:
             self.study_panel.set_context(self.state.arm, self.arm_path, self.cell, self.cell_path)
@@ -403,14 +428,20 @@ class MainWindow(QtWidgets.QMainWindow):
             self._refresh_timer.start()
 
     def _refresh_results(self):
+        """Show finished chunks. While a run goes on only the map (or series) follows at once; the
+        histogram and the pose list catch up at most once a second and at the end."""
         if self.result is None:
             return
         if self.session is not None:
             self.session.refresh_derived()
         self._show_candidates()
-        self.map_view.refresh(final=not self.running)
-        self.hist_view.set_measure(self.map_view.measure or self.result.threshold_measure, self.state.threshold)
-        self.pose_list.refresh()
+        running = self.running
+        self.map_view.refresh(final=not running)
+        now = time.perf_counter()
+        if not running or now - self._slow_refresh_t > 1.0:
+            self._slow_refresh_t = now
+            self.hist_view.set_measure(self.map_view.measure or self.result.threshold_measure, self.state.threshold)
+            self.pose_list.refresh()
         self._show_series()
 
     def _on_finished(self, status, path=None):
@@ -695,6 +726,9 @@ class MainWindow(QtWidgets.QMainWindow):
         st = self.settings.value("window_state")
         if st is not None:
             self.restoreState(st)
+        else:   # first start: give both side panels room once the window has its size
+            QtCore.QTimer.singleShot(0, lambda: self.resizeDocks([self.arm_dock, self.study_dock], [340, 340],
+                                                                 QtCore.Qt.Horizontal))
         sp = self.settings.value("central_splitter")
         if sp is not None:
             self.central.restoreState(sp)

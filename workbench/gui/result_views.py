@@ -68,6 +68,7 @@ class MapView(QtWidgets.QWidget):
         bar = QtWidgets.QHBoxLayout()
         bar.addWidget(QtWidgets.QLabel("Measure"))
         self.measure_combo = QtWidgets.QComboBox()
+        self.measure_combo.setSizeAdjustPolicy(QtWidgets.QComboBox.AdjustToContents)
         self.measure_combo.currentIndexChanged.connect(self._measure_chosen)
         bar.addWidget(self.measure_combo)
         self.brush_btn = QtWidgets.QPushButton("Brush rectangle")
@@ -79,10 +80,11 @@ class MapView(QtWidgets.QWidget):
         self.clear_btn.clicked.connect(lambda: self.selection.clear(source="map"))
         bar.addWidget(self.clear_btn)
         bar.addStretch(1)
+        lay.addLayout(bar)
         self.legend = QtWidgets.QLabel("")
         self.legend.setStyleSheet("color: #333")
-        bar.addWidget(self.legend)
-        lay.addLayout(bar)
+        self.legend.setWordWrap(True)
+        lay.addWidget(self.legend)
 
         self.plot = pg.PlotWidget()
         self.plot.setBackground("w")
@@ -100,6 +102,7 @@ class MapView(QtWidgets.QWidget):
         self.contour_shadow.setParentItem(self.image)
         self.contour_shadow.setZValue(9)
         self.cbar = pg.ColorBarItem(colorMap=pg.colormap.get("viridis"), interactive=False, width=18)
+        self.cbar.axis.setWidth(72)
         self.cbar.setImageItem(self.image, insert_in=self.plot.getPlotItem())
         for ax in (self.plot.getAxis("bottom"), self.plot.getAxis("left"), self.cbar.axis):
             ax.enableAutoSIPrefix(False)
@@ -186,7 +189,11 @@ class MapView(QtWidgets.QWidget):
         if d is None or "inverse_condition" not in d.measures:
             self.contour.setData(None)
             self.contour_shadow.setData(None)
-            self.legend.setText("")
+            if d is not None and d.mount_fn is not None:
+                self.legend.setText("each floor cell shows its best candidate over heights, yaws and mount "
+                                    "styles; click a cell to place the arm there; orange: brushed")
+            else:
+                self.legend.setText("orange: brushed")
             return
         g = d.grid("inverse_condition")
         s = max(1, int(np.ceil(max(g.shape) / CONTOUR_MAX_CELLS)))
@@ -297,6 +304,8 @@ class HistogramView(QtWidgets.QWidget):
         self.range_btn.toggled.connect(self._toggle_region)
         bar.addWidget(self.range_btn)
         self.info = QtWidgets.QLabel("")
+        self.info.setWordWrap(True)
+        self.info.setMinimumWidth(60)
         bar.addWidget(self.info, 1)
         lay.addLayout(bar)
         self.plot = pg.PlotWidget()
@@ -309,7 +318,6 @@ class HistogramView(QtWidgets.QWidget):
                                         pen=pg.mkPen((110, 110, 110)), name="all finished cells")
         self.sel_item = pg.PlotDataItem(stepMode="center", fillLevel=0, brush=SEL_RGBA,
                                         pen=pg.mkPen((220, 110, 0)), name="brushed cells")
-        legend = self.plot.addLegend(offset=(-10, 10))
         self.plot.addItem(self.all_item)
         self.plot.addItem(self.sel_item)
         self.thr_line = pg.InfiniteLine(angle=90, pen=pg.mkPen((200, 0, 0), style=QtCore.Qt.DashLine))
@@ -391,8 +399,8 @@ class HistogramView(QtWidgets.QWidget):
         else:
             self.sel_counts = np.zeros(HIST_BINS, dtype=np.int64)
         self.sel_item.setData(self.edges, self.sel_counts)
-        self.info.setText(f"{sel.count} of {int(self.all_counts.sum())} cells brushed" if sel.active
-                          else f"{int(self.all_counts.sum())} cells")
+        self.info.setText((f"{sel.count} of {int(self.all_counts.sum())} cells brushed" if sel.active
+                           else f"{int(self.all_counts.sum())} cells") + " · grey: all · orange: brushed")
 
 
 class PoseTableModel(QtCore.QAbstractTableModel):

@@ -60,7 +60,7 @@ class StudySession:
 
     def estimate(self):
         """:class:`workbench.studies.Estimate` (times a few cells)."""
-        return calibrate(self.kind, self.plan, self.arm, self.cell, sample_cells=512, budget_s=0.2)
+        return calibrate(self.kind, self.plan, self.arm, self.cell, sample_cells=512)
 
     # ---- the view of the result ----------------------------------------------------------
     def _result_data(self) -> ResultData:

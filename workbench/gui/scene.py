@@ -111,6 +111,18 @@ class Scene2D(QtWidgets.QWidget):
         self._ghosts = None
         self._cell = CellContent()
         self._cands = (np.zeros((0, 3)), None)
+        self._bounds = (np.array([-1.0, -1.0, 0.0]), np.array([1.0, 1.0, 2.0]))
+        for pw in self.plots:
+            pw.disableAutoRange()
+
+    def fit(self, lo, hi):
+        """Show the box [lo, hi] (3,) (m) in every view. The ranges stay fixed while the arm moves,
+        so the axes are not redrawn on every slider step."""
+        self._bounds = (np.asarray(lo, float), np.asarray(hi, float))
+        for pw, plane in zip(self.plots, self.planes):
+            a, b = plane
+            pw.setRange(xRange=(self._bounds[0][a], self._bounds[1][a]),
+                        yRange=(self._bounds[0][b], self._bounds[1][b]), padding=0.05)
 
     # ---- content -------------------------------------------------------------------------
     def set_pose(self, info: PoseInfo):
@@ -184,8 +196,7 @@ class Scene2D(QtWidgets.QWidget):
             self.set_pose(self._info)
         self.set_ghosts(self._ghosts)
         self.set_cell(self._cell)
-        for pw in self.plots:
-            pw.enableAutoRange()
+        self.fit(*self._bounds)
 
     def arm_xy(self):
         """(n + 2, 2) arm points as drawn on the top view (for tests)."""
@@ -230,18 +241,20 @@ class Scene3D(QtWidgets.QWidget):
         self.view.addItem(grid)
         world = gl.GLAxisItem(size=QtGui.QVector3D(0.3, 0.3, 0.3))
         self.view.addItem(world)
-        self.arm = gl.GLLinePlotItem(width=6, color=_c(ARM_COLOUR), antialias=True, mode="line_strip")
-        self.joints = gl.GLScatterPlotItem(size=12, color=_c((30, 30, 30)))
-        self.tcp = gl.GLLinePlotItem(width=3, mode="lines")
-        self.ghosts = gl.GLLinePlotItem(width=1.5, color=_c(GHOST_COLOUR, 0.45), mode="lines")
+        tr = "translucent"   # the pyqtgraph default for points and lines adds colours: white on white
+        self.arm = gl.GLLinePlotItem(width=6, color=_c(ARM_COLOUR), antialias=True, mode="line_strip",
+                                     glOptions=tr)
+        self.joints = gl.GLScatterPlotItem(size=12, color=_c((30, 30, 30)), glOptions=tr)
+        self.tcp = gl.GLLinePlotItem(width=3, mode="lines", glOptions=tr)
+        self.ghosts = gl.GLLinePlotItem(width=2, color=_c(GHOST_COLOUR, 0.7), mode="lines", glOptions=tr)
         sv, sf = _sphere()
         self._sphere = sv
         self.ellipsoid = gl.GLMeshItem(vertexes=sv, faces=sf, color=(0.6, 0.25, 0.7, 0.35),
                                        smooth=True, glOptions="translucent", drawEdges=False)
-        self.points = gl.GLScatterPlotItem(size=10, color=_c((40, 150, 60)))
-        self.paths = gl.GLLinePlotItem(width=2, color=_c((40, 150, 60)), mode="lines")
-        self.boxes = gl.GLLinePlotItem(width=1, color=_c((110, 110, 110)), mode="lines")
-        self.cands = gl.GLScatterPlotItem(size=8)
+        self.points = gl.GLScatterPlotItem(size=10, color=_c((40, 150, 60)), glOptions=tr)
+        self.paths = gl.GLLinePlotItem(width=3, color=_c((40, 150, 60)), mode="lines", glOptions=tr)
+        self.boxes = gl.GLLinePlotItem(width=2, color=_c((80, 80, 80)), mode="lines", glOptions=tr)
+        self.cands = gl.GLScatterPlotItem(size=8, glOptions=tr)
         for it in (self.boxes, self.paths, self.points, self.cands, self.ghosts, self.arm, self.joints,
                    self.tcp, self.ellipsoid):
             self.view.addItem(it)
@@ -315,12 +328,21 @@ class Scene3D(QtWidgets.QWidget):
             col = cmap.map(np.nan_to_num(np.clip(np.asarray(scores, float), 0, 1)), mode="float")
         self.cands.setData(pos=pts, color=np.asarray(col, float))
 
+    def fit(self, lo, hi):
+        """Aim the camera at the box [lo, hi] (3,) (m)."""
+        lo, hi = np.asarray(lo, float), np.asarray(hi, float)
+        c = (lo + hi) / 2
+        self._centre = QtGui.QVector3D(float(c[0]), float(c[1]), float(c[2]))
+        self._distance = float(1.6 * np.linalg.norm(hi - lo))
+        self.set_view(getattr(self, "view_name", "iso"))
+
     def set_view(self, name):
         if name not in VIEWS:
             raise ValueError(f"view: expected one of {VIEWS}, got {name!r}")
         self.view_name = name
         elev, azim = {"iso": (25, 45), "top": (90, -90), "front": (0, -90), "side": (0, 0)}[name]
-        self.view.setCameraPosition(pos=QtGui.QVector3D(0.5, 0, 0.6), distance=3.6,
+        self.view.setCameraPosition(pos=getattr(self, "_centre", QtGui.QVector3D(0.4, 0, 0.7)),
+                                    distance=getattr(self, "_distance", 4.4),
                                     elevation=elev, azimuth=azim)
 
     def ghost_count(self) -> int:
