@@ -471,6 +471,18 @@ def _generic_maps(r, skip=()):
                 note = f" (best over {', '.join(a.label for a in axes[:-2])})"
             fig = _map_figure(f"{label}{note}", Z, axes[-1], axes[-2], label)
             blocks.append(Figure(f"Map: {label}{note}", fig, _s(f.description)))
+        elif len(axes) == 1 and axes[0].name == "sample":  # random samples: the distribution
+            fig = Fig(figsize=(7.5, 3.6))
+            a = fig.add_subplot(111)
+            v = Z[np.isfinite(Z)]
+            if v.size:
+                hi = np.percentile(v, 99.5)
+                a.hist(np.minimum(v, hi), bins=60, color="tab:blue")
+            a.set_xlabel(label + (" (top 0.5 % clipped)" if v.size and hi < v.max() else ""))
+            a.set_ylabel("samples")
+            a.set_title(f"{label}: distribution over {v.size} samples", fontsize=10)
+            fig.tight_layout()
+            blocks.append(Figure(f"Histogram: {label}", fig, _s(f.description)))
         elif len(axes) == 1:
             fig = Fig(figsize=(7.5, 3.6))
             a = fig.add_subplot(111)
