@@ -415,7 +415,12 @@ def _run_processes(kind, plan, arm, cell, finished, is_cancelled, n_workers, poo
             done, _ = cf.wait(pending, timeout=0.1, return_when=cf.FIRST_COMPLETED)
             for fut in done:
                 pending.discard(fut)
-                chunk, arrays = fut.result()
+                try:
+                    chunk, arrays = fut.result()
+                except Exception:
+                    if is_cancelled():  # workers hit by the same Ctrl-C: the run is over anyway
+                        break
+                    raise
                 finished(chunk, arrays)
                 if not is_cancelled():
                     submit()
@@ -437,8 +442,10 @@ def _run_dask(kind, plan, arm, cell, finished, is_cancelled, n_workers, schedule
         addr = scheduler or "local"
         try:
             if addr == "local":
+                import logging
+
                 cluster = LocalCluster(n_workers=n_workers, threads_per_worker=1, processes=True,
-                                       dashboard_address=None)
+                                       dashboard_address=None, silence_logs=logging.ERROR)
                 client = Client(cluster)
             else:
                 client = Client(addr, timeout="10s")
@@ -472,7 +479,12 @@ def _run_dask(kind, plan, arm, cell, finished, is_cancelled, n_workers, schedule
                 continue
             for fut in done:
                 pending.discard(fut)
-                chunk, arrays = fut.result()
+                try:
+                    chunk, arrays = fut.result()
+                except Exception:
+                    if is_cancelled():
+                        break
+                    raise
                 finished(chunk, arrays)
                 if not is_cancelled():
                     submit()
