@@ -182,3 +182,14 @@ def test_png_of_a_three_joint_grid_reduces_the_first_axis(tmp_path):
     r = run_study(StudySpec("joint_sweep", S6, settings={"joints": ["j1", "j2", "j3"], "steps": [3, 10, 12]}))
     export_png(r, tmp_path / "m.png")
     assert os.path.getsize(tmp_path / "m.png") > 5000
+
+
+def test_lazy_read_gives_the_same_arrays(tmp_path):
+    r = run_study(small_spec(), out=tmp_path / "r.h5")
+    lazy = read_results(tmp_path / "r.h5", load=False)
+    assert set(lazy.arrays) == set(r.arrays) and len(lazy.arrays) == len(r.fields)
+    np.testing.assert_array_equal(lazy.arrays["sv"], r.arrays["sv"])
+    assert lazy.arrays["sv"].shape == (23, 17, 6)
+    np.testing.assert_array_equal(lazy.flat("min_sv"), r.flat("min_sv"))
+    with pytest.raises(KeyError):
+        lazy.arrays["nothing"]

@@ -30,6 +30,7 @@ import json
 import os
 import tempfile
 import time
+from collections.abc import Mapping
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -432,8 +433,36 @@ def _attr(v):
     return v
 
 
+class LazyArrays(Mapping):
+    """``{field: array}`` read from a results file on first access (and kept), for results too big
+    to load at once; each array is (*grid shape, *per-cell shape) like :attr:`Results.arrays`."""
+
+    def __init__(self, path: str, shape: tuple, fields: tuple):
+        self.path = path
+        self.shape = tuple(shape)
+        self.fields = {f.name: f for f in fields}
+        self._cache: dict = {}
+
+    def __getitem__(self, name):
+        if name not in self.fields:
+            raise KeyError(name)
+        if name not in self._cache:
+            import h5py
+
+            with h5py.File(self.path, "r") as h:
+                self._cache[name] = h["fields"][name][...].reshape(self.shape + self.fields[name].shape)
+        return self._cache[name]
+
+    def __iter__(self):
+        return iter(self.fields)
+
+    def __len__(self):
+        return len(self.fields)
+
+
 def read_results(path, load: bool = True) -> Results:
-    """Read a results file back into :class:`Results` (arrays in the grid shape).
+    """Read a results file back into :class:`Results` (arrays in the grid shape; with
+    ``load=False`` each array is read from the file when first used).
 
     Raises
     ------
@@ -475,6 +504,8 @@ def read_results(path, load: bool = True) -> Results:
             fields.append(f)
             if load:
                 arrays[name] = ds[...].reshape(shape + f.shape)
+        if not load:
+            arrays = LazyArrays(os.path.abspath(path), shape, tuple(fields))
         texts = {}
         for key in ("study", "arm", "cell"):
             if key in h["inputs"]:
