@@ -27,8 +27,8 @@ Status codes (per target, int8)
 """
 from __future__ import annotations
 
+import hashlib
 import time
-import weakref
 from dataclasses import dataclass
 
 import numpy as np
@@ -135,7 +135,17 @@ def make_seeds(arm, seeds=8, rng=0) -> np.ndarray:
     return out
 
 
-_POOLS: "weakref.WeakKeyDictionary" = weakref.WeakKeyDictionary()
+_POOLS: dict = {}  # (kinematic fingerprint, seed, size) -> pool; a few arms at most
+_POOLS_MAX = 8
+
+
+def _fingerprint(model) -> str:
+    """Digest of everything the pool depends on, so copies of one arm (unpickled in worker
+    processes) share a pool."""
+    h = hashlib.sha1()
+    for a in (model.origins, model.axes, model.kinds, model.lower, model.upper, model.tcp_offset):
+        h.update(np.ascontiguousarray(a).tobytes())
+    return h.hexdigest()
 
 
 def _EMPTY_POOL(n):
@@ -147,13 +157,13 @@ def seed_pool(arm, rng=0):
     """The pool of random in-limit poses from which near seeds are picked, bucketed by TCP position.
 
     Returns (pool_q (P, n), pool_T (P, 4, 4) base-frame TCP poses sorted by grid cell, grid_lo (3,) m,
-    cell size h (m), grid dims (3,), cell starts (cells + 1,)). Cached per arm model and generator
+    cell size h (m), grid dims (3,), cell starts (cells + 1,)). Cached per arm geometry and generator
     seed (``rng`` given as an int; a Generator draws a fresh pool).
     """
     key = int(rng) if isinstance(rng, (int, np.integer)) else None
-    cache = _POOLS.setdefault(arm.model, {})
-    if key is not None and (key, POOL) in cache:
-        return cache[(key, POOL)]
+    ckey = (_fingerprint(arm.model), key, POOL, GRID_CELLS_PER_LENGTH)
+    if key is not None and ckey in _POOLS:
+        return _POOLS[ckey]
     gen = np.random.default_rng([7, key]) if key is not None else np.random.default_rng(rng)
     q = arm.random_q(POOL, rng=gen)
     T = arm.fk(q)
@@ -168,7 +178,9 @@ def seed_pool(arm, rng=0):
     starts = np.searchsorted(cell[order], np.arange(int(np.prod(dims)) + 1)).astype(np.int64)
     out = (np.ascontiguousarray(q[order]), np.ascontiguousarray(T[order]), lo, float(h), dims, starts)
     if key is not None:
-        cache[(key, POOL)] = out
+        if len(_POOLS) >= _POOLS_MAX:
+            _POOLS.pop(next(iter(_POOLS)))
+        _POOLS[ckey] = out
     return out
 
 

@@ -4,9 +4,10 @@ Per grid point the tool goal is the point with an orientation rule; batched IK
 (:func:`workbench.kinematics.ik.solve_ik`) runs from several seeds; the study records whether the
 point is reached, how many distinct joint solutions the seeds found, the measures of DESIGN §4 at
 the best of them (highest ``best`` measure, default inverse condition) and that joint solution.
-A point that no seed reaches is retried once from the solutions its grid neighbours found (a
-missed point inside a reached region is most often a seeding miss; the neighbours' first passes are
-recomputed when they lie outside the chunk, so results do not depend on the chunking).
+A point that no seed reaches is retried once from the solutions its two row neighbours (previous and
+next point along the last grid axis) found (a missed point inside a reached region is most often a
+seeding miss; a neighbour's first pass is recomputed when it lies outside the chunk, so results do
+not depend on the chunking).
 
 Optionally (orientation = "sampled") a **reachability index** per point: the fraction of a set of
 sampled tool orientations that are reached (Zacharias, Borst & Hirzinger, "Capturing robot workspace
@@ -33,7 +34,7 @@ Settings (study file ``[settings]``; lengths in m, angles in degrees)::
     directions = 26                # sampled: approach directions on the sphere
     spins = 4                      # sampled: turns about each direction (0 = spin free)
     seeds = 8                      # IK seeds per target (<= 8 is enough, see `workbench bench`)
-    neighbour_seeds = true         # retry a missed point from its grid neighbours' solutions
+    neighbour_seeds = true         # retry a missed point from its row neighbours' solutions
     frame = "tcp"; rows = "full"; length = <nominal reach>   # measures, as in the joint sweep
     best = "inverse_condition"     # measure that picks the best solution
     distinct_tol = 0.1             # deg: solutions closer than this in every joint are one
@@ -394,22 +395,20 @@ class ReachSlice(StudyKind):
 
     @staticmethod
     def _neighbours(plan, idx):
-        """Flat indices (count, 2 * dims) of the grid neighbours of ``idx`` along each axis; -1 off
-        the grid."""
+        """Flat indices (count, 2) of the grid neighbours of ``idx`` along the last grid axis (the
+        previous and next point of its row); -1 off the grid. Only row neighbours are used so that
+        a chunk needs at most two points beyond its ends, whatever its size."""
         shape = plan.shape
         sub = np.unravel_index(idx, shape)
+        last = sub[-1]
         out = []
-        for ax in range(len(shape)):
-            for d in (-1, 1):
-                s2 = [a.copy() for a in sub]
-                s2[ax] = s2[ax] + d
-                valid = (s2[ax] >= 0) & (s2[ax] < shape[ax])
-                s2[ax] = np.clip(s2[ax], 0, shape[ax] - 1)
-                out.append(np.where(valid, np.ravel_multi_index(tuple(s2), shape), -1))
+        for d in (-1, 1):
+            valid = (last + d >= 0) & (last + d < shape[-1])
+            out.append(np.where(valid, idx + d, -1))
         return np.stack(out, axis=1)
 
     def _neighbour_pass(self, plan, arm, idx, q, status, keep):
-        """Retry the missed points of ``idx`` from the distinct solutions their grid neighbours found
+        """Retry the missed points of ``idx`` from the distinct solutions their row neighbours found
         in the first pass (neighbours outside the chunk get their first pass here too, so the result
         does not depend on the chunking). Updates q, status, keep in place."""
         from ..kinematics.ik import distinct_solutions, solve_ik
