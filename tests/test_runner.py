@@ -129,3 +129,44 @@ def test_sweep_bench_reports_in_the_shared_shape():
     assert m["run_s"] > 0 and m["compute_s"] > 0
     value, bar, passed = res["bars"]["runner+writer overhead<20%"]
     assert value == res["ratios"]["overhead_vs_compute"] and bar == 0.2 and passed == (value < 0.2)
+
+
+class _WholeGridSweep(__import__("workbench.studies.joint_sweep", fromlist=["JointSweep"]).JointSweep):
+    """A joint sweep whose plan asks for one chunk (like sequential kinds do)."""
+
+    name = "whole_grid_sweep_test"
+
+    def plan(self, spec, arm, cell=None, chunk_cells=None):
+        p = super().plan(spec, arm, cell, chunk_cells)
+        return p if chunk_cells else p.with_chunk_cells(p.cells)
+
+
+class _OwnChunksSweep(__import__("workbench.studies.joint_sweep", fromlist=["JointSweep"]).JointSweep):
+    name = "own_chunks_sweep_test"
+    calibrated_chunks = False
+
+    def plan(self, spec, arm, cell=None, chunk_cells=None):
+        return super().plan(spec, arm, cell, chunk_cells or 1234)
+
+
+def test_runner_recuts_chunks_unless_the_kind_keeps_them():
+    from dataclasses import replace
+
+    from workbench.studies import base
+
+    base.register_kind(_WholeGridSweep.name, _WholeGridSweep)
+    base.register_kind(_OwnChunksSweep.name, _OwnChunksSweep)
+    try:
+        s = spec(steps=[300, 200])
+        recut = run_study(s, chunk_seconds=0.01)  # the joint sweep's own 32768 cells -> calibrated
+        assert recut.chunk_cells != 32768 and recut.finished.size > 2
+        whole = run_study(replace(s, kind=_WholeGridSweep.name), chunk_seconds=0.01)
+        assert whole.finished.size == 1 and whole.chunk_cells == 60000
+        own = run_study(replace(s, kind=_OwnChunksSweep.name), chunk_seconds=0.01)
+        assert own.chunk_cells == 1234 and own.finished.size == 49
+        for r in (whole, own):
+            np.testing.assert_array_equal(r.arrays["min_sv"], recut.arrays["min_sv"])
+    finally:
+        for k in (_WholeGridSweep.name, _OwnChunksSweep.name):
+            base.KINDS.pop(k, None)
+            base._INSTANCES.pop(k, None)
