@@ -248,7 +248,7 @@ def run_study(study, out=None, executor="inprocess", workers=None, scheduler=Non
     kind, plan, arm, cell = prep.kind, prep.plan, prep.arm, prep.cell
     check_resources(plan, out)
     is_cancelled = _is_cancelled(cancel)
-    n_workers = int(workers or os.cpu_count() or 1)
+    n_workers = int(workers or _cores())
 
     # calibrate on a few cells (all threads) and size the chunks
     from .kinematics import kernels
@@ -326,6 +326,14 @@ def run_study(study, out=None, executor="inprocess", workers=None, scheduler=Non
     r = read_results(res, load=plan.result_bytes <= READ_BACK_BYTES)
     r.plan = plan
     return r
+
+
+def _cores() -> int:
+    """Cores this process may use (its CPU affinity where the OS tells it)."""
+    try:
+        return max(1, len(os.sched_getaffinity(0)))
+    except (AttributeError, OSError):
+        return max(1, os.cpu_count() or 1)
 
 
 def _threads() -> int:
