@@ -1,7 +1,7 @@
 """Load map: the largest payload the arm can hold at the TCP, over a joint grid or a cell slice.
 
 Per grid cell the arm's pose is fixed (a joint grid), or found by IK of a point of a plane in the
-cell (a slice); the payload is :func:`workbench.measures.max_payload`: the largest point mass m at
+cell (a slice: every seed runs and the reached solution that holds the most is kept); the payload is :func:`workbench.measures.max_payload`: the largest point mass m at
 the TCP with |tau_g,i(q) + m b_i(q)| <= tau_max,i for every joint i, where tau_g are the gravity
 torques of the arm's own links and tool (centre-of-mass Jacobians) and b_i = -J_v,tcp[:, i] . g.
 Statics only: no accelerations, no friction.
@@ -262,7 +262,7 @@ class LoadMap(StudyKind):
                 q[:, marm.model.names.index(axis.name)] = axis.values[ii]
             reached = np.ones(len(idx), bool)
         else:
-            from .mount_search import reached_check, solve_targets
+            from .mount_search import reached_check
 
             a, b, c = _PLANES[s.plane]
             P = np.zeros((len(idx), 3))
@@ -273,9 +273,19 @@ class LoadMap(StudyKind):
             T[:, :3, :3] = s.rotation
             T[:, :3, 3] = P
             Tb = np.einsum("ij,njk->nik", inverse_transform(marm.model.mount), T)
-            q, _st = solve_targets(marm, Tb, s.orientation, seeds=s.seeds)
-            q = np.where(np.isfinite(q), q, 0.0)
-            reached = reached_check(marm, q, Tb, s.orientation, 1e-4, 1e-3)
+            # every seed's solution; per point the reached one that holds the most (as a reach
+            # slice keeps the best measures over the solutions found)
+            from ..kinematics.ik import solve_ik
+
+            res = solve_ik(marm, Tb, seeds=s.seeds, orientation=s.orientation, all_solutions=True)
+            K = res.q.shape[1]
+            qK = np.where(np.isfinite(res.q), res.q, 0.0).reshape(-1, n)
+            okK = reached_check(marm, qK, np.repeat(Tb, K, axis=0), s.orientation, 1e-4, 1e-3)
+            mK, _ = payload_of_poses(marm, qK, s.gravity)
+            pick = np.argmax(np.where(okK, mK, -1.0).reshape(-1, K), axis=1)
+            rows = np.arange(len(idx))
+            q = qK.reshape(-1, K, n)[rows, pick]
+            reached = okK.reshape(-1, K)[rows, pick]
         mass, lim = payload_of_poses(marm, q, s.gravity)
         tg = gravity_torques(marm, q, g=np.asarray(s.gravity), world=True)
         own = np.max(np.abs(tg) / marm.model.max_effort, axis=-1)
