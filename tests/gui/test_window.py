@@ -40,6 +40,8 @@ def test_starts_on_the_demo_arm_and_cell(window):
     assert window.state.arm.model.name.startswith("S6 demo arm")
     assert len(window.arm_panel.rows) == 6
     assert window.cell_path == CELL
+    # the arm stands where the cell's [placement] puts it
+    assert np.allclose(window.state.arm.model.mount, read_cell_file(CELL).placement)
     # the 2D scene shows the arm: its top-view polyline is the arm's link points
     info = window.state.info()
     assert np.allclose(window.scene.arm_xy(), info.points[:, :2])

@@ -174,6 +174,8 @@ class MainWindow(QtWidgets.QMainWindow):
             if demo_cell:
                 try:
                     self._apply_cell(demo_cell)
+                    if self.cell.placement is not None:   # the arm stands where the cell places it
+                        self.state.set_arm(self._with_mount(self.state.arm, self.cell.placement), notify=False)
                 except WorkbenchError as exc:
                     self.status.showMessage(f"demo cell not loaded: {exc}", 10000)
         self._arm_changed()

@@ -18,7 +18,7 @@ __all__ = ["MapView", "HistogramView", "PoseTableModel", "PoseListView", "displa
 
 HIST_BINS = 60
 SEL_RGBA = (255, 140, 0, 150)
-CONTOUR_MAX_CELLS = 250          # the contour is traced on a grid of at most this many cells a side
+CONTOUR_MAX_CELLS = 160          # the contour is traced on a grid of at most this many cells a side
 LOG_MEASURES = ("condition",)
 
 

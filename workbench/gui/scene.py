@@ -333,7 +333,7 @@ class Scene3D(QtWidgets.QWidget):
         lo, hi = np.asarray(lo, float), np.asarray(hi, float)
         c = (lo + hi) / 2
         self._centre = QtGui.QVector3D(float(c[0]), float(c[1]), float(c[2]))
-        self._distance = float(1.6 * np.linalg.norm(hi - lo))
+        self._distance = float(0.95 * np.linalg.norm(hi - lo))
         self.set_view(getattr(self, "view_name", "iso"))
 
     def set_view(self, name):

@@ -169,7 +169,7 @@ class StudyPanel(QtWidgets.QWidget):
             lab = QtWidgets.QLabel(key.replace("_", " "))
             edit = QtWidgets.QLineEdit(format_value(value))
             edit.setObjectName(f"setting_{key}")
-            edit.setMinimumWidth(150)
+            edit.setMinimumWidth(110)
             edit.textChanged.connect(lambda _t: self._check_timer.start())
             unit = QtWidgets.QLabel(unit_hint(key))
             unit.setStyleSheet("color: #555")
