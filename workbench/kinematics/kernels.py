@@ -213,7 +213,7 @@ def _selected_sv(J, rows, scale, B, tmp, sv):
 # batch kernels
 
 
-@njit(cache=True, parallel=True)
+@njit(cache=True, parallel=True, nogil=True)
 def fk_batch(Q, origins, axes, kinds, upto, off, pre, out):
     """out[i] = pre @ T_upto(Q[i]) @ off, (N, 4, 4). ``upto`` = -1 means the base frame."""
     N, n = Q.shape
@@ -244,7 +244,7 @@ def fk_batch(Q, origins, axes, kinds, upto, off, pre, out):
             out[i, 3, 3] = 1.0
 
 
-@njit(cache=True, parallel=True)
+@njit(cache=True, parallel=True, nogil=True)
 def frames_batch(Q, origins, axes, kinds, pre, out):
     """All joint frames: out[i, j] = pre @ T_j(Q[i]), (N, n, 4, 4)."""
     N, n = Q.shape
@@ -269,7 +269,7 @@ def frames_batch(Q, origins, axes, kinds, pre, out):
                 out[i, j, 3, 3] = 1.0
 
 
-@njit(cache=True, parallel=True)
+@njit(cache=True, parallel=True, nogil=True)
 def jacobian_batch(Q, origins, axes, kinds, upto, off, R, out):
     """Geometric Jacobians (N, 6, n) of the point ``off`` fixed to joint frame ``upto``."""
     N, n = Q.shape
@@ -286,7 +286,7 @@ def jacobian_batch(Q, origins, axes, kinds, upto, off, R, out):
             _fill_jacobian(Z, O, kinds, upto, p, R, out[i])
 
 
-@njit(cache=True, parallel=True)
+@njit(cache=True, parallel=True, nogil=True)
 def sv_batch(A, rows, scale, out):
     """Singular values of diag(scale) @ A[i][rows] for a stack A (N, 6, n) -> out (N, m)."""
     N = A.shape[0]
@@ -301,7 +301,7 @@ def sv_batch(A, rows, scale, out):
             _selected_sv(A[i], rows, scale, B, tmp, out[i])
 
 
-@njit(cache=True, parallel=True)
+@njit(cache=True, parallel=True, nogil=True)
 def sv_map_batch(Q, origins, axes, kinds, upto, off, R, rows, scale, out):
     """Fused FK -> Jacobian -> singular values, (N, n) -> out (N, m); no Jacobian stack is stored."""
     N, n = Q.shape
