@@ -525,6 +525,8 @@ def bench_path_audit(quick: bool = False) -> dict:
     length = sum(sample_path(cell, p, 1.0).length for p in cell.paths)
     N = 500 if quick else 2000
     spacing = length / (N - len(cell.paths))
+    while sum(len(sample_path(cell, p, spacing).s) for p in cell.paths) > N:  # ceil() may add one each
+        spacing *= 1.0005
     spec = StudySpec(kind="path_audit", arm=str(demo_arm_path()), settings={"spacing": spacing})
     kind = PathAudit()
     plan = kind.plan(spec, arm, cell)
