@@ -211,3 +211,18 @@ def test_bad_inputs_give_one_line_errors(arm6):
         solve_ik(arm6, np.eye(4), pos_tol=0)
     with pytest.raises(IKError, match="q_seed"):
         solve_ik(arm6, np.eye(4), q_seed=np.zeros(4))
+
+
+def test_fixed_orientation_wrist_beyond_reach_is_out_of_reach_without_iterating(arm6):
+    from workbench.kinematics.ik import _arm_arrays
+
+    *_, reach, center, _wrap = _arm_arrays(arm6)
+    # inside the TCP bound, but the tool points back at the base: its last joint frame lies
+    # 0.18 m (flange + tool) further out, beyond the bound for that frame
+    goal = make_transform(center + [reach[0] - 0.05, 0, 0], np.radians([0, -90, 0]))  # tool z along -x
+    assert np.allclose(goal[:3, 2], [-1, 0, 0])
+    res = solve_ik(arm6, goal, orientation="fixed")
+    assert int(res.status) == OUT_OF_REACH and int(res.iterations) == 0
+    # with the position-only rule the same point is reachable (arm stretched out along x)
+    free = solve_ik(arm6, goal, orientation="free")
+    assert int(free.status) == CONVERGED and free.pos_err <= 1e-6

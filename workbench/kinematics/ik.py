@@ -43,7 +43,8 @@ __all__ = ["solve_ik", "IKResult", "IKError", "distinct_solutions", "count_solut
 #: reached the target within ``pos_tol`` and ``rot_tol``
 CONVERGED = _k.CONVERGED
 #: out of reach: the target lies beyond the arm's reach bound (distance from the first joint axis
-#: point larger than the sum of link offsets, tool length and prismatic travel), or every seed
+#: point larger than the sum of link offsets, tool length and prismatic travel; with a fixed
+#: orientation also the same bound, without the tool, on the last joint frame), or every seed
 #: settled on a non-zero error with no joint held at a limit (a least-squares minimum away from
 #: the target: the pose is outside the workspace as far as the seeds can tell)
 OUT_OF_REACH = _k.OUT_OF_REACH
@@ -109,13 +110,14 @@ def _arm_arrays(arm):
     upper = np.ascontiguousarray(m.upper, dtype=float)
     L = float(arm.nominal_reach())
     cap = np.where(m.kinds == 1, L, 1.0).astype(float)
-    # reach bound: |p_tcp - origin of joint 1| <= sum of the later fixed offsets + tool + travel
-    reach = float(np.linalg.norm(m.origins[1:, :3, 3], axis=-1).sum()) if m.n > 1 else 0.0
-    reach += float(np.linalg.norm(m.tcp_offset[:3, 3]))
+    # reach bounds: |origin of the last joint frame - origin of joint 1| <= sum of the later fixed
+    # offsets + prismatic travel; |p_tcp - origin of joint 1| <= that + the tool offset
+    last = float(np.linalg.norm(m.origins[1:, :3, 3], axis=-1).sum()) if m.n > 1 else 0.0
     for j in range(m.n):
         if m.kinds[j] == 1:
-            reach += max(abs(m.upper[j]), abs(m.lower[j]))
-    reach = reach * (1 + 1e-9) + 1e-12
+            last += max(abs(m.upper[j]), abs(m.lower[j]))
+    tcp = last + float(np.linalg.norm(m.tcp_offset[:3, 3]))
+    reach = np.array([tcp, last]) * (1 + 1e-9) + 1e-12
     center = np.ascontiguousarray(m.origins[0, :3, 3], dtype=float)
     # revolute joints whose range spans a full turn move across a limit by wrapping
     wrap = ((m.kinds == 0) & (upper - lower >= 2 * np.pi)).astype(np.int8)

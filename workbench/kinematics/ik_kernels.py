@@ -476,6 +476,10 @@ def ik_batch(goals, seeds, user, pool_q, pool_T, grid_lo, grid_h, grid_dims, gri
              out_q, out_status, out_pos, out_rot, out_iter):
     """Solve IK for N goal poses (N, 4, 4) in the base frame.
 
+    ``reach`` (2,): bounds on the distance from ``reach_center`` (a point of the first joint axis) to
+    the TCP and (fixed orientation only) to the origin of the last joint frame; targets beyond them
+    are reported out of reach without iterating.
+
     Seeds per target: ``user[i]`` (U, n) first, then the ``n_near`` poses of the pool (``pool_q``
     (P, n) with TCP poses ``pool_T`` (P, 4, 4)) whose TCP is nearest the target (see
     :func:`_pose_distance`), then the shared ``seeds`` (S, n). With
@@ -508,14 +512,29 @@ def ik_batch(goals, seeds, user, pool_q, pool_T, grid_lo, grid_h, grid_dims, gri
         near_i = np.zeros(max(n_near, 1), dtype=np.int64)
         for i in range(b * TBLOCK, min(N, (b + 1) * TBLOCK)):
             goal = goals[i]
-            if n_near > 0:
-                _nearest_grid(goal, pool_T, grid_lo, grid_h, grid_dims, grid_starts, mode, inv_len, n_cand,
-                              near_d, cand_i)
-                _spread(pool_q, kinds, cand_i, n_cand, n_near, spread, near_i)
             dx = goal[0, 3] - reach_center[0]
             dy = goal[1, 3] - reach_center[1]
             dz = goal[2, 3] - reach_center[2]
-            far = np.sqrt(dx * dx + dy * dy + dz * dz) > reach
+            far = np.sqrt(dx * dx + dy * dy + dz * dz) > reach[0]
+            if not far and mode == MODE_FIXED:
+                # the last joint frame is fixed by the goal (goal @ off^-1): its origin must be in reach
+                wx = goal[0, 3] - reach_center[0]
+                wy = goal[1, 3] - reach_center[1]
+                wz = goal[2, 3] - reach_center[2]
+                for r in range(3):
+                    t = off[0, r] * off[0, 3] + off[1, r] * off[1, 3] + off[2, r] * off[2, 3]
+                    wx -= goal[0, r] * t
+                    wy -= goal[1, r] * t
+                    wz -= goal[2, r] * t
+                far = np.sqrt(wx * wx + wy * wy + wz * wz) > reach[1]
+            if n_near > 0:
+                if far:  # no search; seeds only report the error (kept deterministic)
+                    for a in range(n_near):
+                        near_i[a] = 0
+                else:
+                    _nearest_grid(goal, pool_T, grid_lo, grid_h, grid_dims, grid_starts, mode, inv_len, n_cand,
+                                  near_d, cand_i)
+                    _spread(pool_q, kinds, cand_i, n_cand, n_near, spread, near_i)
             best_sq = np.inf
             best_pos = np.inf
             best_rot = np.inf
