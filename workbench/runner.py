@@ -524,13 +524,13 @@ def _sweep_spec(steps, **extra):
 def bench_sweep(quick: bool = False) -> dict:
     """A 2-joint sweep (1000 x 1000 cells; 300 x 300 quick) of demo_s6 with every measure, run
     in-process and streamed to an HDF5 file, against the pure compute of the same chunks (a plain
-    loop of ``compute_chunk``: no runner, no writer). Runs are interleaved, best of 3 (2 quick).
+    loop of ``compute_chunk``: no runner, no writer). Runs are interleaved, best of 5 (2 quick).
     Bar: wall-time overhead < 20 % of compute. The CPU-time overhead (all threads of this
     process) is reported too: it is steadier on a machine shared with other work."""
     import tempfile
 
     k = 300 if quick else 1000
-    reps = 2 if quick else 3
+    reps = 2 if quick else 5
     prep = prepare(_sweep_spec((k, k)))
     from .kinematics import kernels
 

@@ -458,7 +458,7 @@ def get_kind(name: str, where: str = "kind") -> StudyKind:
 
 
 def calibrate(kind: StudyKind, plan: Plan, arm, cell, sample_cells: int = 65536,
-              min_seconds: float = 0.05) -> Estimate:
+              min_seconds: float = 0.02) -> Estimate:
     """Time ``compute_chunk`` on the first cells of the grid and extrapolate.
 
     A first call on 8 cells pays any compile / warm-up cost and is not used; then the sample grows
