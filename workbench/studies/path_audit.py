@@ -321,6 +321,8 @@ class PathAudit(StudyKind):
     name = "path_audit"
     title = "path audit"
     needs_cell = True
+    #: tracking is sequential: keep the plan's one chunk (the runner does not re-chunk it)
+    calibrated_chunks = False
 
     def default_settings(self, arm) -> dict:
         return {"spacing": 0.002, "rows": "full", "near_singular": 0.02, "jump": 10.0, "seeds": 16}
