@@ -236,7 +236,6 @@ def _validate(settings: Mapping, arm, cell, where: str) -> ReachSettings:
         ax = _nums(settings, where, "axis", 3, [0, 0, -1])
         if np.linalg.norm(ax) == 0:
             raise _err(where, "axis", f"expected a non-zero direction, got {ax.tolist()!r}")
-        rot = sphere_orientations(1, 1)  # placeholder shape; replaced below
         z = ax / np.linalg.norm(ax)
         ref = np.array([1.0, 0, 0]) if abs(z[0]) < 0.9 else np.array([0, 1.0, 0])
         x = ref - z * (ref @ z)
