@@ -196,10 +196,11 @@ class Arm:
         1 at mid-range, 0 at a limit; unlimited joints count as 1."""
         q = np.asarray(q, float)
         lo, hi = self.model.lower, self.model.upper
-        half = (hi - lo) / 2
-        finite = np.isfinite(half) & (half > 0)
-        mid = np.where(finite, (hi + lo) / 2, 0.0)
-        frac = np.where(finite, 1.0 - np.abs(q - mid) / np.where(finite, half, 1.0), 1.0)
+        finite = np.isfinite(lo) & np.isfinite(hi) & (hi > lo)
+        lo_f, hi_f = np.where(finite, lo, -1.0), np.where(finite, hi, 1.0)
+        half = (hi_f - lo_f) / 2
+        mid = (hi_f + lo_f) / 2
+        frac = np.where(finite, 1.0 - np.abs(q - mid) / half, 1.0)
         return np.min(frac, axis=-1)
 
     def random_q(self, count, rng=None, unlimited=np.pi):
