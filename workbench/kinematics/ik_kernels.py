@@ -470,7 +470,7 @@ def _spread(pool_q, kinds, cand_i, n_cand, k, spread, out_i):
             got += 1
 
 
-@njit(cache=True, parallel=True)
+@njit(cache=True, parallel=True, nogil=True)
 def ik_batch(goals, seeds, user, pool_q, pool_T, grid_lo, grid_h, grid_dims, grid_starts, n_near, n_candidates, spread, origins, axes, kinds, off, lower, upper, mode, inv_len, cap,
              reach_center, reach, pos_tol, rot_tol, max_iter, w0, lam0, max_step, wrap, all_solutions,
              out_q, out_status, out_pos, out_rot, out_iter):
@@ -603,7 +603,7 @@ def ik_batch(goals, seeds, user, pool_q, pool_T, grid_lo, grid_h, grid_dims, gri
             out_iter[i, 0] = total
 
 
-@njit(cache=True, parallel=True)
+@njit(cache=True, parallel=True, nogil=True)
 def near_seeds_batch(goals, pool_q, pool_T, grid_lo, grid_h, grid_dims, grid_starts, n_near, n_candidates, spread,
                      kinds, mode, inv_len, out):
     """The pool indices ``ik_batch`` picks as near seeds for each goal: out (N, n_near) int64."""
