@@ -226,3 +226,11 @@ def test_fixed_orientation_wrist_beyond_reach_is_out_of_reach_without_iterating(
     # with the position-only rule the same point is reachable (arm stretched out along x)
     free = solve_ik(arm6, goal, orientation="free")
     assert int(free.status) == CONVERGED and free.pos_err <= 1e-6
+
+
+def test_warm_up_compiles_both_kernels():
+    from workbench.kinematics import ik_kernels
+    from workbench.kinematics.ik import warm_up
+
+    warm_up()
+    assert ik_kernels.ik_batch.signatures and ik_kernels.near_seeds_batch.signatures

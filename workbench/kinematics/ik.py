@@ -37,7 +37,7 @@ from ..errors import WorkbenchError
 from . import ik_kernels as _k
 
 __all__ = ["solve_ik", "IKResult", "IKError", "distinct_solutions", "count_solutions", "bench_ik",
-           "target_seeds", "seed_pool", "make_seeds",
+           "target_seeds", "seed_pool", "make_seeds", "warm_up",
            "CONVERGED", "OUT_OF_REACH", "LIMITS", "NOT_CONVERGED", "STATUS_NAMES", "ORIENTATIONS"]
 
 #: reached the target within ``pos_tol`` and ``rot_tol``
@@ -310,6 +310,21 @@ def target_seeds(arm, T_goal, seeds=8, orientation="fixed", rng=0) -> np.ndarray
     rest = np.concatenate([common[:1], common[1 + n_near:]])
     out = np.concatenate([pool[0][idx], np.broadcast_to(rest, (goals.shape[0],) + rest.shape)], axis=1)
     return out.reshape(lead + out.shape[1:])
+
+
+def warm_up() -> None:
+    """Compile (or load from the on-disk cache) the IK kernels on a tiny two-joint arm; a GUI may
+    call this in the background like :func:`workbench.kinematics.kernels.warm_up`."""
+    from ..arm.files import parse_arm_dict
+    from .arm import Arm
+
+    arm = Arm(parse_arm_dict({"arm": {"name": "warm-up 2R", "geometry": "origins"},
+                              "joint": [{"name": "a", "axis": [0, 0, 1]},
+                                        {"name": "b", "xyz": [0.5, 0, 0], "axis": [0, 0, 1]}],
+                              "tool": {"xyz": [0.3, 0, 0]}}, source_name="<warm-up>"))
+    goal = arm.fk(np.array([0.3, 0.6]))
+    solve_ik(arm, goal, orientation="free")
+    target_seeds(arm, goal, orientation="free")
 
 
 def _joint_distance(arm, a, b):
