@@ -318,8 +318,8 @@ class LoadMap(StudyKind):
 
 
 def bench_load_map(quick: bool = False) -> dict:  # pragma: no cover - convenience, not in ENTRIES
-    from .. import load_arm
-    from ..bench import demo_arm_path
+    from ..kinematics import load_arm
+    from ..benchutil import demo_arm_path
     from .base import Chunk
     from .spec import StudySpec
 

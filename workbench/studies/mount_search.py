@@ -618,8 +618,8 @@ def bench_mount_search(quick: bool = False) -> dict:
     x 4 x 1 grid, the bar scaled to the same per-problem rate). Reference rate: the same IK run
     one candidate at a time (batches of 20 targets) on a small sample of candidates.
     """
-    from .. import load_arm
-    from ..bench import demo_arm_path
+    from ..kinematics import load_arm
+    from ..benchutil import demo_arm_path
     from .cell import MountRegion
 
     arm = load_arm(demo_arm_path())

@@ -515,8 +515,8 @@ def bench_path_audit(quick: bool = False) -> dict:
     Bar (issue 4): under 5 s. Reference: the same samples solved independently from several
     seeds each (no continuation), to show what tracking saves.
     """
-    from .. import load_arm
-    from ..bench import demo_arm_path
+    from ..kinematics import load_arm
+    from ..benchutil import demo_arm_path
     from .base import Chunk
     from .cell import parse_cell_text
     from .spec import StudySpec
