@@ -76,7 +76,9 @@ class MainWindow(QtWidgets.QMainWindow):
         self.results_file = None
         self.run_dir = None
         self._run_count = 0
-        self.executor = "auto"      # in-process for short runs, local processes for long ones
+        # in-process, in the worker thread: the compiled kernels release the interpreter lock, so the
+        # window stays live, and no worker processes have to start (seconds on a busy machine)
+        self.executor = "inprocess"
 
         # one pose at a time on this (the GUI) thread: the compiled kernels' thread pool costs far
         # more than it gains for a batch of one, and a busy machine makes the hand-off slower still.
