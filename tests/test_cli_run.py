@@ -103,6 +103,8 @@ def test_kill_9_leaves_no_file_or_the_earlier_complete_one(tmp_path):
     assert not out.exists()
     # an earlier complete file under the final name survives a killed re-run untouched
     assert main(["run", str(study(tmp_path, name="small.toml")), "--out", str(out), "--quiet"]) == 0
+    # (the next run to the same name removed the dead run's temporary file)
+    assert not any(p.name.endswith(".partial") for p in tmp_path.iterdir())
     before = out.read_bytes()
     proc = start_run(tmp_path, out, "--in-process")
     wait_for_progress(proc)

@@ -251,6 +251,32 @@ class _WriterBase:
                        cell_text=self.cell_text, attrs=attrs, path=path, plan=p)
 
 
+def _remove_stale_partials(folder: str, base: str) -> None:
+    """Delete ``.BASE.PID.partial`` files left by killed runs (their process no longer exists)."""
+    prefix, suffix = f".{base}.", ".partial"
+    try:
+        names = os.listdir(folder)
+    except OSError:
+        return
+    for name in names:
+        if not (name.startswith(prefix) and name.endswith(suffix)):
+            continue
+        pid = name[len(prefix):-len(suffix)]
+        if not pid.isdigit() or int(pid) == os.getpid():
+            continue
+        try:
+            os.kill(int(pid), 0)
+            continue  # still running: not ours to touch
+        except ProcessLookupError:
+            pass
+        except (PermissionError, OSError):
+            continue
+        try:
+            os.unlink(os.path.join(folder, name))
+        except OSError:
+            pass
+
+
 def _fill_unfinished(plan, finished, arrays):
     """Set the cells of unfinished chunks to each field's fill value (arrays are allocated empty)."""
     if finished.all():
@@ -311,6 +337,7 @@ class ResultsWriter(_WriterBase):
                        if plan.result_bytes <= mirror_bytes else None)
         self.path = check_output_path(path)
         folder, base = os.path.split(self.path)
+        _remove_stale_partials(folder, base)
         self.tmp = os.path.join(folder, f".{base}.{os.getpid()}.partial")
         try:
             self.h5 = h5py.File(self.tmp, "w")
