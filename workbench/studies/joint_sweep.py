@@ -30,6 +30,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from ..kinematics.rows import parse_rows
+from ..measures import NEAR_SINGULAR as _NEAR_DEFAULT
 from ..measures import pose_measures
 from .base import Axis, Chunk, Field, Plan, StudyError, StudyKind, Table, block_rng
 
@@ -236,7 +237,7 @@ class JointSweep(StudyKind):
         seed = s.get("seed", 0)
         if not _is_int(seed) or seed < 0:
             raise _err(where, "seed", f"expected a whole number >= 0, got {seed!r}")
-        ns = s.get("near_singular", 0.01)
+        ns = s.get("near_singular", _NEAR_DEFAULT)
         if not _is_num(ns) or not 0 <= ns <= 1:
             raise _err(where, "near_singular", f"expected an inverse-condition threshold in [0, 1], got {ns!r}")
         flags = {}

@@ -28,6 +28,7 @@ from typing import Mapping
 import numpy as np
 
 from ..arm.transforms import inverse_transform, make_transform
+from ..measures import NEAR_SINGULAR as _NEAR_DEFAULT
 from .base import Axis, Field, Plan, StudyError, StudyKind, Table
 from .cell import sample_path
 
@@ -59,7 +60,7 @@ class PathSettings:
     spacing: float = 0.002
     rows: str | tuple = "full"
     length: float | None = None
-    near_singular: float = 0.02
+    near_singular: float = _NEAR_DEFAULT
     jump: float = 10 * _DEG
     seeds: int = 16
     mount: np.ndarray | None = None
@@ -325,7 +326,7 @@ class PathAudit(StudyKind):
     calibrated_chunks = False
 
     def default_settings(self, arm) -> dict:
-        return {"spacing": 0.002, "rows": "full", "near_singular": 0.02, "jump": 10.0, "seeds": 16}
+        return {"spacing": 0.002, "rows": "full", "near_singular": _NEAR_DEFAULT, "jump": 10.0, "seeds": 16}
 
     def validate(self, settings, arm, cell, where="settings"):
         if cell is None:

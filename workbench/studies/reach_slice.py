@@ -38,7 +38,7 @@ Settings (study file ``[settings]``; lengths in m, angles in degrees)::
     frame = "tcp"; rows = "full"; length = <nominal reach>   # measures, as in the joint sweep
     best = "inverse_condition"     # measure that picks the best solution
     distinct_tol = 0.1             # deg: solutions closer than this in every joint are one
-    near_singular = 0.01           # status flag: inverse condition below this
+    near_singular = 0.02           # status flag: inverse condition below this (workbench.measures.NEAR_SINGULAR)
     mount_xyz = [..]; mount_rpy = [..]   # optional arm base in the cell; else the cell's
                                          # [placement], else the arm file's mount
 
@@ -55,6 +55,7 @@ from typing import Mapping
 import numpy as np
 
 from ..arm.transforms import inverse_transform, make_transform
+from ..measures import NEAR_SINGULAR as _NEAR_DEFAULT
 from .base import Axis, Chunk, Field, Plan, StudyError, StudyKind, Table
 
 __all__ = ["ReachSlice", "ReachSettings", "sphere_orientations", "bench_reach_slice",
@@ -268,7 +269,7 @@ def _validate(settings: Mapping, arm, cell, where: str) -> ReachSettings:
     if best not in _BEST:
         raise _err(where, "best", f"expected one of {', '.join(_BEST)}, got {best!r}")
     dtol = _num(settings, where, "distinct_tol", 0.1, positive=True) * _DEG
-    near = _num(settings, where, "near_singular", 0.01)
+    near = _num(settings, where, "near_singular", _NEAR_DEFAULT)
     if not 0 <= near <= 1:
         raise _err(where, "near_singular", f"expected an inverse condition between 0 and 1, got {near!r}")
     nbs = settings.get("neighbour_seeds", True)
