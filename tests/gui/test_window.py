@@ -262,3 +262,19 @@ def test_path_audit_series_brush_and_pick(window, qtbot):
     c = int(want[0])
     assert window.pick_cell(c)
     assert np.allclose(window.state.q, d.q[c])
+
+
+def test_pose_list_sorts_cells_without_a_value_last(qapp):
+    from workbench.gui.result_views import PoseTableModel
+    from workbench.gui.resultdata import ResultData
+
+    d = ResultData.empty("joint sweep", (4,), np.arange(4.0), None, "x", "", ["inverse_condition"])
+    d.fill(slice(0, 4), {"inverse_condition": [0.3, np.nan, 0.1, 0.2]})
+    m = PoseTableModel()
+    m.set_result(d)
+    col = next(k for k, c in enumerate(m.columns) if c[1] == ("m", "inverse_condition"))
+    m.sort(col, QtCore.Qt.AscendingOrder)
+    assert m.order.tolist() == [2, 3, 0, 1]
+    m.sort(col, QtCore.Qt.DescendingOrder)
+    assert m.order.tolist() == [0, 3, 2, 1]
+    assert m.data(m.index(3, col)) == ""        # the cell without a value shows blank

@@ -423,12 +423,12 @@ class PoseTableModel(QtCore.QAbstractTableModel):
         cols.append((data.x_label, "x"))
         if data.is_map:
             cols.append((data.y_label, "y"))
+        for m in data.measure_names:
+            cols.append((MEASURE_LABELS.get(m, m), ("m", m)))
         if data.has_poses and data.joint_names:
             kinds = data.joint_kinds or ("revolute",) * len(data.joint_names)
             for k, (name, kind) in enumerate(zip(data.joint_names, kinds)):
                 cols.append((f"{name} ({'°' if kind == 'revolute' else 'mm'})", ("q", k, kind)))
-        for m in data.measure_names:
-            cols.append((MEASURE_LABELS.get(m, m), ("m", m)))
         cols.append(("note", "note"))
         self.columns = cols
         self._sort = None
@@ -478,8 +478,9 @@ class PoseTableModel(QtCore.QAbstractTableModel):
     def _perm(self, col, ascending):
         key = (col, ascending)
         if key not in self._perm_cache:
-            v = np.nan_to_num(self.column_values(col).astype(float), nan=np.inf, posinf=np.inf)
-            p = np.argsort(v if ascending else -v, kind="stable")
+            v = np.asarray(self.column_values(col), dtype=float)
+            order_key = np.where(np.isnan(v), np.inf, v if ascending else -v)   # no value: last either way
+            p = np.argsort(order_key, kind="stable")
             self._perm_cache[key] = p
         return self._perm_cache[key]
 
@@ -509,9 +510,9 @@ class PoseTableModel(QtCore.QAbstractTableModel):
             if key == "note":
                 return "near singular" if self._near()[c] else ""
             if key == "x":
-                return f"{d.cell_xy(c)[0]:.4g}"
+                return f"{round(d.cell_xy(c)[0], 9) + 0.0:.4g}"
             if key == "y":
-                return f"{d.cell_xy(c)[1]:.4g}"
+                return f"{round(d.cell_xy(c)[1], 9) + 0.0:.4g}"
             if key[0] == "q":
                 v = d.poses([c])[0, key[1]]
                 return "" if not np.isfinite(v) else (f"{np.degrees(v):.1f}" if key[2] == "revolute" else f"{v * 1000:.1f}")
@@ -524,10 +525,11 @@ class PoseTableModel(QtCore.QAbstractTableModel):
     def sort(self, column, order=QtCore.Qt.AscendingOrder):
         if self.data_ is None or column < 0:
             return
-        self.layoutAboutToBeChanged.emit()
-        self._sort = (column, order == QtCore.Qt.AscendingOrder)
-        perm = self._perm(*self._sort)
+        sort = (column, order == QtCore.Qt.AscendingOrder)
+        perm = self._perm(*sort)                 # all the work before the view is told
         keep = rows_mask(self.data_.size, self.order)
+        self.layoutAboutToBeChanged.emit()
+        self._sort = sort
         self.order = perm[keep[perm]]
         self.layoutChanged.emit()
 

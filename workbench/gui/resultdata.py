@@ -23,6 +23,11 @@ MEASURE_LABELS = {
     "score": "score",
     "payload": "payload (kg)",
     "speed_ratio": "joint-speed ratio",
+    "reached_fraction": "reached",
+    "worst_measure": "worst measure",
+    "min_margin": "min. margin",
+    "margin": "limit margin",
+    "own_load": "own load",
 }
 
 

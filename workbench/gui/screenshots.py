@@ -84,6 +84,16 @@ def main(argv=None):
     mv.brush_btn.setChecked(False)
     win.selection.clear()
 
+    # a reach slice of the demo arm: reachable points of a plane and their best measures
+    if win.open_file(os.path.join(CELLS, "reach_slice_s6.toml")):
+        win.study_panel.run_btn.click()
+        _wait(app, lambda: not win.running, timeout=900)
+        m = win.pose_list.model
+        col = next(k for k, c in enumerate(m.columns) if c[1] == ("m", "inverse_condition"))
+        win.pose_list.table.sortByColumn(col, QtCore.Qt.DescendingOrder)
+        win.pick_cell(m.cell_of_row(0))
+        shots.append(_shot(app, win, out, "08_reach_slice.png"))
+
     # the demo mount search: floor map of the best score, ranked list, candidates in the scene
     if win.open_file(os.path.join(CELLS, "tray_mount_search.toml")):
         win.study_panel.run_btn.click()
