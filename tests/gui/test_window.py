@@ -278,3 +278,27 @@ def test_pose_list_sorts_cells_without_a_value_last(qapp):
     m.sort(col, QtCore.Qt.DescendingOrder)
     assert m.order.tolist() == [0, 3, 2, 1]
     assert m.data(m.index(3, col)) == ""        # the cell without a value shows blank
+
+
+def test_layout_and_recent_files_are_remembered(qtbot, qsettings):
+    from workbench.gui.main_window import MainWindow
+
+    w = MainWindow(settings=qsettings)
+    w.show()
+    w.central.setSizes([300, 500])
+    sizes = w.central.sizes()
+    assert w.open_file(ARMS[0])
+    w.close()
+    assert qsettings.value("geometry") is not None and qsettings.value("window_state") is not None
+    w2 = MainWindow(settings=qsettings)
+    w2.show()
+    a, b = w2.central.sizes()       # the window may come back at another size: same proportions
+    assert a / (a + b) == pytest.approx(sizes[0] / sum(sizes), abs=0.02)
+    assert abs(sizes[0] / sum(sizes) - 0.5) > 0.05      # and not the default half-and-half
+    assert w2.recent_files()[0] == os.path.abspath(ARMS[0])
+    w2.close()
+    # the cautions are asked once: after the flag is set, no dialog stands in the way
+    qsettings.setValue("cautions_shown", True)
+    assert w2.confirm_cautions()
+    for x in (w, w2):
+        x.deleteLater()
