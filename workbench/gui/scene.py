@@ -273,8 +273,11 @@ class Scene3D(QtWidgets.QWidget):
             segs += [o, o + AXIS_LEN * info.tcp[:3, a]]
             cols += [c, c]
         self.tcp.setData(pos=np.asarray(segs), color=np.asarray(cols))
-        ell = p[-1][None, :] + ELLIPSOID_DRAW_SCALE * self._sphere @ info.ellipsoid_axes.T
-        self.ellipsoid.setMeshData(vertexes=ell, faces=self._faces)
+        # the unit sphere mesh stays; the ellipsoid is its affine image (no mesh rebuild per pose)
+        M = np.eye(4)
+        M[:3, :3] = ELLIPSOID_DRAW_SCALE * np.asarray(info.ellipsoid_axes)
+        M[:3, 3] = p[-1]
+        self.ellipsoid.setTransform(QtGui.QMatrix4x4(*M.reshape(-1)))
         n = len(info.joint_axes)
         while len(self._cyl) < n:
             md = gl.MeshData.cylinder(rows=1, cols=16, radius=[0.045, 0.045], length=0.12)
