@@ -188,6 +188,14 @@ def test_run_brush_and_pick(window, qtbot):
     assert open(os.path.join(folder, "map.png"), "rb").read(8) == b"\x89PNG\r\n\x1a\n"
     window.export_results(os.path.join(folder, "copy.h5"))
     assert read_results(os.path.join(folder, "copy.h5")).cells == 41 * 31
+    # the layout report of the results behind the views (the cautions are in it)
+    window.export_report(os.path.join(folder, "report.html"))
+    html = open(os.path.join(folder, "report.html"), encoding="utf-8").read()
+    assert "ISO 10218" in html
+    # a bad export target: one line, nothing written
+    assert not window._guard(window.export_map, os.path.join(folder, "map.jpg"))
+    assert "expected a .png or .svg" in window.last_error
+    assert not os.path.exists(os.path.join(folder, "map.jpg"))
 
 
 def _start_long_run(w):

@@ -26,21 +26,6 @@ def make_app(argv=None):
     return app
 
 
-def warm_kernels_in_background():
-    """Load (or compile) the kinematics kernels off the event loop so the first map is quick."""
-    import threading
-
-    def warm():
-        try:
-            from ..kinematics import kernels
-
-            kernels.warm_up()
-        except Exception:  # warming is an optimisation only
-            pass
-
-    threading.Thread(target=warm, name="kernel-warm-up", daemon=True).start()
-
-
 def main(path=None, exec_loop=True):
     """Open the main window (on ``path`` if given) and run the event loop; returns the exit code."""
     app = make_app()
