@@ -310,3 +310,32 @@ def test_layout_and_recent_files_are_remembered(qtbot, qsettings):
     assert w2.confirm_cautions()
     for x in (w, w2):
         x.deleteLater()
+
+
+STUDIES = sorted(p for p in glob.glob(os.path.join(ROOT, "arms", "cells", "*.toml"))
+                 if "[study]" in open(p, encoding="utf-8").read())
+
+
+@pytest.mark.parametrize("path", STUDIES, ids=os.path.basename)
+def test_open_each_demo_study_file(window, path):
+    spec = read_study_file(path)
+    assert window.open_file(path), window.last_error
+    sp = window.study_panel
+    assert sp.kind.name == spec.kind
+    for key, value in spec.settings.items():
+        from workbench.gui.formlogic import parse_value
+
+        assert parse_value(sp.edits[key].text()) == value
+    assert not sp.errors and sp.run_btn.isEnabled()
+    if spec.cell is not None:
+        assert window.cell_path == spec.cell_path
+
+
+def test_save_study_writes_what_the_form_shows(window, tmp_path):
+    assert _set(window, steps="[12, 34]")
+    out = tmp_path / "mine.toml"
+    window.save_study(str(out))
+    spec = read_study_file(str(out))
+    assert spec.kind == "joint_sweep" and spec.settings["steps"] == [12, 34]
+    assert os.path.abspath(spec.arm_path) == os.path.abspath(window.arm_path)
+    assert window.open_file(str(out)) and window.study_panel.edits["steps"].text() == "[12, 34]"
