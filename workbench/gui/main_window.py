@@ -505,14 +505,31 @@ class MainWindow(QtWidgets.QMainWindow):
         if data.mount_fn is not None and "mount_full_index" in data.extras:
             col = next(i for i, c in enumerate(self.pose_list.model.columns) if c[1] == ("m", "score"))
             self.pose_list.table.sortByColumn(col, QtCore.Qt.DescendingOrder)
-            self._show_candidates()
+        self._show_candidates()
         self._show_series()
         self.scene.set_ghosts(None)
 
     def _show_candidates(self):
-        """Mount search: the floor cells drawn in the scene, coloured by their best score."""
+        """Mount search: the floor cells drawn in the scene, coloured by their best score. Random
+        samples: the cloud of TCP points (at most 20 000 drawn), coloured by the inverse condition."""
         d = self.result
+        if d is not None and d.tcp is not None:
+            ok = np.flatnonzero(d.done & np.all(np.isfinite(d.tcp), axis=1))
+            if ok.size > 20000:
+                ok = ok[np.linspace(0, ok.size - 1, 20000).astype(np.int64)]
+            M = self.state.arm.model.mount
+            pts = d.tcp[ok] @ M[:3, :3].T + M[:3, 3]
+            v = d.measures.get(d.threshold_measure)
+            sc = None
+            if v is not None and ok.size:
+                f = v[ok]
+                top = float(np.nanmax(f)) if np.isfinite(f).any() else 1.0
+                sc = f / (top if top > 0 else 1.0)
+            self.scene.set_candidates(pts, sc)
+            return
         if d is None or d.mount_fn is None or "mount_full_index" not in d.extras:
+            c = getattr(self, "cell_content", None)       # back to the cell's own candidate region
+            self.scene.set_candidates(c.candidates if c is not None and self.cell is not None else None)
             return
         X, Y = np.meshgrid(d.x, d.y)
         pts = np.column_stack([X.ravel(), Y.ravel(), np.zeros(X.size)])

@@ -185,6 +185,8 @@ class StudySession:
                           threshold_measure=thr)
         if "tcp" in self.arrays and self.arrays["tcp"].shape[1:] == (3,):
             data.tcp = self.arrays["tcp"]
+        if len(axes) == 1 and axes[0].name == "sample" and plan.kind != "path_audit":
+            data.extras["unordered"] = True    # random samples: the axis is only a count
         return data
 
     def store(self, start, stop, arrays) -> None:

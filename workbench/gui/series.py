@@ -43,24 +43,30 @@ def show_series(view, data, threshold):
     v = display_values(data, m)
     x = np.asarray(data.x, float)
     order = np.argsort(x, kind="stable")
-    curve = pg.PlotDataItem(x[order], v[order], pen=pg.mkPen((40, 80, 180), width=2), connect="finite")
+    unordered = bool(data.extras.get("unordered"))
+    if unordered:   # random samples: dots, no line and no spans (neighbours are not related)
+        fin = np.isfinite(v)
+        curve = pg.ScatterPlotItem(x[fin], v[fin], size=3, pen=None, brush=(40, 80, 180, 120))
+    else:
+        curve = pg.PlotDataItem(x[order], v[order], pen=pg.mkPen((40, 80, 180), width=2), connect="finite")
     plot.addItem(curve)
     view._series_items.append(curve)
-    if "inverse_condition" in data.measures:
+    if "inverse_condition" in data.measures and not unordered:
         for a, b in near_spans(x[order], data.measures["inverse_condition"][order], threshold):
             reg = pg.LinearRegionItem([a, b], movable=False, brush=(220, 40, 40, 50))
             plot.addItem(reg)
             view._series_items.append(reg)
     sel = view.selection
     if sel.active and sel.size == data.size:
-        mk = sel.mask[order]
+        mk = sel.mask[order] & np.isfinite(v[order])
         pts = pg.ScatterPlotItem(x[order][mk], v[order][mk], size=5, brush=(255, 140, 0, 200), pen=None)
         plot.addItem(pts)
         view._series_items.append(pts)
     plot.setLabel("bottom", data.x_label)
     plot.setLabel("left", measure_label(m))
     plot.setTitle(data.title or data.kind)
-    view.legend.setText(f"red bands: near singular (1/k < {threshold:g}); orange: brushed")
+    view.legend.setText("orange: brushed; the scene shows the TCP points coloured by the measure" if unordered
+                        else f"red bands: near singular (1/k < {threshold:g}); orange: brushed")
     plot.getPlotItem().vb.autoRange(padding=0.02)
 
     def brush(lo, hi, final=True):
