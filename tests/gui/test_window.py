@@ -339,3 +339,16 @@ def test_save_study_writes_what_the_form_shows(window, tmp_path):
     assert spec.kind == "joint_sweep" and spec.settings["steps"] == [12, 34]
     assert os.path.abspath(spec.arm_path) == os.path.abspath(window.arm_path)
     assert window.open_file(str(out)) and window.study_panel.edits["steps"].text() == "[12, 34]"
+
+
+def test_summary_tables_show_after_a_run(window, qtbot):
+    assert _set(window, steps="[21, 21]")
+    _run(qtbot, window)
+    res = read_results(window.results_file)
+    assert res.tables, "the joint sweep writes its near-singular and best pose tables"
+    text = window.summary_view.toPlainText()
+    for t in res.tables.values():
+        assert t.title in text
+    best = res.tables["best"]
+    first = best.columns["cell"][0]
+    assert str(first) in text

@@ -33,9 +33,7 @@ def main(path=None, exec_loop=True):
 
     win = MainWindow()
     if path:
-        if not win.open_file(path):
-            # the window stays open on the demo; the message says what was wrong
-            pass
+        win.open_file(path)   # a bad file: the window stays on the demo and says what was wrong
     win.show()
     if not exec_loop:
         return win

@@ -24,7 +24,7 @@ from .scene import make_scene
 from .selection import Selection
 from .study_panel import StudyPanel
 
-__all__ = ["MainWindow", "ORG_NAME", "APP_NAME", "CAUTIONS"]
+__all__ = ["MainWindow", "ORG_NAME", "APP_NAME", "CAUTIONS", "tables_html"]
 
 ORG_NAME = "ManipulabilityWorkbench"
 APP_NAME = "Workbench"
@@ -33,6 +33,33 @@ MAX_GHOSTS = 12
 CAUTIONS = ("The maps are kinematic and static: they do not replace a risk assessment for a robot cell, "
             "the arm maker's data, a check on the real controller, or local codes and licensed practice "
             "(robot cell safety is governed by standards such as ISO 10218-1/-2).")
+
+
+def tables_html(tables, max_rows=15) -> str:
+    """HTML of a study's summary tables ``{name: Table}`` (first ``max_rows`` rows of each)."""
+    import html
+
+    if not tables:
+        return "<p style='color:#555'>The study's summary tables (ranked mounts, near-singular poses …) " \
+               "appear here when a run finishes or a results file is opened.</p>"
+    parts = []
+    for name, t in tables.items():
+        cols = list(t.columns)
+        head = "".join(f"<th>{html.escape(c)}{' (' + t.units[c] + ')' if t.units.get(c) else ''}</th>" for c in cols)
+        rows = []
+        for r in range(min(t.rows, max_rows)):
+            cells = []
+            for c in cols:
+                v = t.columns[c][r]
+                if isinstance(v, (float, np.floating)):
+                    v = f"{float(v):.4g}"
+                cells.append(f"<td>{html.escape(str(v))}</td>")
+            rows.append("<tr>" + "".join(cells) + "</tr>")
+        more = f"<p style='color:#555'>{t.rows - max_rows} more rows in the results file.</p>" if t.rows > max_rows else ""
+        desc = f"<p style='color:#555'>{html.escape(t.description)}</p>" if t.description else ""
+        parts.append(f"<h3>{html.escape(t.title or name)}</h3>{desc}<table border='1' cellspacing='0' "
+                     f"cellpadding='3'><tr>{head}</tr>{''.join(rows)}</table>{more}")
+    return "".join(parts)
 
 
 def _load_arm(path):
@@ -103,6 +130,9 @@ class MainWindow(QtWidgets.QMainWindow):
         maps.setSizes([620, 380])
         self.result_tabs.addTab(maps, "Map and histogram")
         self.result_tabs.addTab(self.pose_list, "Pose list")
+        self.summary_view = QtWidgets.QTextBrowser()
+        self.summary_view.setHtml(tables_html({}))
+        self.result_tabs.addTab(self.summary_view, "Summary")
         scene_box = QtWidgets.QWidget()
         sl = QtWidgets.QVBoxLayout(scene_box)
         sl.setContentsMargins(0, 0, 0, 0)
@@ -315,6 +345,7 @@ class MainWindow(QtWidgets.QMainWindow):
         session = session_from_results(res)      # ... and so does a file whose study cannot be re-planned
         self.session = session
         self.results_file = os.path.abspath(path)
+        self._show_tables(res.tables)
         if session.cell is not None:
             self.cell, self.cell_path = session.cell, session.spec.cell_path
             self.cell_content = cell_content(session.cell)
@@ -547,8 +578,19 @@ class MainWindow(QtWidgets.QMainWindow):
 
         show_series(self.map_view, d, self.state.threshold)
 
-    def _show_tables(self):
-        pass
+    def _show_tables(self, tables=None):
+        """The study's summary tables (ranking, refined mounts, near-singular poses ...) in the
+        Summary tab, from the results file behind the views."""
+        if tables is None:
+            tables = {}
+            if self.results_file and os.path.exists(self.results_file):
+                try:
+                    from ..results import read_results
+
+                    tables = read_results(self.results_file, load=False).tables
+                except WorkbenchError as exc:
+                    self.status.showMessage(f"summary tables not read: {exc}", 8000)
+        self.summary_view.setHtml(tables_html(tables))
 
     def _selection_changed(self, sel, source, final):
         if not final or self.result is None or sel.size != self.result.size:

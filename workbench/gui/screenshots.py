@@ -103,6 +103,8 @@ def main(argv=None):
         shots.append(_shot(app, win, out, "05_mount_search.png"))
         win.result_tabs.setCurrentIndex(1)
         shots.append(_shot(app, win, out, "06_mount_ranking.png"))
+        win.result_tabs.setCurrentIndex(2)
+        shots.append(_shot(app, win, out, "09_mount_summary.png"))
         win.result_tabs.setCurrentIndex(0)
 
     # the demo path audit: measures along the path with the near-singular spans shaded
