@@ -43,3 +43,19 @@ def test_selection_notifies_with_source_and_counts():
     # the mask handed out cannot be written through
     with pytest.raises(ValueError):
         sel.mask[0] = True
+
+
+def test_polygon_mask_by_hand():
+    from workbench.gui.selection import polygon_mask
+
+    x = np.arange(5.0)          # centres 0..4
+    y = np.arange(4.0)          # centres 0..3; flat c = j * 5 + i
+    # a square around x 1..3, y 1..2 selects the same cells as the rectangle
+    sq = [(0.5, 0.5), (3.5, 0.5), (3.5, 2.5), (0.5, 2.5)]
+    assert np.array_equal(polygon_mask(x, y, sq), rect_mask(x, y, 0.5, 3.5, 0.5, 2.5))
+    # a triangle with corners (0, -0.5), (4.5, -0.5), (4.5, 4): the cells below its diagonal
+    # y = x - 0.5 (no centre lies on it): row 0 x 1..4, row 1 x 2..4, row 2 x 3..4, row 3 x 4
+    tri = [(0.0, -0.5), (4.5, -0.5), (4.5, 4.0)]
+    got = np.flatnonzero(polygon_mask(x, y, tri)).tolist()
+    assert got == [1, 2, 3, 4, 7, 8, 9, 13, 14, 19]
+    assert not polygon_mask(x, y, [(10, 10), (11, 10), (11, 11)]).any()

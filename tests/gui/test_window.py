@@ -165,6 +165,17 @@ def test_run_brush_and_pick(window, qtbot):
     assert np.allclose(window.scene.arm_xy()[-1], tcp[:2])
     shown = float(window.arm_panel.m_labels["inverse_condition"].text())
     assert shown == pytest.approx(d.measures["inverse_condition"][c], abs=1e-4)
+    # the lasso: its corners in axis units, and the cells inside it
+    window.map_view.lasso_btn.setChecked(True)
+    poly = window.map_view.lasso_points()
+    assert poly.shape == (4, 2)
+    from matplotlib.path import Path
+
+    X, Y = np.meshgrid(d.x, d.y)
+    inside = Path(poly).contains_points(np.column_stack([X.ravel(), Y.ravel()]))
+    assert inside.any() and np.array_equal(window.selection.mask, inside)
+    assert window.pose_list.model.rowCount() == inside.sum()
+    window.map_view.lasso_btn.setChecked(False)
     # a value range on the histogram selects exactly the cells with values in it
     v = d.measures["inverse_condition"]
     lo, hi = np.quantile(v, [0.2, 0.4])

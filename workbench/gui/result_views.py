@@ -12,7 +12,7 @@ import pyqtgraph as pg
 from PySide6 import QtCore, QtGui, QtWidgets
 
 from .resultdata import MEASURE_LABELS, ResultData
-from .selection import Selection, range_mask, rect_mask, rows_mask
+from .selection import Selection, polygon_mask, range_mask, rect_mask, rows_mask
 
 __all__ = ["MapView", "HistogramView", "PoseTableModel", "PoseListView", "display_values", "measure_label"]
 
@@ -76,6 +76,12 @@ class MapView(QtWidgets.QWidget):
         self.brush_btn.setToolTip("Show a rectangle on the map; drag it or its corner to brush cells")
         self.brush_btn.toggled.connect(self._toggle_roi)
         bar.addWidget(self.brush_btn)
+        self.lasso_btn = QtWidgets.QPushButton("Lasso")
+        self.lasso_btn.setCheckable(True)
+        self.lasso_btn.setToolTip("Show a polygon on the map; drag its corners (double-click an edge for "
+                                  "a new corner) to brush the cells inside")
+        self.lasso_btn.toggled.connect(self._toggle_lasso)
+        bar.addWidget(self.lasso_btn)
         self.clear_btn = QtWidgets.QPushButton("Clear brush")
         self.clear_btn.clicked.connect(lambda: self.selection.clear(source="map"))
         bar.addWidget(self.clear_btn)
@@ -107,6 +113,7 @@ class MapView(QtWidgets.QWidget):
         for ax in (self.plot.getAxis("bottom"), self.plot.getAxis("left"), self.cbar.axis):
             ax.enableAutoSIPrefix(False)
         self.roi = None
+        self.lasso = None
         self._contour_stride = 1
         self.plot.scene().sigMouseClicked.connect(self._clicked)
         selection.subscribe(self._on_selection)
@@ -142,6 +149,8 @@ class MapView(QtWidgets.QWidget):
         self.plot.setTitle(data.title or data.kind)
         self._toggle_roi(False)
         self.brush_btn.setChecked(False)
+        self._toggle_lasso(False)
+        self.lasso_btn.setChecked(False)
         self.overlay.clear()
         self.refresh(final=True)
         self.image.setRect(self._rect)
@@ -249,6 +258,34 @@ class MapView(QtWidgets.QWidget):
         elif not on and reg is not None:
             self.plot.removeItem(reg)
             self.series_region = None
+
+    def _toggle_lasso(self, on):
+        if on and self.data is not None and self.data.is_map and self.lasso is None:
+            r = self._rect
+            cx, cy, w, h = r.center().x(), r.center().y(), r.width(), r.height()
+            pts = [(cx - 0.2 * w, cy), (cx, cy - 0.2 * h), (cx + 0.2 * w, cy), (cx, cy + 0.2 * h)]
+            self.lasso = pg.PolyLineROI(pts, closed=True, pen=pg.mkPen((255, 140, 0), width=2))
+            self.lasso.setZValue(20)
+            self.plot.addItem(self.lasso)
+            self.lasso.sigRegionChangeFinished.connect(lambda *_: self._lasso_moved())
+            self._lasso_moved()
+        elif not on and self.lasso is not None:
+            self.plot.removeItem(self.lasso)
+            self.lasso = None
+
+    def lasso_points(self):
+        """(k, 2) corners of the lasso in axis units."""
+        roi = self.lasso
+        return np.array([[p.x(), p.y()] for p in (roi.mapToParent(h.pos()) for h in roi.getHandles())])
+
+    def brush_polygon(self, polygon, final=True):
+        """Brush the cells whose centres lie inside ``polygon`` (k, 2) (axis units)."""
+        d = self.data
+        self.selection.set_mask(polygon_mask(d.x, d.y, polygon), source="map", final=final)
+
+    def _lasso_moved(self):
+        if self.lasso is not None:
+            self.brush_polygon(self.lasso_points(), final=True)
 
     def brush_rect(self, x0, x1, y0, y1, final=True):
         """Brush the cells whose centres lie in [x0, x1] x [y0, y1] (axis units)."""

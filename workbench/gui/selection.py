@@ -16,7 +16,7 @@ from typing import Callable
 
 import numpy as np
 
-__all__ = ["Selection", "rect_mask", "range_mask", "rows_mask", "axis_index_range"]
+__all__ = ["Selection", "rect_mask", "polygon_mask", "range_mask", "rows_mask", "axis_index_range"]
 
 
 class Selection:
@@ -137,6 +137,31 @@ def rect_mask(x, y, x0, x1, y0, y1) -> np.ndarray:
     j0, j1 = axis_index_range(y, y0, y1)
     m = np.zeros((ny, nx), dtype=bool)
     m[j0:j1, i0:i1] = True
+    return m.reshape(-1)
+
+
+def polygon_mask(x, y, polygon) -> np.ndarray:
+    """Mask of the cells of a (len(y), len(x)) row-major grid whose centres lie inside ``polygon``
+    (k, 2) (a lasso; closed implicitly). Only the cells in the polygon's bounding box are tested.
+
+    Returns
+    -------
+    (ny * nx,) bool
+    """
+    from matplotlib.path import Path
+
+    poly = np.asarray(polygon, dtype=float).reshape(-1, 2)
+    x, y = np.asarray(x, float), np.asarray(y, float)
+    m = np.zeros((len(y), len(x)), dtype=bool)
+    if len(poly) < 3:
+        return m.reshape(-1)
+    i0, i1 = axis_index_range(x, poly[:, 0].min(), poly[:, 0].max())
+    j0, j1 = axis_index_range(y, poly[:, 1].min(), poly[:, 1].max())
+    if i1 <= i0 or j1 <= j0:
+        return m.reshape(-1)
+    X, Y = np.meshgrid(x[i0:i1], y[j0:j1])
+    inside = Path(poly).contains_points(np.column_stack([X.ravel(), Y.ravel()]))
+    m[j0:j1, i0:i1] = inside.reshape(X.shape)
     return m.reshape(-1)
 
 
