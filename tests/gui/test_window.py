@@ -197,6 +197,9 @@ def test_run_brush_and_pick(window, qtbot):
     assert rows.shape[0] == want.size and np.array_equal(rows[:, 0].astype(int), m.order)
     window.export_map(os.path.join(folder, "map.png"))
     assert open(os.path.join(folder, "map.png"), "rb").read(8) == b"\x89PNG\r\n\x1a\n"
+    window.export_map(os.path.join(folder, "map.svg"))
+    svg = open(os.path.join(folder, "map.svg"), encoding="utf-8").read()
+    assert "<svg" in svg and "joint j3 (deg)" in svg
     window.export_results(os.path.join(folder, "copy.h5"))
     assert read_results(os.path.join(folder, "copy.h5")).cells == 41 * 31
     # the layout report of the results behind the views (the cautions are in it)

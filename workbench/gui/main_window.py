@@ -686,10 +686,23 @@ class MainWindow(QtWidgets.QMainWindow):
         item = self.map_view.plot.getPlotItem().scene()
         tmp = _atomic_target(path)
         try:
-            exp = ex.SVGExporter(item) if ext == ".svg" else ex.ImageExporter(item)
             if ext == ".png":
+                exp = ex.ImageExporter(item)
                 exp.parameters()["width"] = max(1200, int(self.map_view.plot.width()))
-            exp.export(tmp)
+                exp.export(tmp)
+            else:
+                # Qt's own SVG writer: pyqtgraph's SVG exporter fails on some of the map's items
+                from PySide6 import QtSvg
+
+                w = self.map_view.plot
+                gen = QtSvg.QSvgGenerator()
+                gen.setFileName(tmp)
+                gen.setSize(w.size())
+                gen.setViewBox(QtCore.QRect(0, 0, w.width(), w.height()))
+                gen.setTitle(f"Manipulability Workbench map: {self.result.title}")
+                painter = QtGui.QPainter(gen)
+                w.render(painter)
+                painter.end()
             os.replace(tmp, path)
         finally:
             if os.path.exists(tmp):
