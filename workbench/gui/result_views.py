@@ -603,6 +603,9 @@ class PoseListView(QtWidgets.QWidget):
     def set_result(self, data):
         self.model.set_result(data)
         self.table.sortByColumn(-1, QtCore.Qt.AscendingOrder)
+        fm = self.table.horizontalHeader().fontMetrics()
+        for c, (title, _key) in enumerate(self.model.columns):   # headers readable, rows not measured
+            self.table.setColumnWidth(c, max(70, fm.horizontalAdvance(str(title)) + 28))
 
     def refresh(self):
         """New chunks finished: show them (keeps the brush filter)."""
