@@ -11,15 +11,15 @@ from typing import Callable
 import numpy as np
 
 from ..kinematics.rows import parse_rows
-from ..measures import pose_measures
+from ..measures import NEAR_SINGULAR, pose_measures
 
 __all__ = ["PoseState", "PoseInfo", "sphere_mesh", "ellipsoid_points", "singularity_note",
            "ROW_CHOICES", "DEFAULT_THRESHOLD"]
 
 ROW_CHOICES = ("full", "translation", "rotation", "planar")
 # near-singular when the inverse condition 1/k of the chosen rows falls below this (a setting of
-# the panel; 0.05 means the weakest direction has 1/20 of the strongest's gain)
-DEFAULT_THRESHOLD = 0.05
+# the panel); the one default of the whole product, shared with the studies and the notes
+DEFAULT_THRESHOLD = NEAR_SINGULAR
 # the velocity ellipsoid is drawn for joint speeds on the unit ball times this time (s), so a
 # singular value of 1 m/s per rad/s becomes a 0.2 m half-axis on screen
 ELLIPSOID_DRAW_SCALE = 0.2

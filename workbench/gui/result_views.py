@@ -11,6 +11,8 @@ import numpy as np
 import pyqtgraph as pg
 from PySide6 import QtCore, QtGui, QtWidgets
 
+from ..measures import NEAR_SINGULAR
+
 from .resultdata import MEASURE_LABELS, ResultData
 from .selection import Selection, polygon_mask, range_mask, rect_mask, rows_mask
 
@@ -62,7 +64,7 @@ class MapView(QtWidgets.QWidget):
         super().__init__(parent)
         self.selection = selection
         self.data: ResultData | None = None
-        self.threshold = 0.05
+        self.threshold = NEAR_SINGULAR
         lay = QtWidgets.QVBoxLayout(self)
         lay.setContentsMargins(0, 0, 0, 0)
         bar = QtWidgets.QHBoxLayout()
@@ -447,7 +449,7 @@ class PoseTableModel(QtCore.QAbstractTableModel):
     def __init__(self, parent=None):
         super().__init__(parent)
         self.data_ = None
-        self.threshold = 0.05
+        self.threshold = NEAR_SINGULAR
         self.order = np.zeros(0, dtype=np.int64)
         self.columns = []
         self._sort = None          # (column, ascending)
