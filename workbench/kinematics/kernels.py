@@ -23,7 +23,7 @@ BLOCK = 512  # poses per parallel work item
 # per-pose building blocks
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True, inline="always", error_model="numpy")
 def _chain(q, origins, axes, kinds, upto, T, Z, O, tmp):
     """Walk the chain up to joint ``upto`` (inclusive).
 
@@ -84,13 +84,13 @@ def _chain(q, origins, axes, kinds, upto, T, Z, O, tmp):
                 T[r, 3] = tmp[r, 3] + Z[j, r] * qj
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True, inline="always", error_model="numpy")
 def _point(T, off, p):
     for r in range(3):
         p[r] = T[r, 0] * off[0, 3] + T[r, 1] * off[1, 3] + T[r, 2] * off[2, 3] + T[r, 3]
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True, inline="always", error_model="numpy")
 def _fill_jacobian(Z, O, kinds, upto, p, R, J):
     """Geometric Jacobian (6 x n) of point ``p``; columns after ``upto`` are zero.
 
@@ -117,7 +117,7 @@ def _fill_jacobian(Z, O, kinds, upto, p, R, J):
             J[3 + r, j] = R[r, 0] * wx + R[r, 1] * wy + R[r, 2] * wz
 
 
-@njit(cache=True)
+@njit(cache=True, error_model="numpy")
 def jacobi_sv(B, out):
     """Singular values of B (rows x cols, overwritten) into ``out[:cols]``, descending.
 
@@ -125,6 +125,9 @@ def jacobi_sv(B, out):
     (|cos| <= 1e-15 between every pair); the singular values are then the column norms. The
     squared column norms are carried through each sweep with the exact update
     alpha' = alpha - t*gamma, beta' = beta + t*gamma and recomputed at the start of every sweep.
+    Cyclic Jacobi converges quadratically, so once every pair of a sweep started with
+    |cos| < 1e-8 the columns leave that sweep orthogonal to ~1e-16 and no checking sweep is run.
+    ``error_model="numpy"``: a float division by zero gives inf/nan, never an exception.
     """
     rows, cols = B.shape
     for sweep in range(40):
@@ -134,6 +137,7 @@ def jacobi_sv(B, out):
                 acc += B[r, j] * B[r, j]
             out[j] = acc
         rotated = False
+        worst = 0.0
         for i in range(cols - 1):
             for j in range(i + 1, cols):
                 alpha = out[i]
@@ -153,8 +157,12 @@ def jacobi_sv(B, out):
                 gamma = 0.0
                 for r in range(rows):
                     gamma += B[r, i] * B[r, j]
-                if abs(gamma) <= 1e-15 * np.sqrt(alpha * beta):
+                ref = np.sqrt(alpha * beta)
+                if abs(gamma) <= 1e-15 * ref:
                     continue
+                rel = abs(gamma) / ref if ref > 0.0 else 1.0
+                if rel > worst:
+                    worst = rel
                 rotated = True
                 zeta = (beta - alpha) / (2.0 * gamma)
                 t = (1.0 if zeta >= 0 else -1.0) / (abs(zeta) + np.sqrt(1.0 + zeta * zeta))
@@ -167,7 +175,7 @@ def jacobi_sv(B, out):
                     B[r, j] = s * bi + c * bj
                 out[i] = alpha - t * gamma
                 out[j] = beta + t * gamma
-        if not rotated:
+        if not rotated or worst < 1e-8:
             break
     for j in range(cols):
         acc = 0.0
@@ -184,7 +192,7 @@ def jacobi_sv(B, out):
         out[b + 1] = v
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True, inline="always", error_model="numpy")
 def _selected_sv(J, rows, scale, B, tmp, sv):
     """Singular values of diag(scale) @ J[rows] into sv (length m, zero-padded)."""
     m = rows.shape[0]
@@ -213,7 +221,7 @@ def _selected_sv(J, rows, scale, B, tmp, sv):
 # batch kernels
 
 
-@njit(cache=True, parallel=True, nogil=True)
+@njit(cache=True, parallel=True, nogil=True, error_model="numpy")
 def fk_batch(Q, origins, axes, kinds, upto, off, pre, out):
     """out[i] = pre @ T_upto(Q[i]) @ off, (N, 4, 4). ``upto`` = -1 means the base frame."""
     N, n = Q.shape
@@ -244,7 +252,7 @@ def fk_batch(Q, origins, axes, kinds, upto, off, pre, out):
             out[i, 3, 3] = 1.0
 
 
-@njit(cache=True, parallel=True, nogil=True)
+@njit(cache=True, parallel=True, nogil=True, error_model="numpy")
 def frames_batch(Q, origins, axes, kinds, pre, out):
     """All joint frames: out[i, j] = pre @ T_j(Q[i]), (N, n, 4, 4)."""
     N, n = Q.shape
@@ -269,7 +277,7 @@ def frames_batch(Q, origins, axes, kinds, pre, out):
                 out[i, j, 3, 3] = 1.0
 
 
-@njit(cache=True, parallel=True, nogil=True)
+@njit(cache=True, parallel=True, nogil=True, error_model="numpy")
 def jacobian_batch(Q, origins, axes, kinds, upto, off, R, out):
     """Geometric Jacobians (N, 6, n) of the point ``off`` fixed to joint frame ``upto``."""
     N, n = Q.shape
@@ -286,7 +294,7 @@ def jacobian_batch(Q, origins, axes, kinds, upto, off, R, out):
             _fill_jacobian(Z, O, kinds, upto, p, R, out[i])
 
 
-@njit(cache=True, parallel=True, nogil=True)
+@njit(cache=True, parallel=True, nogil=True, error_model="numpy")
 def sv_batch(A, rows, scale, out):
     """Singular values of diag(scale) @ A[i][rows] for a stack A (N, 6, n) -> out (N, m)."""
     N = A.shape[0]
@@ -301,7 +309,7 @@ def sv_batch(A, rows, scale, out):
             _selected_sv(A[i], rows, scale, B, tmp, out[i])
 
 
-@njit(cache=True, parallel=True, nogil=True)
+@njit(cache=True, parallel=True, nogil=True, error_model="numpy")
 def sv_map_batch(Q, origins, axes, kinds, upto, off, R, rows, scale, out):
     """Fused FK -> Jacobian -> singular values, (N, n) -> out (N, m); no Jacobian stack is stored."""
     N, n = Q.shape
