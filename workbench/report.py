@@ -535,7 +535,8 @@ def build_report(results) -> Report:
             ("Results created", _s(r.attrs.get("created", "?"))),
             ("Complete", "no: the run was cancelled, unfinished cells are blank" if r.incomplete else "yes"),
             ("Arm file sha256", fingerprint(r.arm_text)), ("Cell file sha256", fingerprint(r.cell_text)),
-            ("Study file sha256", fingerprint(r.study_text))]
+            ("Study file sha256", fingerprint(r.study_text)),
+            ("Read first", "kinematic and static maps only, not a risk assessment; see Cautions")]
     blocks = [TextBlock("Study settings", _settings_lines(r.study_text)),
               TextBlock("Arm", _arm_summary(r.arm_text)),
               TextBlock("Cell", _cell_summary(cell, r.cell_text))]
@@ -669,12 +670,21 @@ background:#fff6ea}dl{display:grid;grid-template-columns:14em auto}dt{font-weigh
 font-family:monospace;word-break:break-all}"""
 
 
+def _usual_mode(path: str, folder: bool = False) -> None:
+    """Give a file made by ``tempfile`` (mode 0600 / 0700) the mode a plain ``open`` would have
+    (0666 / 0777 less the umask), so a report is readable like any other file the user writes."""
+    mask = os.umask(0)
+    os.umask(mask)
+    os.chmod(path, (0o777 if folder else 0o666) & ~mask)
+
+
 def _write_html(rep: Report, path: str) -> None:
     e = html.escape
     folder = os.path.dirname(os.path.abspath(path))
     stem = os.path.splitext(os.path.basename(path))[0]
     img_dir_name = f"{stem}_files"
     tmp_dir = tempfile.mkdtemp(prefix=f".~{stem}_files", dir=folder)
+    tmp_html = None
     parts = ["<!DOCTYPE html>", '<html lang="en">', "<head>", '<meta charset="utf-8">',
              f"<title>{e(rep.title)}</title>", f"<style>{_CSS}</style>", "</head>", "<body>",
              f"<h1>{e(rep.title)}</h1>", "<dl>"]
@@ -718,12 +728,16 @@ def _write_html(rep: Report, path: str) -> None:
         fd, tmp_html = tempfile.mkstemp(prefix=f".~{stem}", suffix=".html", dir=folder)
         with os.fdopen(fd, "w", encoding="utf-8") as fh:
             fh.write("\n".join(parts) + "\n")
+        _usual_mode(tmp_html)
+        _usual_mode(tmp_dir, folder=True)
         if os.path.isdir(final_dir):
             shutil.rmtree(final_dir)
         os.replace(tmp_dir, final_dir)
         os.replace(tmp_html, path)
     except BaseException:
         shutil.rmtree(tmp_dir, ignore_errors=True)
+        if tmp_html is not None and os.path.exists(tmp_html):
+            os.unlink(tmp_html)
         raise
 
 
@@ -766,6 +780,12 @@ def write_report(results, out) -> str:
         raise ReportError(f"--out {out}: folder {folder} does not exist")
     if os.path.isdir(out):
         raise ReportError(f"--out {out}: is a directory, expected a file name")
+    try:  # access() says yes to root everywhere: really try to create a file there
+        fd, probe = tempfile.mkstemp(prefix=".~probe", dir=folder)
+        os.close(fd)
+        os.unlink(probe)
+    except OSError as exc:
+        raise ReportError(f"--out {out}: cannot create files in {folder} ({exc.strerror})") from None
     if isinstance(results, (str, os.PathLike)):
         results = read_results(results)
     if not results.arrays:
@@ -776,6 +796,7 @@ def write_report(results, out) -> str:
         os.close(fd)
         try:
             _write_pdf(rep, tmp)
+            _usual_mode(tmp)
             os.replace(tmp, out)
         except BaseException:
             if os.path.exists(tmp):
