@@ -84,9 +84,7 @@ def measures(J, rows="full", length=1.0) -> dict:
         ``manipulability``, ``condition``, ``inverse_condition``, ``min_sv`` each (...), and
         ``sv`` (..., m) singular values, descending.
     """
-    J = np.asarray(J, dtype=float)
-    if J.ndim < 2 or J.shape[-2] != 6:
-        raise ValueError(f"J: expected Jacobians shaped (..., 6, n), got shape {J.shape}")
+    J = _as_jacobians(J)
     r = np.asarray(parse_rows(rows), dtype=np.int64)
     scale = row_scale(tuple(r), length)
     lead = J.shape[:-2]
@@ -133,9 +131,7 @@ NEAR_FRACTION = 0.02
 
 def _selected(J, rows, length):
     """Selected, scaled rows of J: (A (..., m, n), row indices, scale (m,))."""
-    J = np.asarray(J, dtype=float)
-    if J.ndim < 2 or J.shape[-2] != 6:
-        raise ValueError(f"J: expected Jacobians shaped (..., 6, n), got shape {J.shape}")
+    J = _as_jacobians(J)
     r = parse_rows(rows)
     scale = row_scale(tuple(r), length)
     A = J[..., list(r), :] * scale[:, None]
@@ -219,7 +215,13 @@ class Ellipsoid:
         """Extent of the ellipsoid along unit direction(s) ``d`` (..., m): the largest speed
         (velocity) or force (force ellipsoid) available along ``d``, 1 / sqrt(sum_i (d.e_i / r_i)^2)."""
         d = np.asarray(d, dtype=float)
-        d = d / np.linalg.norm(d, axis=-1, keepdims=True)
+        m = self.directions.shape[-2]
+        if d.ndim < 1 or d.shape[-1] != m:
+            raise WorkbenchError(f"d: expected direction(s) shaped (..., {m}) in the ellipsoid's rows, got shape {d.shape}")
+        norm = np.linalg.norm(d, axis=-1, keepdims=True)
+        if not np.all(np.isfinite(norm) & (norm > 0)):
+            raise WorkbenchError("d: expected non-zero, finite direction(s), got a zero-length or non-finite one")
+        d = d / norm
         c = np.einsum("...ij,...i->...j", self.directions, d)
         with np.errstate(divide="ignore"):
             inv = np.where(np.isinf(self.radii), 0.0, 1.0 / self.radii)
@@ -229,6 +231,19 @@ class Ellipsoid:
 
 
 _ROWN = ("vx", "vy", "vz", "wx", "wy", "wz")
+
+
+def _as_jacobians(J) -> np.ndarray:
+    """``J`` as a float array shaped (..., 6, n) with n >= 1, or a WorkbenchError (a ValueError)
+    naming the parameter, the expected shape and the shape received."""
+    try:
+        J = np.asarray(J, dtype=float)
+    except (TypeError, ValueError):
+        raise WorkbenchError(f"J: expected Jacobians shaped (..., 6, n) of numbers, got {type(J).__name__} "
+                             f"with values that are not numbers") from None
+    if J.ndim < 2 or J.shape[-2] != 6 or J.shape[-1] < 1:
+        raise WorkbenchError(f"J: expected Jacobians shaped (..., 6, n) with n >= 1 joints, got shape {J.shape}")
+    return J
 
 
 def _limits_vector(values, n, what, unit):
@@ -780,10 +795,8 @@ def joint_torques(J, wrench):
     ndarray, shape (..., n)
         Joint torques (N m) / forces (N) the joints must supply.
     """
-    J = np.asarray(J, dtype=float)
+    J = _as_jacobians(J)
     F = np.asarray(wrench, dtype=float)
-    if J.ndim < 2 or J.shape[-2] != 6:
-        raise WorkbenchError(f"J: expected Jacobians shaped (..., 6, n), got shape {J.shape}")
     if F.ndim == 0 or F.shape[-1] != 6:
         raise WorkbenchError(f"wrench: expected [fx fy fz mx my mz] shaped (..., 6), got shape {F.shape}")
     return np.einsum("...ij,...i->...j", J, F)

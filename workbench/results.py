@@ -556,16 +556,41 @@ def read_results(path, load: bool = True) -> Results:
 # exports
 
 
-def _atomic_target(path, what):
+# file name endings the exports accept (the content is always PNG / CSV)
+EXPORT_EXTENSIONS = {"--png": (".png",), "--csv": (".csv",)}
+
+
+def check_export_target(path, what, source=None) -> str:
+    """Check that an export (``what`` = "--png" or "--csv") can be written at ``path``: the name
+    ends in the right extension, it is not a directory nor the results file ``source`` itself, and
+    its folder exists and takes new files. Returns the absolute path; raises
+    :class:`ResultsError` naming the option, the path and what is expected. Writes nothing."""
     p = os.path.abspath(os.fspath(path))
     if os.path.isdir(p):
         raise ResultsError(f"{what} {path}: is a directory; expected a file name")
+    exts = EXPORT_EXTENSIONS.get(what)
+    if exts and os.path.splitext(p)[1].lower() not in exts:
+        raise ResultsError(f"{what} {path}: expected a file name ending in {' or '.join(exts)}, got "
+                           f"{os.path.splitext(p)[1] or 'no extension'}")
+    if source is not None and os.path.realpath(p) == os.path.realpath(os.fspath(source)):
+        raise ResultsError(f"{what} {path}: is the results file being exported; expected another file name")
     folder = os.path.dirname(p)
     if not os.path.isdir(folder):
         raise ResultsError(f"{what} {path}: folder {folder} does not exist")
     if not os.access(folder, os.W_OK | os.X_OK):
         raise ResultsError(f"{what} {path}: folder {folder} is not writable")
-    return p, os.path.join(folder, f".{os.path.basename(p)}.{os.getpid()}.partial")
+    try:  # access() says yes to root everywhere: really try to create a file there
+        fd, probe = tempfile.mkstemp(prefix=".~probe", dir=folder)
+        os.close(fd)
+        os.unlink(probe)
+    except OSError as exc:
+        raise ResultsError(f"{what} {path}: cannot create files in {folder} ({exc.strerror})") from None
+    return p
+
+
+def _atomic_target(path, what, source=None):
+    p = check_export_target(path, what, source)
+    return p, os.path.join(os.path.dirname(p), f".{os.path.basename(p)}.{os.getpid()}.partial")
 
 
 def _replace_or_clean(tmp, final):
@@ -584,7 +609,7 @@ def export_csv(results: Results, path, table: str | None = None, max_rows: int =
     ``table="cells"`` (or a study without tables) writes every finished cell: the axis values in
     display units and every scalar field (up to ``max_rows`` rows).
     """
-    final, tmp = _atomic_target(path, "--csv")
+    final, tmp = _atomic_target(path, "--csv", results.path)
     if table is None:
         table = "near_singular" if "near_singular" in results.tables else next(iter(results.tables), "cells")
     if table == "cells":
@@ -656,7 +681,7 @@ def export_png(results: Results, path, measure: str | None = None, dpi: int = 12
     number, as the title says); one axis gives a line plot; random samples and path samples a
     scatter of their positions (x, y) coloured by the measure, or a histogram without positions.
     Returns the written path."""
-    final, tmp = _atomic_target(path, "--png")
+    final, tmp = _atomic_target(path, "--png", results.path)
     names = results.measure_names()
     if measure is None:
         for cand in ("inverse_condition", "inverse_condition_mean", "inverse_condition_min"):

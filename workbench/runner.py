@@ -142,6 +142,26 @@ def _fmt_bytes(b):
     return f(b)
 
 
+def check_out_is_not_an_input(out, spec) -> None:
+    """Refuse a results path that is one of the study's own input files (study, arm or cell file):
+    writing the results there would destroy the input.
+
+    Parameters
+    ----------
+    out : str or os.PathLike
+        The results file path.
+    spec : StudySpec
+        The study (its ``source``, ``arm_path`` and ``cell_path`` are compared with ``out``).
+    """
+    target = os.path.realpath(os.fspath(out))
+    for what, p in (("study file", getattr(spec, "source", None)), ("arm file", getattr(spec, "arm_path", None)),
+                    ("cell file", getattr(spec, "cell_path", None))):
+        if p and os.path.realpath(os.fspath(p)) == target:
+            raise RunError(f"--out {out}: is the study's {what}; writing the results there would destroy it; "
+                           f"expected a new results file name such as "
+                           f"{os.path.splitext(os.fspath(out))[0]}.h5")
+
+
 def check_resources(plan: Plan, out) -> None:
     """Refuse a run whose results would not fit: in memory when ``out`` is None, on disk
     (uncompressed size) otherwise."""
@@ -246,6 +266,8 @@ def run_study(study, out=None, executor="inprocess", workers=None, scheduler=Non
         out = check_output_path(out)
     prep = study if isinstance(study, Prepared) else prepare(study, arm, cell, texts, chunk_cells)
     kind, plan, arm, cell = prep.kind, prep.plan, prep.arm, prep.cell
+    if out is not None:
+        check_out_is_not_an_input(out, plan.spec)
     check_resources(plan, out)
     is_cancelled = _is_cancelled(cancel)
     n_workers = int(workers or _cores())
@@ -425,6 +447,13 @@ def _run_processes(kind, plan, arm, cell, finished, is_cancelled, n_workers, poo
                 pending.discard(fut)
                 try:
                     chunk, arrays = fut.result()
+                except cf.process.BrokenProcessPool:
+                    if is_cancelled():
+                        break
+                    raise RunError("worker processes: a worker stopped before finishing its chunk (killed, out "
+                                   "of memory, or a script that starts processes without "
+                                   "'if __name__ == \"__main__\":'); nothing was kept; run again, or "
+                                   "in-process (--in-process, executor=\"inprocess\")") from None
                 except Exception:
                     if is_cancelled():  # workers hit by the same Ctrl-C: the run is over anyway
                         break

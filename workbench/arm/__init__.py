@@ -37,7 +37,11 @@ def read_arm_model(path, base_link: str | None = None, tip_link: str | None = No
     ArmFileError
         For any bad file, with one line naming the file, the place and what is expected.
     """
+    if not isinstance(path, (str, os.PathLike)):
+        raise ArmFileError(f"path: expected an arm file path (.toml or .urdf), got {type(path).__name__} {path!r}")
     p = os.fspath(path)
+    if isinstance(p, bytes):
+        p = os.fsdecode(p)
     if os.path.isdir(p):
         raise ArmFileError(f"{p}: is a directory, expected an arm file (.toml or .urdf)")
     ext = os.path.splitext(p)[1].lower()

@@ -21,11 +21,23 @@ def add_parser(subparsers):
 
 def run(args) -> int:
     from ..errors import WorkbenchError
-    from ..results import export_csv, export_png, read_results
+    from ..results import check_export_target, export_csv, export_png, read_results
 
     if not args.png and not args.csv:
         raise WorkbenchError("export: nothing to do; give --png FILE and/or --csv FILE")
     res = read_results(args.results)
+    # check every output before writing any, so a bad second one leaves no first one behind
+    for opt, path in (("--png", args.png), ("--csv", args.csv)):
+        if path:
+            check_export_target(path, opt, res.path)
+    if args.png:  # the measure is checked before anything is written too
+        names = res.measure_names()
+        if args.measure is not None and args.measure not in names:
+            raise WorkbenchError(f"--measure {args.measure}: not a map of these results; expected one of "
+                                 f"{', '.join(names)}")
+    if args.csv and args.table is not None and args.table != "cells" and args.table not in res.tables:
+        raise WorkbenchError(f"--table {args.table}: no such table in {res.path}; tables are "
+                             f"{', '.join(list(res.tables) + ['cells'])}")
     if res.incomplete:
         sys.stderr.write(f"note: {args.results} is an incomplete run ({int(res.finished.sum())} of "
                          f"{res.finished.size} chunks); unfinished cells are blank\n")

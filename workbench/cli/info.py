@@ -286,8 +286,8 @@ def format_info(info: dict) -> str:
         lines.append(f"  moving mass (links): {fmt_num(info['moving_mass_kg'])} kg")
     r = info["reach"]
     lines.append(f"  reach: {r['from_axis_m'] * 1000:.0f} mm from joint 1's axis, "
-                 f"{r['from_origin_m'] * 1000:.0f} mm from joint 1's origin (largest over {r['samples']} random "
-                 f"in-limit poses); nominal {r['nominal_m'] * 1000:.0f} mm (sum of link offsets and tool)")
+                 f"{r['from_origin_m'] * 1000:.0f} mm from joint 1's origin (largest over {r['samples'] - 1} random "
+                 f"in-limit poses and the home pose); nominal {r['nominal_m'] * 1000:.0f} mm (sum of link offsets and tool)")
     if info["warnings"]:
         lines.append("")
         lines.append("warnings:")

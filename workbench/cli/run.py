@@ -13,6 +13,9 @@ import sys
 import threading
 import time
 
+# results file names ``workbench run --out`` accepts (anything else is refused before running)
+RESULTS_EXTENSIONS = (".h5", ".hdf5", ".hdf")
+
 
 def add_parser(subparsers):
     p = subparsers.add_parser("run", help="run a study file headless and write a results file (HDF5)",
@@ -85,17 +88,23 @@ class _Progress:
 def run(args) -> int:
     from ..errors import WorkbenchError
     from ..results import check_output_path
-    from ..runner import prepare, run_study
+    from ..runner import _SCHEMES, check_out_is_not_an_input, prepare, run_study
 
     if args.workers is not None and args.workers < 1:
         raise WorkbenchError(f"--workers: expected a whole number >= 1, got {args.workers}")
     if args.in_process and args.scheduler:
         raise WorkbenchError("--in-process and --scheduler: choose one")
+    if args.scheduler and args.scheduler != "local" and not str(args.scheduler).startswith(_SCHEMES):
+        raise WorkbenchError(f"--scheduler {args.scheduler}: expected 'local' or an address like tcp://host:8786")
     out = args.out
     if out is None:
         out = os.path.splitext(os.path.basename(args.study))[0] + ".h5"
+    if os.path.splitext(out)[1].lower() not in RESULTS_EXTENSIONS:
+        raise WorkbenchError(f"--out {out}: a results file is HDF5; expected a name ending in .h5 "
+                             f"(or .hdf5), got {os.path.splitext(out)[1] or 'no extension'}")
     out = check_output_path(out)
     prep = prepare(args.study)  # reads and checks the study, arm and cell files
+    check_out_is_not_an_input(out, prep.plan.spec)
     if args.scheduler:
         executor = "dask"
     elif args.in_process:

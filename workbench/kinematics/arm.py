@@ -102,7 +102,11 @@ class Arm:
         return self.model.joint_index(s)
 
     def _prep(self, q):
-        q = np.asarray(q, dtype=float)
+        try:
+            q = np.asarray(q, dtype=float)
+        except (TypeError, ValueError):
+            raise ArmError(f"q: expected numbers shaped (..., {self.model.n}) (rad / m) for arm "
+                           f"{self.model.name!r}, got {type(q).__name__} with values that are not numbers") from None
         if q.ndim == 0 or q.shape[-1] != self.model.n:
             raise ArmError(f"q: expected joint values shaped (..., {self.model.n}) for arm "
                            f"{self.model.name!r}, got shape {q.shape}")

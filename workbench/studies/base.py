@@ -52,7 +52,7 @@ from ..errors import WorkbenchError
 __all__ = [
     "StudyError", "Axis", "Field", "Chunk", "Plan", "Table", "Estimate", "StudyKind",
     "KINDS", "register_kind", "get_kind", "kind_names", "split_chunks", "block_rng",
-    "calibrate", "DEFAULT_CHUNK_CELLS", "RNG_BLOCK",
+    "calibrate", "DEFAULT_CHUNK_CELLS", "RNG_BLOCK", "MAX_SEEDS",
 ]
 
 #: default number of grid cells per chunk before the runner calibrates (it re-chunks to ~0.25 s)
@@ -60,6 +60,9 @@ DEFAULT_CHUNK_CELLS = 16384
 #: random kinds draw their samples in blocks of this many cells, each block from its own generator
 #: seeded by (seed, block index), so the values do not depend on how the grid is chunked
 RNG_BLOCK = 4096
+#: IK seeds per target that a study setting may ask for (every kind: more only multiplies the run
+#: time; a million seeds would run for hours before anything is written)
+MAX_SEEDS = 64
 
 
 class StudyError(WorkbenchError):

@@ -530,6 +530,9 @@ def parse_cell_text(text: str, source_name: str = "<cell>") -> Cell:
                     raise ctx.err(f"missing key 'step' (grid step, {unit})", "mount")
                 step = _num(ctx, m[skey], "mount", None, skey, positive=True)
                 n = int(math.floor((r[1] - r[0]) / step + 1e-9)) + 1
+                if n > MAX_MOUNT_CANDIDATES:  # refuse before allocating the axis
+                    raise ctx.err(f"{n} grid values along {ax}; at most {MAX_MOUNT_CANDIDATES} candidates "
+                                  f"in all (use a coarser step or a smaller range)", "mount", None, skey)
                 vals = r[0] + step * np.arange(n)
             else:
                 vals = r[:1]

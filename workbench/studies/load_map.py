@@ -38,7 +38,7 @@ from typing import Mapping
 import numpy as np
 
 from ..arm.transforms import inverse_transform, make_transform
-from .base import Axis, Field, Plan, StudyError, StudyKind, Table
+from .base import MAX_SEEDS, Axis, Field, Plan, StudyError, StudyKind, Table
 
 __all__ = ["LoadMap", "LoadSettings", "payload_of_poses", "check_masses"]
 
@@ -151,8 +151,8 @@ def _validate(settings: Mapping, arm, cell, where: str) -> LoadSettings:
             if r[1] < r[0]:
                 raise StudyError(f"{where} {key}: empty range: {r[0]:g} > {r[1]:g}")
         at = settings.get("at", 0.0)
-        if isinstance(at, bool) or not isinstance(at, (int, float)):
-            raise StudyError(f"{where} at: expected a number (m), got {at!r}")
+        if isinstance(at, bool) or not isinstance(at, (int, float)) or not math.isfinite(at):
+            raise StudyError(f"{where} at: expected a finite number (m), got {at!r}")
         step = settings.get("step", 0.05)
         if isinstance(step, bool) or not isinstance(step, (int, float)) or not step > 0:
             raise StudyError(f"{where} step: expected a positive number (m), got {step!r}")
@@ -173,8 +173,8 @@ def _validate(settings: Mapping, arm, cell, where: str) -> LoadSettings:
                 raise StudyError(f"{where} axis: expected a direction, got {ax.tolist()!r}")
             R = _tool_z_frame(ax)
         seeds = settings.get("seeds", 8)
-        if isinstance(seeds, bool) or not isinstance(seeds, int) or seeds < 1:
-            raise StudyError(f"{where} seeds: expected an integer >= 1, got {seeds!r}")
+        if isinstance(seeds, bool) or not isinstance(seeds, int) or not 1 <= seeds <= MAX_SEEDS:
+            raise StudyError(f"{where} seeds: expected an integer from 1 to {MAX_SEEDS}, got {seeds!r}")
         out.update(plane=plane, u=tuple(u), v=tuple(v), at=float(at), step=float(step), orientation=rule,
                    rotation=R, seeds=seeds)
     return LoadSettings(**out)

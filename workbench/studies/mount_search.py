@@ -32,7 +32,7 @@ from typing import Mapping
 
 import numpy as np
 
-from .base import Axis, Field, Plan, StudyError, StudyKind, Table
+from .base import MAX_SEEDS, Axis, Field, Plan, StudyError, StudyKind, Table
 from .cell import WorkPoint, candidate_grid, mount_transforms, relative_targets
 
 __all__ = ["MountSearch", "MountSettings", "evaluate_mounts", "score_candidates", "score_formula",
@@ -196,15 +196,17 @@ def _validate(settings: Mapping, arm, where: str) -> MountSettings:
     try:
         parse_rows(rows)
     except Exception as exc:
-        raise StudyError(f"{where} rows: {exc}") from None
+        msg = str(exc)  # parse_rows's messages start with "rows:" already
+        raise StudyError(f"{where} {msg if msg.startswith('rows:') else 'rows: ' + msg}") from None
     out["rows"] = rows if isinstance(rows, str) else tuple(rows)
     if "length" in settings:
         out["length"] = _pos(settings["length"], where, "length")
-    for key, lo in (("seeds", 1), ("refine", 0), ("refine_evaluations", 10)):
+    for key, lo, hi in (("seeds", 1, MAX_SEEDS), ("refine", 0, None), ("refine_evaluations", 10, None)):
         if key in settings:
             v = settings[key]
-            if isinstance(v, bool) or not isinstance(v, int) or v < lo:
-                raise StudyError(f"{where} {key}: expected an integer >= {lo}, got {v!r}")
+            if isinstance(v, bool) or not isinstance(v, int) or v < lo or (hi is not None and v > hi):
+                expected = f"from {lo} to {hi}" if hi is not None else f">= {lo}"
+                raise StudyError(f"{where} {key}: expected an integer {expected}, got {v!r}")
             out[key] = v
     for key in ("reach_power", "measure_power", "margin_power"):
         if key in settings:

@@ -29,7 +29,7 @@ import numpy as np
 
 from ..arm.transforms import inverse_transform, make_transform
 from ..measures import NEAR_SINGULAR as _NEAR_DEFAULT
-from .base import Axis, Field, Plan, StudyError, StudyKind, Table
+from .base import MAX_SEEDS, Axis, Field, Plan, StudyError, StudyKind, Table
 from .cell import sample_path
 
 __all__ = ["PathAudit", "PathSettings", "track_path", "joint_speeds", "task_rows_matrix", "audit_samples",
@@ -102,14 +102,15 @@ def _validate(settings: Mapping, arm, cell, where: str) -> PathSettings:
         out["jump"] = float(v) * _DEG
     if "seeds" in settings:
         v = settings["seeds"]
-        if isinstance(v, bool) or not isinstance(v, int) or v < 1:
-            raise StudyError(f"{where} seeds: expected an integer >= 1, got {v!r}")
+        if isinstance(v, bool) or not isinstance(v, int) or not 1 <= v <= MAX_SEEDS:
+            raise StudyError(f"{where} seeds: expected an integer from 1 to {MAX_SEEDS}, got {v!r}")
         out["seeds"] = v
     rows = settings.get("rows", "full")
     try:
         parse_rows(rows)
     except Exception as exc:
-        raise StudyError(f"{where} rows: {exc}") from None
+        msg = str(exc)  # parse_rows's messages start with "rows:" already
+        raise StudyError(f"{where} {msg if msg.startswith('rows:') else 'rows: ' + msg}") from None
     out["rows"] = rows if isinstance(rows, str) else tuple(rows)
     mount = None
     if "mount_xyz" in settings or "mount_rpy" in settings:
@@ -117,8 +118,9 @@ def _validate(settings: Mapping, arm, cell, where: str) -> PathSettings:
         rpy = settings.get("mount_rpy", [0, 0, 0])
         for key, v in (("mount_xyz", xyz), ("mount_rpy", rpy)):
             if (not isinstance(v, list) or len(v) != 3
-                    or not all(isinstance(x, (int, float)) and not isinstance(x, bool) for x in v)):
-                raise StudyError(f"{where} {key}: expected a list of 3 numbers (m / deg), got {v!r}")
+                    or not all(isinstance(x, (int, float)) and not isinstance(x, bool) and math.isfinite(x)
+                               for x in v)):
+                raise StudyError(f"{where} {key}: expected a list of 3 finite numbers (m / deg), got {v!r}")
         mount = make_transform(np.array(xyz, float), np.array(rpy, float) * _DEG)
     out["mount"] = mount
     return PathSettings(**out)

@@ -1,0 +1,232 @@
+"""A first-time user's pass over the command line and the Python API: each test pins a problem that
+was found by following the README and feeding every command bad input (and failed before its fix).
+
+Bad input must give exit status 2 and one line ``error: ...`` naming what, where and what is
+expected; nothing may be written (no output file, no temporary file) and no input destroyed.
+"""
+from __future__ import annotations
+
+import concurrent.futures as cf
+import multiprocessing as mp
+import os
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+from workbench import load_arm, measures
+from workbench.cli import main
+from workbench.errors import WorkbenchError
+from workbench.measures import force_ellipsoid
+from workbench.results import export_csv, export_png, read_results
+from workbench.runner import RunError, prepare, run_study
+from workbench.studies.base import StudyError
+from workbench.studies.cell import CellFileError, parse_cell_text
+from workbench.studies.spec import StudySpec
+
+ROOT = Path(__file__).resolve().parents[1]
+S6 = ROOT / "arms" / "demo_s6.toml"
+TRAY = ROOT / "arms" / "cells" / "tray_cell.toml"
+SMALL = 'joints = ["j2", "j3"]\nsteps = [6, 5]\n'
+
+
+def study_file(folder: Path, arm: Path = S6, name="s.toml") -> Path:
+    p = folder / name
+    p.write_text(f'[study]\nkind = "joint_sweep"\narm = "{arm}"\n\n[settings]\n{SMALL}')
+    return p
+
+
+def listing(folder: Path) -> list[str]:
+    return sorted(os.listdir(folder))
+
+
+def one_error_line(capsys) -> str:
+    err = capsys.readouterr().err
+    lines = err.splitlines()
+    assert len(lines) == 1 and lines[0].startswith("error: "), err
+    assert "Traceback" not in err
+    return lines[0]
+
+
+# ---------------------------------------------------------------------------------------------
+# workbench run
+
+
+def test_run_refuses_an_output_that_is_one_of_its_inputs(tmp_path):
+    # before the fix, run_study(out=<the study file>) overwrote the study file with HDF5
+    arm = tmp_path / "arm.toml"
+    arm.write_text(S6.read_text())
+    s = study_file(tmp_path, arm=arm)
+    before = {p: p.read_bytes() for p in (s, arm)}
+    with pytest.raises(RunError, match=r"--out .*s\.toml: is the study's study file.*expected a new results file"):
+        run_study(str(s), out=s)
+    with pytest.raises(RunError, match=r"is the study's arm file"):
+        run_study(str(s), out=str(tmp_path / "." / "arm.toml"))
+    assert {p: p.read_bytes() for p in (s, arm)} == before
+    assert listing(tmp_path) == ["arm.toml", "s.toml"]
+
+
+def test_run_out_must_be_an_h5_name_and_the_scheduler_is_checked_before_any_output(tmp_path, capsys):
+    s = study_file(tmp_path)
+    # before: --out r.txt (or the study file itself) was accepted and written as HDF5
+    assert main(["run", str(s), "--out", str(tmp_path / "r.txt")]) == 2
+    line = one_error_line(capsys)
+    assert "--out" in line and "r.txt" in line and "expected a name ending in .h5" in line and "got .txt" in line
+    assert main(["run", str(s), "--out", str(s)]) == 2
+    assert "got .toml" in one_error_line(capsys)
+    # before: the estimate line was printed first, so stderr had two lines
+    assert main(["run", str(s), "--out", str(tmp_path / "r.h5"), "--scheduler", "foo"]) == 2
+    assert "--scheduler foo: expected 'local' or an address like tcp://host:8786" in one_error_line(capsys)
+    assert listing(tmp_path) == ["s.toml"]
+
+
+def test_a_dead_worker_pool_is_one_clear_error_and_leaves_no_file(tmp_path):
+    # before: concurrent.futures BrokenProcessPool escaped with a traceback (e.g. a script starting
+    # processes without the __main__ guard); a pool whose workers exit at once stands in for that
+    methods = mp.get_all_start_methods()
+    ctx = mp.get_context("forkserver" if "forkserver" in methods else "spawn")
+    pool = cf.ProcessPoolExecutor(max_workers=1, mp_context=ctx, initializer=os._exit, initargs=(3,))
+    try:
+        with pytest.raises(RunError, match=r"worker processes: a worker stopped .*__main__"):
+            run_study(str(study_file(tmp_path)), out=tmp_path / "r.h5", executor="processes", pool=pool)
+    finally:
+        pool.shutdown(wait=False, cancel_futures=True)
+    assert listing(tmp_path) == ["s.toml"]
+
+
+# ---------------------------------------------------------------------------------------------
+# workbench export
+
+
+@pytest.fixture(scope="module")
+def results_file(tmp_path_factory):
+    folder = tmp_path_factory.mktemp("res")
+    run_study(StudySpec("joint_sweep", str(S6), settings={"joints": ["j2", "j3"], "steps": [6, 5]}),
+              out=folder / "r.h5")
+    return folder / "r.h5"
+
+
+def test_export_checks_every_output_before_writing_any(results_file, tmp_path, capsys):
+    r = str(results_file)
+    good = results_file.read_bytes()
+    cases = [
+        # before: a PNG went to any name, including the results file itself (destroying it)
+        (["--png", r], "--png " + r + ": expected a file name ending in .png, got .h5"),
+        (["--csv", r], "expected a file name ending in .csv, got .h5"),
+        (["--png", str(tmp_path / "map.txt")], "--png"),
+        (["--csv", str(tmp_path / "map.png")], "--csv"),
+        # before: the message named the temporary file ('/proc/.x.png.123.partial No such file')
+        (["--png", "/proc/x.png"], "--png /proc/x.png: cannot create files in /proc"),
+        # before: the PNG was written, then the CSV failed (two lines, a half-done export)
+        (["--png", str(tmp_path / "m.png"), "--csv", "/proc/x.csv"], "--csv /proc/x.csv: cannot create files"),
+        (["--png", str(tmp_path / "m.png"), "--csv", str(tmp_path / "p.csv"), "--table", "nope"],
+         "--table nope: no such table"),
+        (["--png", str(tmp_path / "m.png"), "--csv", str(tmp_path / "p.csv"), "--measure", "nope"],
+         "--measure nope: not a map of these results"),
+    ]
+    for extra, expected in cases:
+        assert main(["export", r, *extra]) == 2, extra
+        assert expected in one_error_line(capsys), extra
+    assert listing(tmp_path) == []
+    assert results_file.read_bytes() == good
+    read_results(results_file)  # still a results file
+
+
+def test_export_functions_refuse_the_results_file_itself(tmp_path):
+    # a results file whose name ends in .png: the exports must not write over it
+    res = run_study(StudySpec("joint_sweep", str(S6), settings={"joints": ["j2"], "steps": [4]}),
+                    out=tmp_path / "r.png")
+    before = (tmp_path / "r.png").read_bytes()
+    with pytest.raises(WorkbenchError, match=r"--png .*r\.png: is the results file being exported"):
+        export_png(res, tmp_path / "r.png")
+    assert (tmp_path / "r.png").read_bytes() == before
+    assert export_csv(res, tmp_path / "cells.csv", table="cells") == 4
+    assert listing(tmp_path) == ["cells.csv", "r.png"]
+
+
+# ---------------------------------------------------------------------------------------------
+# workbench report
+
+
+def test_report_to_an_unwritable_folder_and_the_mode_of_written_reports(results_file, tmp_path, capsys):
+    for out in ("/proc/r.pdf", "/proc/r.html"):
+        assert main(["report", str(results_file), "--out", out]) == 2
+        # before: 'error: /proc/.~report1v3cnf0b.pdf No such file or directory'
+        assert f"--out {out}: cannot create files in /proc" in one_error_line(capsys)
+    # before: reports came out as 0600 (and the image folder 0700), unlike every other output
+    mask = os.umask(0o022)
+    try:
+        assert main(["report", str(results_file), "--out", str(tmp_path / "r.html")]) == 0
+    finally:
+        os.umask(mask)
+    assert (tmp_path / "r.html").stat().st_mode & 0o777 == 0o644
+    assert (tmp_path / "r_files").stat().st_mode & 0o777 == 0o755
+    assert listing(tmp_path) == ["r.html", "r_files"]
+
+
+# ---------------------------------------------------------------------------------------------
+# study and cell files
+
+
+def test_a_huge_mount_region_is_refused_before_allocating_it():
+    text = TRAY.read_text().replace("x = [0.0, 1.0]", "x = [0, 1e9]", 1)
+    # before: MemoryError (numpy tried to allocate a 2e10-value axis)
+    with pytest.raises(CellFileError, match=r"\[mount\] 'step' \(line \d+\): 20000000001 grid values along x; "
+                                            r"at most 2000000"):
+        parse_cell_text(text, "tray_cell.toml")
+
+
+@pytest.mark.parametrize("kind, settings, message", [
+    # before: accepted, then ran for hours (a million IK seeds per target)
+    ("mount_search", {"seeds": 1_000_000}, r"\[settings\] seeds: expected an integer from 1 to 64, got 1000000"),
+    ("path_audit", {"seeds": 65}, r"\[settings\] seeds: expected an integer from 1 to 64, got 65"),
+    ("load_map", {"grid": "plane", "seeds": 100}, r"\[settings\] seeds: expected an integer from 1 to 64, got 100"),
+    # before: 'T_goal: target poses contain NaN or infinite values' (no file, no key)
+    ("path_audit", {"mount_xyz": [float("nan"), 0, 0]}, r"\[settings\] mount_xyz: expected a list of 3 finite"),
+    ("load_map", {"grid": "plane", "at": float("nan")}, r"\[settings\] at: expected a finite number \(m\), got nan"),
+    # before: '[settings] rows: rows: unknown row'
+    ("mount_search", {"rows": "nope"}, r"\[settings\] rows: unknown row 'nope'"),
+    ("path_audit", {"rows": "nope"}, r"\[settings\] rows: unknown row 'nope'"),
+])
+def test_cell_study_settings_name_the_key(kind, settings, message):
+    spec = StudySpec(kind, str(S6), cell=str(TRAY), settings=settings)
+    with pytest.raises(StudyError, match=message) as exc:
+        prepare(spec)
+    assert "rows: rows:" not in str(exc.value) and "\n" not in str(exc.value)
+
+
+# ---------------------------------------------------------------------------------------------
+# Python API
+
+
+def test_api_bad_arguments_name_the_parameter_and_shape():
+    arm = load_arm(S6)
+    # before: TypeError 'expected str, bytes or os.PathLike object, not NoneType'
+    with pytest.raises(WorkbenchError, match=r"path: expected an arm file path \(.toml or .urdf\), got NoneType"):
+        load_arm(None)
+    # before: "could not convert string to float: np.str_('a')" (no parameter named)
+    with pytest.raises(WorkbenchError, match=r"q: expected numbers shaped \(\.\.\., 6\)"):
+        arm.fk(["a"] * 6)
+    # before: 'cannot reshape array of size 0 into shape (6,0)'
+    with pytest.raises(WorkbenchError, match=r"J: expected Jacobians shaped \(\.\.\., 6, n\) with n >= 1 joints, "
+                                             r"got shape \(6, 0\)"):
+        measures(np.zeros((6, 0)))
+    with pytest.raises(ValueError, match=r"J: .*got shape \(5, 6\)"):  # WorkbenchError is a ValueError
+        measures(np.zeros((5, 6)))
+    f = force_ellipsoid(arm.jacobian(np.deg2rad([0, -90, 90, 0, 45, 0])))
+    # before: a numpy broadcasting error / a divide warning and NaN
+    with pytest.raises(WorkbenchError, match=r"d: expected direction\(s\) shaped \(\.\.\., 3\).*got shape \(2,\)"):
+        f.radius_along([0, 0])
+    with pytest.raises(WorkbenchError, match=r"d: expected non-zero, finite direction"):
+        f.radius_along([0, 0, 0])
+    # a good direction still gives the extent: along an axis of the ellipsoid it is that radius
+    # (common practice: the extent of x^T A^-2 x = 1 along a principal axis is its semi-axis)
+    axis = f.directions[:, 0]
+    assert f.radius_along(axis) == pytest.approx(f.radii[0], rel=1e-12)
+
+
+def test_info_says_what_the_reach_sample_holds(capsys):
+    assert main(["info", str(S6)]) == 0
+    out = capsys.readouterr().out
+    # before: 'largest over 20001 random in-limit poses' (20 000 random ones plus the home pose)
+    assert "(largest over 20000 random in-limit poses and the home pose)" in out
