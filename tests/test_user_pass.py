@@ -144,6 +144,31 @@ def test_export_functions_refuse_the_results_file_itself(tmp_path):
     assert listing(tmp_path) == ["cells.csv", "r.png"]
 
 
+def test_a_damaged_results_file_is_one_error_line(results_file, tmp_path, capsys):
+    import shutil
+
+    import h5py
+
+    # our format attribute but parts missing or wrong: before, KeyError / ValueError tracebacks
+    damage = {
+        "no_grid_shape.h5": lambda h: h.attrs.__delitem__("grid_shape"),
+        "no_field.h5": lambda h: h["fields"].__delitem__("min_sv"),
+        "wrong_shape.h5": lambda h: h.attrs.__setitem__("grid_shape", np.array([7, 7])),
+        "no_chunks.h5": lambda h: h.__delitem__("chunks"),
+    }
+    for name, hurt in damage.items():
+        shutil.copy(results_file, tmp_path / name)
+        with h5py.File(tmp_path / name, "a") as h:
+            hurt(h)
+    for name in damage:
+        for argv in (["export", str(tmp_path / name), "--png", str(tmp_path / "m.png")],
+                     ["report", str(tmp_path / name), "--out", str(tmp_path / "r.pdf")]):
+            assert main(argv) == 2, argv
+            line = one_error_line(capsys)
+            assert f"{name}: damaged results file (" in line and "expected the layout of results schema" in line
+    assert listing(tmp_path) == sorted(damage)
+
+
 # ---------------------------------------------------------------------------------------------
 # workbench report
 

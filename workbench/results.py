@@ -507,6 +507,19 @@ def read_results(path, load: bool = True) -> Results:
         h = h5py.File(path, "r")
     except OSError:
         raise ResultsError(f"{path}: not an HDF5 results file") from None
+    try:
+        return _read_open(h, path, load)
+    except ResultsError:
+        raise
+    except (KeyError, ValueError, TypeError, IndexError, AttributeError, OSError) as exc:
+        detail = " ".join(str(exc.args[0] if isinstance(exc, KeyError) and exc.args else exc).split())
+        raise ResultsError(f"{path}: damaged results file ({detail}); expected the layout of results schema "
+                           f"version {SCHEMA_VERSION}; run the study again") from None
+
+
+def _read_open(h, path, load):
+    import h5py
+
     with h:
         if _attr(h.attrs.get("format")) != FORMAT:
             raise ResultsError(f"{path}: not a workbench results file (no format attribute {FORMAT!r})")
