@@ -80,6 +80,18 @@ def test_run_out_must_be_an_h5_name_and_the_scheduler_is_checked_before_any_outp
     assert listing(tmp_path) == ["s.toml"]
 
 
+def test_run_refuses_a_fork_bomb_of_workers(tmp_path, capsys):
+    s = study_file(tmp_path)
+    cores = len(os.sched_getaffinity(0)) if hasattr(os, "sched_getaffinity") else os.cpu_count()
+    # before: --workers 1000 was accepted and started up to 1000 worker processes
+    assert main(["run", str(s), "--out", str(tmp_path / "r.h5"), "--workers", "1000"]) == 2
+    assert (f"--workers: 1000 local worker processes on {cores} core(s); expected at most {4 * cores}"
+            in one_error_line(capsys))
+    with pytest.raises(RunError, match="--workers: expected a whole number >= 1, got True"):
+        run_study(str(s), workers=True)
+    assert listing(tmp_path) == ["s.toml"]
+
+
 def test_a_dead_worker_pool_is_one_clear_error_and_leaves_no_file(tmp_path):
     # before: concurrent.futures BrokenProcessPool escaped with a traceback (e.g. a script starting
     # processes without the __main__ guard); a pool whose workers exit at once stands in for that
@@ -251,6 +263,9 @@ def test_api_bad_arguments_name_the_parameter_and_shape():
 
 
 def test_info_says_what_the_reach_sample_holds(capsys):
+    # before: numpy's 'expected non-negative integer' traceback
+    assert main(["info", str(S6), "--seed", "-1"]) == 2
+    assert "--seed: expected a whole number >= 0, got -1" in one_error_line(capsys)
     assert main(["info", str(S6)]) == 0
     out = capsys.readouterr().out
     # before: 'largest over 20001 random in-limit poses' (20 000 random ones plus the home pose)

@@ -41,6 +41,8 @@ __all__ = ["run_study", "prepare", "Prepared", "RunError", "EXECUTORS", "bench_s
 EXECUTORS = ("inprocess", "processes", "dask")
 #: with executor="auto", runs estimated below this many seconds stay in-process
 AUTO_INPROCESS_S = 3.0
+#: at most this many local worker processes per core (more only add memory and start-up time)
+MAX_WORKERS_PER_CORE = 4
 _SCHEMES = ("tcp://", "tls://", "inproc://", "ws://", "wss://", "ucx://")
 #: results larger than this are not read back into memory after a streamed run (lazy instead)
 READ_BACK_BYTES = 512 << 20
@@ -140,6 +142,19 @@ def _fmt_bytes(b):
     from .studies.base import _fmt_bytes as f
 
     return f(b)
+
+
+def check_workers(workers, scheduler=None, pool=None) -> None:
+    """Refuse a worker count that is not a whole number >= 1, or more local worker processes than
+    ``MAX_WORKERS_PER_CORE`` per core (each is a process with its own memory). A remote Dask
+    scheduler or a given ``pool`` decides its own size."""
+    if workers is None:
+        return
+    if isinstance(workers, bool) or not isinstance(workers, (int, np.integer)) or workers < 1:
+        raise RunError(f"--workers: expected a whole number >= 1, got {workers!r}")
+    if pool is None and scheduler in (None, "local") and workers > MAX_WORKERS_PER_CORE * _cores():
+        raise RunError(f"--workers: {workers} local worker processes on {_cores()} core(s); expected at most "
+                       f"{MAX_WORKERS_PER_CORE * _cores()} ({MAX_WORKERS_PER_CORE} per core)")
 
 
 def check_out_is_not_an_input(out, spec) -> None:
@@ -258,8 +273,7 @@ def run_study(study, out=None, executor="inprocess", workers=None, scheduler=Non
         executor = "dask"
     if executor not in EXECUTORS + ("auto",):
         raise RunError(f"executor: expected one of {', '.join(EXECUTORS)}, got {executor!r}")
-    if workers is not None and (not isinstance(workers, (int, np.integer)) or workers < 1):
-        raise RunError(f"--workers: expected a whole number >= 1, got {workers!r}")
+    check_workers(workers, scheduler, pool)
     if scheduler is not None and scheduler != "local" and not str(scheduler).startswith(_SCHEMES):
         raise RunError(f"--scheduler {scheduler}: expected 'local' or an address like tcp://host:8786")
     if out is not None:

@@ -107,6 +107,8 @@ def add_parser(subparsers):
 def run(args) -> int:
     if not 1 <= args.samples <= 10_000_000:
         raise WorkbenchError(f"--samples: expected a count between 1 and 10000000, got {args.samples}")
+    if args.seed < 0:
+        raise WorkbenchError(f"--seed: expected a whole number >= 0, got {args.seed}")
     arm = load(args)
     info = summarise(arm, samples=args.samples, seed=args.seed)
     if args.json:

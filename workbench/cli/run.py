@@ -88,10 +88,9 @@ class _Progress:
 def run(args) -> int:
     from ..errors import WorkbenchError
     from ..results import check_output_path
-    from ..runner import _SCHEMES, check_out_is_not_an_input, prepare, run_study
+    from ..runner import _SCHEMES, check_out_is_not_an_input, check_workers, prepare, run_study
 
-    if args.workers is not None and args.workers < 1:
-        raise WorkbenchError(f"--workers: expected a whole number >= 1, got {args.workers}")
+    check_workers(args.workers, args.scheduler)
     if args.in_process and args.scheduler:
         raise WorkbenchError("--in-process and --scheduler: choose one")
     if args.scheduler and args.scheduler != "local" and not str(args.scheduler).startswith(_SCHEMES):
