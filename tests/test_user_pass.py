@@ -201,6 +201,22 @@ def test_report_to_an_unwritable_folder_and_the_mode_of_written_reports(results_
     assert listing(tmp_path) == ["r.html", "r_files"]
 
 
+def test_an_html_report_never_replaces_a_folder_of_other_files(results_file, tmp_path, capsys):
+    import shutil
+
+    # before: 'report files/r.h5 --out r.html' deleted the folder r_files with the results file in it
+    (tmp_path / "r_files").mkdir()
+    shutil.copy(results_file, tmp_path / "r_files" / "r.h5")
+    assert main(["report", str(tmp_path / "r_files" / "r.h5"), "--out", str(tmp_path / "r.html")]) == 2
+    assert "r_files holds other files (r.h5) and the report would replace it" in one_error_line(capsys)
+    assert read_results(tmp_path / "r_files" / "r.h5").cells == 30
+    # before: the message named a temporary folder ('.~y_filesrefrmw4y Not a directory')
+    (tmp_path / "y_files").write_text("notes")
+    assert main(["report", str(results_file), "--out", str(tmp_path / "y.html")]) == 2
+    assert "y_files exists and is not a folder" in one_error_line(capsys)
+    assert listing(tmp_path) == ["r_files", "y_files"] and (tmp_path / "y_files").read_text() == "notes"
+
+
 # ---------------------------------------------------------------------------------------------
 # study and cell files
 

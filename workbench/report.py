@@ -15,6 +15,7 @@ import hashlib
 import html
 import math
 import os
+import re
 import shutil
 import tempfile
 import textwrap
@@ -670,6 +671,10 @@ background:#fff6ea}dl{display:grid;grid-template-columns:14em auto}dt{font-weigh
 font-family:monospace;word-break:break-all}"""
 
 
+#: the files an HTML report puts in its ``<name>_files`` folder
+_REPORT_IMAGE = re.compile(r"figure_\d+\.png")
+
+
 def _usual_mode(path: str, folder: bool = False) -> None:
     """Give a file made by ``tempfile`` (mode 0600 / 0700) the mode a plain ``open`` would have
     (0666 / 0777 less the umask), so a report is readable like any other file the user writes."""
@@ -786,6 +791,17 @@ def write_report(results, out) -> str:
         os.unlink(probe)
     except OSError as exc:
         raise ReportError(f"--out {out}: cannot create files in {folder} ({exc.strerror})") from None
+    if ext != ".pdf":  # the HTML page replaces its image folder: never one that holds anything else
+        img_dir = os.path.join(folder, os.path.splitext(os.path.basename(out))[0] + "_files")
+        if os.path.lexists(img_dir) and (os.path.islink(img_dir) or not os.path.isdir(img_dir)):
+            raise ReportError(f"--out {out}: {img_dir} exists and is not a folder; the HTML report keeps its "
+                              f"images in that folder; expected another report name")
+        if os.path.isdir(img_dir):
+            other = sorted(n for n in os.listdir(img_dir) if not _REPORT_IMAGE.fullmatch(n))
+            if other:
+                raise ReportError(f"--out {out}: the image folder {img_dir} holds other files ({other[0]}"
+                                  f"{', ...' if len(other) > 1 else ''}) and the report would replace it; "
+                                  f"expected another report name")
     if isinstance(results, (str, os.PathLike)):
         results = read_results(results)
     if not results.arrays:
