@@ -237,6 +237,8 @@ def test_a_huge_mount_region_is_refused_before_allocating_it():
     # before: 'T_goal: target poses contain NaN or infinite values' (no file, no key)
     ("path_audit", {"mount_xyz": [float("nan"), 0, 0]}, r"\[settings\] mount_xyz: expected a list of 3 finite"),
     ("load_map", {"grid": "plane", "at": float("nan")}, r"\[settings\] at: expected a finite number \(m\), got nan"),
+    # before: 'step' was silently ignored when 'steps' was given too
+    ("reach_slice", {"steps": [5, 5], "step": 0}, r"\[settings\] step: give either 'step' .* or 'steps' .*not both"),
     # before: '[settings] rows: rows: unknown row'
     ("mount_search", {"rows": "nope"}, r"\[settings\] rows: unknown row 'nope'"),
     ("path_audit", {"rows": "nope"}, r"\[settings\] rows: unknown row 'nope'"),

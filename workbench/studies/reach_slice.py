@@ -169,6 +169,9 @@ def _range(settings, where, key, default):
 
 
 def _grid_values(settings, where, ranges, names):
+    if "steps" in settings and "step" in settings:  # one would be silently ignored
+        raise _err(where, "step", f"give either 'step' (grid step in m) or 'steps' (points per axis), not both; "
+                                  f"got step = {settings['step']!r} and steps = {settings['steps']!r}")
     if "steps" in settings:
         st = settings["steps"]
         if (not isinstance(st, list) or len(st) != len(ranges)
