@@ -280,6 +280,26 @@ def test_api_bad_arguments_name_the_parameter_and_shape():
     assert f.radius_along(axis) == pytest.approx(f.radii[0], rel=1e-12)
 
 
+def test_api_refuses_nan_poses_non_rigid_targets_and_non_paths():
+    from workbench.kinematics.ik import IKError
+    from workbench.measures import explain_singularity
+
+    arm = load_arm(S6)
+    # before: numpy's LinAlgError 'SVD did not converge' (no parameter named)
+    with pytest.raises(WorkbenchError, match=r"q: expected 6 finite joint values \(rad / m\), got \[nan"):
+        explain_singularity(arm, np.full(6, np.nan))
+    # before: a scaled matrix was taken as a target and "solved" (status 1, garbage q)
+    T = arm.fk(np.deg2rad([0, -90, 90, 0, 45, 0]))
+    bad = np.stack([T, T * 2.0])
+    with pytest.raises(IKError, match=r"T_goal: expected rigid poses .*\(target \(1,\)\); got rotation error 3"):
+        arm.ik(bad)
+    q, status = arm.ik(T)  # the rigid one still solves: FK of the answer is the target
+    assert int(status) == 0 and np.allclose(arm.fk(q), T, atol=1e-6)
+    # before: TypeError from os.fspath
+    with pytest.raises(WorkbenchError, match=r"path: expected a results file path \(.h5\), got NoneType"):
+        read_results(None)
+
+
 def test_info_says_what_the_reach_sample_holds(capsys):
     # before: numpy's 'expected non-negative integer' traceback
     assert main(["info", str(S6), "--seed", "-1"]) == 2

@@ -508,6 +508,8 @@ def singularity_note(arm, q, frame="tcp", rows="full", length=None, threshold=NE
     q = np.asarray(q, dtype=float)
     if q.shape != (m_.n,):
         raise WorkbenchError(f"q: explain one pose at a time; expected {m_.n} joint values, got shape {q.shape}")
+    if not np.all(np.isfinite(q)):
+        raise WorkbenchError(f"q: expected {m_.n} finite joint values (rad / m), got {q.tolist()!r}")
     if not (0.0 < float(threshold) < 1.0):
         raise WorkbenchError(f"threshold: expected an inverse condition between 0 and 1, got {threshold!r}")
     if length is None:

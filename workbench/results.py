@@ -498,6 +498,8 @@ def read_results(path, load: bool = True) -> Results:
     """
     import h5py
 
+    if not isinstance(path, (str, os.PathLike)):
+        raise ResultsError(f"path: expected a results file path (.h5), got {type(path).__name__} {path!r}")
     path = os.fspath(path)
     if not os.path.exists(path):
         raise ResultsError(f"{path}: no such file")

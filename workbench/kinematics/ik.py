@@ -229,6 +229,7 @@ def solve_ik(arm, T_goal, seeds=8, orientation="fixed", q_seed=None, pos_tol=1e-
         raise IKError(f"T_goal: expected target poses shaped (..., 4, 4), got shape {G.shape}")
     if not np.all(np.isfinite(G)):
         raise IKError("T_goal: target poses contain NaN or infinite values")
+    _check_rigid(G)
     for name, v in (("pos_tol", pos_tol), ("rot_tol", rot_tol)):
         if not (np.isfinite(v) and v > 0):
             raise IKError(f"{name}: expected a positive tolerance, got {v!r}")
@@ -287,6 +288,25 @@ def solve_ik(arm, T_goal, seeds=8, orientation="fixed", q_seed=None, pos_tol=1e-
                         out_rot.reshape(shape), out_iter.reshape(shape))
     return IKResult(out_q.reshape(lead + (n,)), out_status.reshape(lead), out_pos.reshape(lead),
                     out_rot.reshape(lead), out_iter.reshape(lead))
+
+
+def _check_rigid(G: np.ndarray, tol: float = 1e-6) -> None:
+    """Refuse target "poses" that are not rigid transforms: the last row must be [0, 0, 0, 1] and
+    the rotation part orthonormal with determinant +1 (to within ``tol``), else the solver would
+    chase a target no pose can meet and report a meaningless status."""
+    flat = G.reshape(-1, 4, 4)
+    if not flat.shape[0]:
+        return
+    R = flat[:, :3, :3]
+    err_rot = np.abs(np.einsum("kji,kjl->kil", R, R) - np.eye(3)).max(axis=(1, 2))
+    err_row = np.abs(flat[:, 3, :] - np.array([0.0, 0.0, 0.0, 1.0])).max(axis=1)
+    bad = (err_rot > tol) | (err_row > tol) | (np.linalg.det(R) < 0)
+    if bad.any():
+        k = int(np.flatnonzero(bad)[0])
+        where = f" (target {tuple(int(i) for i in np.unravel_index(k, G.shape[:-2]))})" if G.ndim > 2 else ""
+        raise IKError(f"T_goal: expected rigid poses (orthonormal rotation with determinant +1, last row "
+                      f"[0, 0, 0, 1]){where}; got rotation error {err_rot[k]:.3g}, last row "
+                      f"{flat[k, 3].tolist()}")
 
 
 def target_seeds(arm, T_goal, seeds=8, orientation="fixed", rng=0) -> np.ndarray:
