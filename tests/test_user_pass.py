@@ -181,6 +181,17 @@ def test_a_damaged_results_file_is_one_error_line(results_file, tmp_path, capsys
     assert listing(tmp_path) == sorted(damage)
 
 
+def test_export_csv_defaults_to_the_pose_list_of_kinds_without_near_singular(tmp_path):
+    # before: the alphabetically first table: a reach slice gave its one-row summary ('reach'), a
+    # mount search its per-point table ('best_points') instead of the ranking
+    res = run_study(StudySpec("reach_slice", str(S6), settings={
+        "plane": "xz", "u": [0.3, 1.2], "v": [0.2, 1.0], "steps": [6, 5], "seeds": 4}))
+    assert set(res.tables) == {"reach", "worst"}
+    n = export_csv(res, tmp_path / "p.csv")
+    head = (tmp_path / "p.csv").read_text().splitlines()[0]
+    assert n == res.tables["worst"].rows > 1 and head.startswith("x [") and "inverse_condition" in head
+
+
 # ---------------------------------------------------------------------------------------------
 # workbench report
 

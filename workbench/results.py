@@ -617,16 +617,22 @@ def _replace_or_clean(tmp, final):
         raise
 
 
+#: the table ``export_csv`` writes when none is named, first present wins: the near-singular poses
+#: (joint sweep, path audit), the mount ranking, the reached points closest to a singularity (reach slice)
+DEFAULT_TABLES = ("near_singular", "ranking", "worst")
+
+
 def export_csv(results: Results, path, table: str | None = None, max_rows: int = 1_000_000) -> int:
     """Write a pose list as CSV (joint values in degrees / mm, measures); returns the row count.
 
-    ``table`` names a summary table (default: "near_singular" if present, else the first one);
+    ``table`` names a summary table (default: the first of ``DEFAULT_TABLES`` present, else the
+    first one);
     ``table="cells"`` (or a study without tables) writes every finished cell: the axis values in
     display units and every scalar field (up to ``max_rows`` rows).
     """
     final, tmp = _atomic_target(path, "--csv", results.path)
-    if table is None:
-        table = "near_singular" if "near_singular" in results.tables else next(iter(results.tables), "cells")
+    if table is None:  # the study's main pose list, not whichever table sorts first
+        table = next((t for t in DEFAULT_TABLES if t in results.tables), next(iter(results.tables), "cells"))
     if table == "cells":
         cols, units = _cell_columns(results, max_rows)
     else:

@@ -15,7 +15,8 @@ def add_parser(subparsers):
                    help="measure to draw (default: inverse_condition); see the list printed on a wrong name")
     p.add_argument("--csv", metavar="FILE", default=None, help="write a pose list")
     p.add_argument("--table", metavar="NAME", default=None,
-                   help="which pose list (default: near_singular); 'cells' writes every finished cell")
+                   help="which pose list (default: near_singular, else the mount ranking or the worst reached "
+                        "points); 'cells' writes every finished cell")
     return p
 
 
