@@ -311,6 +311,16 @@ def test_api_refuses_nan_poses_non_rigid_targets_and_non_paths():
         read_results(None)
 
 
+def test_jacobian_q_with_an_empty_value(capsys):
+    # before: '0,,90,...' dropped the empty value and complained about the count (or, with one value
+    # too many, silently shifted the rest onto the wrong joints)
+    assert main(["jacobian", str(S6), "--q", "0,,90,0,45,0,0"]) == 2
+    assert "--q: value 2 is empty in '0,,90,0,45,0,0'; expected 6 numbers" in one_error_line(capsys)
+    # comma-and-space lists as a shell splits them still work
+    assert main(["jacobian", str(S6), "--q", "0,", "-90,", "90,", "0,", "45,", "0", "--json"]) == 0
+    assert '"q": [' in capsys.readouterr().out
+
+
 def test_info_says_what_the_reach_sample_holds(capsys):
     # before: numpy's 'expected non-negative integer' traceback
     assert main(["info", str(S6), "--seed", "-1"]) == 2

@@ -48,6 +48,12 @@ def add_parser(subparsers):
 def parse_q(tokens, arm) -> np.ndarray:
     """Joint values (n,) in rad / m from display-unit tokens ("0,-90" or ["0", "-90"])."""
     m = arm.model
+    text = " ".join(str(t) for t in tokens)
+    parts = text.split(",")
+    if len(parts) > 1 and any(not p.strip() for p in parts):  # '0,,90' would silently shift the values
+        k = next(i for i, p in enumerate(parts) if not p.strip())
+        raise WorkbenchError(f"--q: value {k + 1} is empty in {text.strip()!r}; expected {m.n} numbers separated "
+                             f"by commas or spaces, in degrees (mm for prismatic joints)")
     items = [s for t in tokens for s in re.split(r"[,\s]+", str(t).strip()) if s]
     if len(items) != m.n:
         raise WorkbenchError(f"--q: got {len(items)} joint value(s); arm {m.name!r} has {m.n} joints "
