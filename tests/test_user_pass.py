@@ -80,6 +80,16 @@ def test_run_out_must_be_an_h5_name_and_the_scheduler_is_checked_before_any_outp
     assert listing(tmp_path) == ["s.toml"]
 
 
+def test_run_given_a_results_arm_or_cell_file_says_what_it_got(results_file, capsys):
+    # before: 'not UTF-8 text' for a results file and a bare 'unknown table [arm]' for an arm file
+    assert main(["run", str(results_file), "--out", "x.h5"]) == 2
+    assert "r.h5: is an HDF5 file (results?); expected a TOML text file" in one_error_line(capsys)
+    assert main(["run", str(S6), "--out", "x.h5"]) == 2
+    assert "unknown table [arm]; this looks like an arm file; expected a study file" in one_error_line(capsys)
+    assert main(["run", str(TRAY), "--out", "x.h5"]) == 2
+    assert "this looks like a cell file; expected a study file with [study] and [settings]" in one_error_line(capsys)
+
+
 def test_run_refuses_a_fork_bomb_of_workers(tmp_path, capsys):
     s = study_file(tmp_path)
     cores = len(os.sched_getaffinity(0)) if hasattr(os, "sched_getaffinity") else os.cpu_count()

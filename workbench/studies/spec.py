@@ -140,6 +140,8 @@ def read_text(path: str, what: str) -> str:
     try:
         return raw.decode("utf-8")
     except UnicodeDecodeError:
+        if raw.startswith(b"\x89HDF\r\n\x1a\n"):  # the HDF5 signature: a results file given by mistake
+            raise StudyError(f"{what}: {path}: is an HDF5 file (results?); expected a TOML text file") from None
         raise StudyError(f"{what}: {path}: not UTF-8 text") from None
 
 
@@ -167,7 +169,10 @@ def parse_study_dict(data: dict, source: str = "study", base_dir: str = ".") -> 
         raise StudyError(f"{source}: expected a TOML document with a [study] table")
     unknown = sorted(set(data) - _TOP_KEYS)
     if unknown:
-        raise StudyError(f"{source}: unknown table [{unknown[0]}]; expected [study] and [settings]")
+        looks = ("; this looks like an arm file" if {"arm", "joint"} & set(unknown) else
+                 "; this looks like a cell file" if {"cell", "point"} & set(unknown) else "")
+        raise StudyError(f"{source}: unknown table [{unknown[0]}]{looks}; expected a study file with [study] and "
+                         f"[settings]")
     study = data.get("study")
     if not isinstance(study, dict):
         raise StudyError(f"{source}: missing table [study] (with kind and arm)")
