@@ -90,6 +90,21 @@ def test_run_given_a_results_arm_or_cell_file_says_what_it_got(results_file, cap
     assert "this looks like a cell file; expected a study file with [study] and [settings]" in one_error_line(capsys)
 
 
+def test_a_failing_summary_leaves_no_temporary_file(tmp_path, monkeypatch):
+    from workbench.studies.base import get_kind
+
+    kind = get_kind("joint_sweep")
+
+    def broken(plan, arrays):
+        raise RuntimeError("summary broke")
+
+    monkeypatch.setattr(kind, "summarise", broken)
+    # before: the .r.h5.PID.partial file stayed behind, open, until a later run to the same name
+    with pytest.raises(RuntimeError, match="summary broke"):
+        run_study(str(study_file(tmp_path)), out=tmp_path / "r.h5")
+    assert listing(tmp_path) == ["s.toml"]
+
+
 def test_run_refuses_a_fork_bomb_of_workers(tmp_path, capsys):
     s = study_file(tmp_path)
     cores = len(os.sched_getaffinity(0)) if hasattr(os, "sched_getaffinity") else os.cpu_count()

@@ -351,12 +351,16 @@ def run_study(study, out=None, executor="inprocess", workers=None, scheduler=Non
         raise
     incomplete = not bool(writer.finished.all())
     tables = {}
-    if summary:
-        full = writer.full_arrays()
-        if full is not None:
-            tables = kind.summarise(plan, full)
-    elapsed = time.perf_counter() - t_start
-    res = writer.close(incomplete, tables, {"elapsed_s": float(elapsed)})
+    try:
+        if summary:
+            full = writer.full_arrays()
+            if full is not None:
+                tables = kind.summarise(plan, full)
+        elapsed = time.perf_counter() - t_start
+        res = writer.close(incomplete, tables, {"elapsed_s": float(elapsed)})
+    except BaseException:  # no temporary file left open behind a failed summary
+        writer.abort()
+        raise
     if isinstance(res, Results):
         return res
     r = read_results(res, load=plan.result_bytes <= READ_BACK_BYTES)
