@@ -265,6 +265,14 @@ def test_a_huge_mount_region_is_refused_before_allocating_it():
         parse_cell_text(text, "tray_cell.toml")
 
 
+def test_an_unknown_table_in_a_cell_file_is_called_a_table():
+    text = TRAY.read_text().replace("[placement]", "[placements]", 1)
+    # before: "tray_cell.toml 'placements': unknown key; allowed keys: box, cell, ..."
+    with pytest.raises(CellFileError, match=r"^tray_cell\.toml: unknown table or key 'placements'; allowed tables: "
+                                            r"\[\[box\]\], \[cell\], \[mount\], \[\[path\]\], \[placement\]"):
+        parse_cell_text(text, "tray_cell.toml")
+
+
 @pytest.mark.parametrize("kind, settings, message", [
     # before: accepted, then ran for hours (a million IK seeds per target)
     ("mount_search", {"seeds": 1_000_000}, r"\[settings\] seeds: expected an integer from 1 to 64, got 1000000"),

@@ -367,7 +367,10 @@ def parse_cell_text(text: str, source_name: str = "<cell>") -> Cell:
         data = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
         raise CellFileError(f"{source_name}: malformed TOML: {exc}") from None
-    _keys(ctx, data, _TOP, None)
+    unknown = sorted(set(data) - _TOP)
+    if unknown:  # a top-level name is a table (or a stray key): say so, not "unknown key"
+        tables = ", ".join(f"[{t}]" if t in ("cell", "mount", "placement") else f"[[{t}]]" for t in sorted(_TOP))
+        raise CellFileError(f"{source_name}: unknown table or key '{unknown[0]}'; allowed tables: {tables}")
     if "cell" not in data:
         raise CellFileError(f"{source_name}: missing table [cell] (with at least 'name')")
     c = data["cell"]
