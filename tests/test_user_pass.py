@@ -105,6 +105,14 @@ def test_a_failing_summary_leaves_no_temporary_file(tmp_path, monkeypatch):
     assert listing(tmp_path) == ["s.toml"]
 
 
+def test_info_given_a_cell_or_study_file_says_what_it_got(capsys):
+    # before: a bare "unknown table 'box'" / "unknown table 'settings'"
+    assert main(["info", str(TRAY)]) == 2
+    assert "unknown table 'box'; this looks like a cell file; allowed in an arm file: [arm]" in one_error_line(capsys)
+    assert main(["jacobian", str(ROOT / "arms" / "cells" / "demo_s6_sweep.toml")]) == 2
+    assert "unknown table 'settings'; this looks like a study file" in one_error_line(capsys)
+
+
 def test_run_refuses_a_fork_bomb_of_workers(tmp_path, capsys):
     s = study_file(tmp_path)
     cores = len(os.sched_getaffinity(0)) if hasattr(os, "sched_getaffinity") else os.cpu_count()

@@ -327,7 +327,10 @@ def parse_arm_dict(data: dict, source_name: str = "<arm>", text: str | None = No
         kind = "table" if isinstance(data[k], (dict, list)) else "key"
         line = ctx.loc.line(k) or ctx.loc.line(None, None, k)
         head = f"{source_name}:{line}" if line else source_name
-        raise ArmFileError(f"{head}: unknown {kind} {k!r}; allowed: [arm], [[joint]], [flange], [tool], [mount]")
+        looks = ("; this looks like a study file" if {"study", "settings"} & set(data) else
+                 "; this looks like a cell file" if {"cell", "point", "path", "box"} & set(data) else "")
+        raise ArmFileError(f"{head}: unknown {kind} {k!r}{looks}; allowed in an arm file: [arm], [[joint]], "
+                           f"[flange], [tool], [mount]")
     if "arm" not in data:
         raise top.fail("missing table [arm] (with at least 'name')")
     arm = data["arm"]
