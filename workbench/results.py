@@ -340,7 +340,9 @@ class ResultsWriter(_WriterBase):
         _remove_stale_partials(folder, base)
         self.tmp = os.path.join(folder, f".{base}.{os.getpid()}.partial")
         try:
-            self.h5 = h5py.File(self.tmp, "w")
+            # no chunk cache: every finished chunk is compressed and written at once by the writer
+            # thread (overlapping compute) instead of piling up for a long flush at close
+            self.h5 = h5py.File(self.tmp, "w", rdcc_nbytes=0)
         except OSError as exc:
             raise ResultsError(f"--out {path}: cannot create a file in {folder} ({exc})") from None
         try:
