@@ -91,6 +91,7 @@ def measures(J, rows="full", length=1.0) -> dict:
     A = np.ascontiguousarray(J.reshape((-1,) + J.shape[-2:]))
     out = np.empty((A.shape[0], len(r)))
     if A.shape[0]:
+        kernels.dynamic_schedule()
         kernels.sv_batch(A, r, scale, out)
     return measures_from_sv(out.reshape(lead + (len(r),)))
 

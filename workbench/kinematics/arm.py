@@ -125,6 +125,7 @@ class Arm:
         pre = self.model.mount if world else np.eye(4)
         out = np.empty((Q.shape[0], 4, 4))
         m = self.model
+        kernels.dynamic_schedule()
         kernels.fk_batch(Q, m.origins, m.axes, m.kinds, k, off, np.ascontiguousarray(pre), out)
         return out.reshape(lead + (4, 4))
 
@@ -134,6 +135,7 @@ class Arm:
         m = self.model
         out = np.empty((Q.shape[0], m.n, 4, 4))
         pre = self.model.mount if world else np.eye(4)
+        kernels.dynamic_schedule()
         kernels.frames_batch(Q, m.origins, m.axes, m.kinds, np.ascontiguousarray(pre), out)
         return out.reshape(lead + (m.n, 4, 4))
 
@@ -146,6 +148,7 @@ class Arm:
         k, off = self.resolve_frame(frame, point)
         m = self.model
         out = np.empty((Q.shape[0], 6, m.n))
+        kernels.dynamic_schedule()
         kernels.jacobian_batch(Q, m.origins, m.axes, m.kinds, k, off, self._rot(world), out)
         return out.reshape(lead + (6, m.n))
 
@@ -167,6 +170,7 @@ class Arm:
         scale = row_scale(tuple(r), length)
         m = self.model
         out = np.empty((Q.shape[0], len(r)))
+        kernels.dynamic_schedule()
         kernels.sv_map_batch(Q, m.origins, m.axes, m.kinds, k, off, self._rot(world), r, scale, out)
         return out.reshape(lead + (len(r),))
 

@@ -332,6 +332,22 @@ def sv_map_batch(Q, origins, axes, kinds, upto, off, R, rows, scale, out):
             _selected_sv(J, rows, scale, B, tmp, out[i])
 
 
+_THREAD_STATE = __import__("threading").local()
+
+
+def dynamic_schedule() -> None:
+    """Hand the parallel blocks out to the kernel threads dynamically (one block of 512 poses at a
+    time) instead of splitting them evenly up front. With an even split, a kernel call waits for
+    its slowest thread, so any other busy thread of the process (the results writer compressing a
+    chunk, the GUI) delays the whole call; handed out one by one, the other thread takes up the
+    slack. numba keeps this setting per calling thread, so it is set once per thread here."""
+    if not getattr(_THREAD_STATE, "dynamic", False):
+        import numba
+
+        numba.set_parallel_chunksize(1)
+        _THREAD_STATE.dynamic = True
+
+
 def warm_up() -> None:
     """Compile (or load from the on-disk cache) every kernel on a tiny batch."""
     n = 2
