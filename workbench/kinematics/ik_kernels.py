@@ -383,24 +383,6 @@ def _pose_distance(goal, T, mode, inv_len):
     return d
 
 
-@njit(cache=True, inline="always")
-def _nearest(goal, pool_T, mode, inv_len, k, best_d, best_i):
-    """Indices of the k pool poses nearest ``goal`` (ascending distance) into best_i."""
-    for a in range(k):
-        best_d[a] = np.inf
-        best_i[a] = 0
-    for t in range(pool_T.shape[0]):
-        d = _pose_distance(goal, pool_T[t], mode, inv_len)
-        if d < best_d[k - 1]:
-            a = k - 1
-            while a > 0 and best_d[a - 1] > d:
-                best_d[a] = best_d[a - 1]
-                best_i[a] = best_i[a - 1]
-                a -= 1
-            best_d[a] = d
-            best_i[a] = t
-
-
 @njit(cache=True)
 def _nearest_grid(goal, pool_T, lo, h, dims, starts, mode, inv_len, k, best_d, best_i):
     """k nearest pool poses (ascending distance) among the pool poses whose TCP lies in the grid
