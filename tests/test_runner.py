@@ -170,3 +170,42 @@ def test_runner_recuts_chunks_unless_the_kind_keeps_them():
         for k in (_WholeGridSweep.name, _OwnChunksSweep.name):
             base.KINDS.pop(k, None)
             base._INSTANCES.pop(k, None)
+
+
+class _CountingSweep(__import__("workbench.studies.joint_sweep", fromlist=["JointSweep"]).JointSweep):
+    name = "counting_sweep_test"
+    log: list = []
+
+    def compute_chunk(self, plan, arm, cell, chunk):
+        self.log.append((chunk.start, chunk.stop))
+        return super().compute_chunk(plan, arm, cell, chunk)
+
+
+def test_in_process_runs_reuse_the_calibration_cells_without_changing_a_value(tmp_path):
+    # calibration times compute_chunk on the first cells; the run must take those cells from it
+    # (not compute them twice) and give the same arrays as a run that computes every cell
+    from dataclasses import replace
+
+    from workbench.runner import prepare
+    from workbench.studies import base
+
+    base.register_kind(_CountingSweep.name, _CountingSweep)
+    try:
+        s = replace(spec(), kind=_CountingSweep.name)
+        prep = prepare(s, chunk_cells=300)
+        prep.estimate = base.calibrate(prep.kind, prep.plan, prep.arm, prep.cell, sample_cells=500)
+        assert prep.estimate.sample[0].stop == 500  # 8 -> 64 -> 500 cells, each far under 20 ms
+        _CountingSweep.log.clear()
+        reused = run_study(prep, out=tmp_path / "r.h5", chunk_cells=300)
+        assert _CountingSweep.log[:2] == [(500, 600), (600, 900)]  # chunk 0 and part of chunk 1 reused
+        assert sum(b - a for a, b in _CountingSweep.log) == 4200 - 500
+        fresh = prepare(s, chunk_cells=300)
+        fresh.estimate = replace(prep.estimate, sample=None)
+        _CountingSweep.log.clear()
+        full = run_study(fresh, chunk_cells=300)
+        assert sum(b - a for a, b in _CountingSweep.log) == 4200
+        assert_same(full, reused)
+        assert_same(full, read_results(tmp_path / "r.h5"))
+    finally:
+        base.KINDS.pop(_CountingSweep.name, None)
+        base._INSTANCES.pop(_CountingSweep.name, None)

@@ -185,3 +185,21 @@ def test_arm_and_plan_pickle(s6, kind):
     c = Chunk(0, 0, 5)
     np.testing.assert_array_equal(kind.compute_chunk(plan2, arm2, None, c)["manipulability"],
                                   kind.compute_chunk(plan, s6, None, c)["manipulability"])
+
+
+@pytest.mark.parametrize("n,k,ties,excluded", [(300_000, 50, False, False), (300_000, 50, True, False),
+                                               (200_000, 50, False, True), (70_000, 3000, True, True),
+                                               (1000, 50, True, False)])
+def test_pose_lists_pick_exactly_what_a_full_sort_picks(n, k, ties, excluded):
+    # the summary tables select the k smallest values without sorting everything; numpy's full
+    # stable sort (lexsort by value, then cell) is the reference, ties and excluded (inf) cells included
+    from workbench.studies.joint_sweep import _smallest
+
+    rng = np.random.default_rng(n + k)
+    v = rng.normal(size=n)
+    if ties:
+        v = np.round(v, 1)
+    if excluded:
+        v[rng.random(n) < 0.6] = np.inf
+    got = _smallest(v, k)
+    np.testing.assert_array_equal(got, np.lexsort((np.arange(n), v))[:k])

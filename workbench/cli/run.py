@@ -30,8 +30,9 @@ def add_parser(subparsers):
                    help="run on Dask: 'local' starts a local cluster, or tcp://host:port of a running scheduler")
     p.add_argument("--in-process", action="store_true",
                    help="compute in this process (all threads) instead of worker processes")
-    p.add_argument("--compression", choices=("lzf", "gzip"), default="lzf",
-                   help="HDF5 compression of the result arrays: lzf (fast, default) or gzip (any HDF5 tool)")
+    p.add_argument("--compression", choices=("lz4", "lzf", "gzip", "none"), default="lz4",
+                   help="HDF5 compression of the result arrays: lz4 (Blosc LZ4 + shuffle, fast, default; other "
+                        "HDF5 tools need the Blosc filter plugin), lzf, gzip (any HDF5 tool) or none")
     p.add_argument("--quiet", action="store_true", help="no progress on stderr")
     return p
 
@@ -130,7 +131,7 @@ def run(args) -> int:
         sys.stderr.write(f"study {prep.plan.spec.name!r} ({prep.kind.title}): {est.describe()}\n")
     try:
         res = run_study(prep, out=out, executor=executor, workers=args.workers, scheduler=args.scheduler,
-                        progress=bar, cancel=cancel, compression=args.compression)
+                        progress=bar, cancel=cancel, compression=None if args.compression == "none" else args.compression)
     finally:
         if old is not None:
             signal.signal(signal.SIGINT, old)

@@ -212,6 +212,9 @@ class Estimate:
     ``seconds`` is at the speed measured in the calibrating process (all its threads);
     ``result_bytes`` the raw size of every output
     array; ``chunk_bytes`` the largest chunk's arrays (what a worker holds at once).
+    ``sample`` is the last timed call's output ``(Chunk, arrays)`` on the first cells of the grid
+    (None when over :data:`SAMPLE_KEEP_BYTES`): the runner uses it instead of computing those
+    cells again.
     """
 
     cells: int
@@ -219,6 +222,7 @@ class Estimate:
     chunk_bytes: int
     seconds_per_cell: float
     seconds: float
+    sample: tuple | None = field(default=None, repr=False)
 
     def describe(self) -> str:
         return (f"{self.cells:,} cells, about {_fmt_bytes(self.result_bytes)} of results, "
@@ -460,6 +464,10 @@ def get_kind(name: str, where: str = "kind") -> StudyKind:
     return inst
 
 
+#: calibration output kept for the run to reuse when at most this big
+SAMPLE_KEEP_BYTES = 64 << 20
+
+
 def calibrate(kind: StudyKind, plan: Plan, arm, cell, sample_cells: int = 65536,
               min_seconds: float = 0.02) -> Estimate:
     """Time ``compute_chunk`` on the first cells of the grid and extrapolate.
@@ -467,7 +475,8 @@ def calibrate(kind: StudyKind, plan: Plan, arm, cell, sample_cells: int = 65536,
     A first call on 8 cells pays any compile / warm-up cost and is not used; then the sample grows
     8-fold from 8 cells until one call takes ``min_seconds`` (or reaches ``sample_cells`` or the
     grid), so calibrating costs well under a second even for slow kinds. Returns an
-    :class:`Estimate` at the speed of the calling process (all its threads).
+    :class:`Estimate` at the speed of the calling process (all its threads), with the last
+    call's output as ``sample`` (cells [0, n) of the grid; the runner does not compute them again).
     """
     cells = plan.cells
     if cells == 0:
@@ -476,15 +485,17 @@ def calibrate(kind: StudyKind, plan: Plan, arm, cell, sample_cells: int = 65536,
     n = min(cells, 8)
     while True:
         t0 = time.perf_counter()
-        kind.compute_chunk(plan, arm, cell, Chunk(0, 0, n))
+        arrays = kind.compute_chunk(plan, arm, cell, Chunk(0, 0, n))
         dt = time.perf_counter() - t0
         if dt >= min_seconds or n >= min(cells, sample_cells):
             break
         n = min(cells, sample_cells, n * 8)
     spc = dt / n
+    keep = n * plan.cell_bytes <= SAMPLE_KEEP_BYTES
     return Estimate(cells=cells, result_bytes=plan.result_bytes,
                     chunk_bytes=min(cells, plan.chunk_cells) * plan.cell_bytes,
-                    seconds_per_cell=spc, seconds=spc * cells)
+                    seconds_per_cell=spc, seconds=spc * cells,
+                    sample=(Chunk(0, 0, n), arrays) if keep else None)
 
 
 def _fmt_bytes(b: float) -> str:

@@ -411,8 +411,8 @@ class JointSweep(StudyKind):
         ok = np.isfinite(v)
         tables = {}
         k = min(count, int(ok.sum()))
-        low = _smallest(np.where(ok, v, np.inf), k)
-        low = low[v[low] < st.near_singular]
+        near = np.flatnonzero(v < st.near_singular)  # NaN compares False: finite cells only
+        low = near[_smallest(v[near], k)]
         tables["near_singular"] = self._pose_table(plan, arrays, low, f"Near-singular poses ({key} < "
                                                    f"{st.near_singular:g}), most singular first")
         high = _smallest(np.where(ok, -v, np.inf), k)
@@ -464,6 +464,13 @@ def _smallest(v: np.ndarray, k: int) -> np.ndarray:
     """Indices of the k smallest values of v, ascending (ties by index); O(N) selection."""
     if k <= 0:
         return np.empty(0, dtype=np.int64)
+    if v.size > 65536 and 32 * k < v.size:
+        # the k-th smallest of every 32nd value bounds the k-th smallest of all from above, so
+        # the cells at or below it hold every answer (and all ties): select among those only
+        t = np.partition(v[::32], k - 1)[k - 1]
+        if np.isfinite(t):
+            sub = np.flatnonzero(v <= t)
+            return sub[_smallest(v[sub], k)]
     if k < v.size:
         part = np.argpartition(v, k - 1)[:k]
         kth = v[part].max()
