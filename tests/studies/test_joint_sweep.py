@@ -203,3 +203,24 @@ def test_pose_lists_pick_exactly_what_a_full_sort_picks(n, k, ties, excluded):
         v[rng.random(n) < 0.6] = np.inf
     got = _smallest(v, k)
     np.testing.assert_array_equal(got, np.lexsort((np.arange(n), v))[:k])
+
+
+@pytest.mark.parametrize("n,k,ties,bad", [(300_000, 50, False, False), (300_000, 50, True, True),
+                                          (100_000, 50, True, True), (70_000, 3000, False, True),
+                                          (500, 50, True, True), (200_000, 10, False, "mostly")])
+def test_best_pose_list_picks_exactly_what_a_full_sort_picks(n, k, ties, bad):
+    # the k largest finite values, ties by cell: numpy's stable sort of the finite cells is the
+    # reference; NaN (unfinished cells) and +-inf must never be picked
+    from workbench.studies.joint_sweep import _largest_finite
+
+    rng = np.random.default_rng(n + k + 1)
+    v = rng.normal(size=n)
+    if ties:
+        v = np.round(v, 1)
+    if bad:
+        share = 0.97 if bad == "mostly" else 0.3
+        pick = rng.random(n) < share
+        v[pick] = rng.choice([np.nan, np.inf, -np.inf], size=int(pick.sum()))
+    fin = np.flatnonzero(np.isfinite(v))
+    ref = fin[np.lexsort((fin, -v[fin]))][:k]
+    np.testing.assert_array_equal(_largest_finite(v, k), ref)

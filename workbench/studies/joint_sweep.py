@@ -408,14 +408,13 @@ class JointSweep(StudyKind):
         key = "inverse_condition" if st.mode != "reduce" else "inverse_condition_min" \
             if "min" in st.reduce else f"inverse_condition_{st.reduce[0]}"
         v = np.asarray(arrays[key], dtype=float).reshape(-1)
-        ok = np.isfinite(v)
         tables = {}
-        k = min(count, int(ok.sum()))
+        k = min(count, int(np.count_nonzero(np.isfinite(v))))
         near = np.flatnonzero(v < st.near_singular)  # NaN compares False: finite cells only
         low = near[_smallest(v[near], k)]
         tables["near_singular"] = self._pose_table(plan, arrays, low, f"Near-singular poses ({key} < "
                                                    f"{st.near_singular:g}), most singular first")
-        high = _smallest(np.where(ok, -v, np.inf), k)
+        high = _largest_finite(v, k)
         tables["best"] = self._pose_table(plan, arrays, high, f"Best-conditioned poses (highest {key})")
         return tables
 
@@ -458,6 +457,25 @@ class JointSweep(StudyKind):
                 cols[f.name] = np.asarray(arrays[f.name]).reshape(-1)[flat_index].astype(float)
                 units[f.name] = ""
         return Table(title=title, columns=cols, units=units)
+
+
+def _largest_finite(v: np.ndarray, k: int) -> np.ndarray:
+    """Indices of the k largest finite values of v, descending (ties by index), without a
+    negated copy of v."""
+    if k <= 0:
+        return np.empty(0, dtype=np.int64)
+    if v.size > 65536 and 32 * k < v.size:
+        sub = v[::32]
+        sub = sub[np.isfinite(sub)]
+        if sub.size >= k:
+            # the k-th largest of the finite values of every 32nd cell bounds the k-th largest
+            # finite value of all from below: the cells at or above it hold every answer
+            t = np.partition(sub, sub.size - k)[sub.size - k]
+            cand = np.flatnonzero(v >= t)
+            cand = cand[np.isfinite(v[cand])]
+            return cand[_smallest(-v[cand], k)]
+    idx = np.flatnonzero(np.isfinite(v))
+    return idx[_smallest(-v[idx], k)]
 
 
 def _smallest(v: np.ndarray, k: int) -> np.ndarray:
