@@ -39,6 +39,16 @@ def test_run_and_export(tmp_path, capsys):
     assert (tmp_path / "p.csv").read_text().startswith("cell,j1 [deg]")
 
 
+def test_run_names_settings_it_ignores(tmp_path, capsys):
+    # a grid sweep does not read seed / samples: the run goes ahead and says so in one line
+    s = study(tmp_path, 'joints = ["j2"]\nsteps = [30]\nseed = 4\nsamples = 100\n')
+    assert main(["run", str(s), "--out", str(tmp_path / "r.h5"), "--in-process"]) == 0
+    err = capsys.readouterr().err
+    assert f"note: {s}: [settings] not used, ignored: seed, samples (mode is 'grid')\n" in err
+    assert main(["run", str(study(tmp_path, name="plain.toml")), "--out", str(tmp_path / "p.h5")]) == 0
+    assert "not used" not in capsys.readouterr().err
+
+
 def bad_cases(tmp_path):
     s_ok = study(tmp_path, name="ok.toml")
     return [

@@ -123,6 +123,10 @@ def test_form_flags_each_bad_value_and_run_stays_disabled(window):
     assert not window.running
     assert _set(window, steps="[11, 11]", frame="tcp", ranges="[[-140, 90], [-120, 160]]")
     assert sp.run_btn.isEnabled() and "121 cells" in sp.estimate_label.text()
+    assert "Not used" not in sp.summary.text()
+    # switching the mode leaves settings the new mode does not read: valid, and the panel says so
+    assert _set(window, mode="samples")
+    assert "Not used, ignored: joints, ranges, steps (mode is &#x27;samples&#x27;)" in sp.summary.text()
 
 
 def test_run_brush_and_pick(window, qtbot):

@@ -224,3 +224,29 @@ def test_best_pose_list_picks_exactly_what_a_full_sort_picks(n, k, ties, bad):
     fin = np.flatnonzero(np.isfinite(v))
     ref = fin[np.lexsort((fin, -v[fin]))][:k]
     np.testing.assert_array_equal(_largest_finite(v, k), ref)
+
+
+@pytest.mark.parametrize("mode,extra", [
+    ("grid", {"seed": 3, "samples": 50, "coarse_steps": 2, "reduce": ["max"], "best_by": "min_sv"}),
+    ("reduce", {"pose": [10, 20, 30, 40, 50, 60], "seed": 3, "samples": 50}),
+    ("samples", {"joints": ["j2", "j3"], "ranges": [[0, 10], [0, 10]], "steps": [3, 3], "pose": [1] * 6,
+                 "coarse_steps": 2}),
+])
+def test_settings_named_as_unused_really_change_nothing(s6, kind, mode, extra):
+    # every key reported as ignored is checked to be ignored: same arrays with and without it
+    base = {"grid": {"joints": ["j2", "j3"], "steps": [5, 4]},
+            "reduce": {"joints": ["j2", "j3"], "steps": [4, 3], "coarse_steps": 2},
+            "samples": {"samples": 40, "seed": 2}}[mode]
+    plain = dict(base, mode=mode)
+    noisy = dict(plain, **extra)
+    assert set(kind.unused_settings(noisy)) == set(extra)
+    assert kind.unused_settings(plain) == {}
+
+    def arrays(settings):
+        plan = kind.plan(StudySpec("joint_sweep", S6, settings=settings), s6, None)
+        return kind.compute_chunk(plan, s6, None, Chunk(0, 0, plan.cells))
+
+    a, b = arrays(plain), arrays(noisy)
+    assert a.keys() == b.keys()
+    for k in a:
+        np.testing.assert_array_equal(a[k], b[k], err_msg=k)

@@ -220,3 +220,28 @@ def test_neighbour_seeds_fill_a_seeding_hole_without_losing_points():
         assert np.allclose(T[:, :3, 3], out["target"][reached[flag]], atol=1e-6)
     assert np.all(reached[True][reached[False]])          # never loses a point
     assert reached[True].sum() > reached[False].sum()     # and fills some of the hole
+
+
+@pytest.mark.parametrize("base,extra", [
+    ({"grid": "plane", "plane": "xz", "at": 0.0, "u": [0.3, 0.7], "v": [0.2, 0.6], "steps": [3, 3],
+      "orientation": "fixed", "rpy": [180, 0, 0]},
+     {"x": [0, 1], "y": [0, 1], "z": [0, 1], "origin": [1, 2, 3], "plane_rpy": [10, 0, 0],
+      "axis": [1, 0, 0], "directions": 6, "spins": 2}),
+    ({"grid": "box", "x": [0.3, 0.6], "y": [-0.2, 0.2], "z": [0.4, 0.5], "steps": [2, 2, 2],
+      "orientation": "axis", "axis": [0, 0, -1]},
+     {"plane": "yz", "at": 0.3, "u": [0, 1], "v": [0, 1], "rpy": [0, 90, 0], "spins": 3}),
+    ({"grid": "plane", "plane": "frame", "origin": [0.4, 0, 0.3], "u": [0, 0.2], "v": [0, 0.2], "steps": [2, 2],
+      "orientation": "sampled", "directions": 4, "spins": 2},
+     {"at": 0.5, "distinct_tol": 5.0, "neighbour_seeds": False, "rpy": [0, 0, 0], "axis": [0, 1, 0]}),
+])
+def test_settings_named_as_unused_really_change_nothing(base, extra):
+    # every key the kind reports as ignored is checked to be ignored: same arrays with and without it
+    kind, arm = get_kind("reach_slice"), six_r()
+    noisy = dict(base, **extra)
+    assert set(kind.unused_settings(noisy)) == set(extra)
+    assert kind.unused_settings(base) == {}
+    a = run_all(kind.plan(spec(**base), arm, None), arm)
+    b = run_all(kind.plan(spec(**noisy), arm, None), arm)
+    assert a.keys() == b.keys()
+    for k in a:
+        np.testing.assert_array_equal(a[k], b[k], err_msg=k)

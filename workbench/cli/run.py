@@ -105,6 +105,11 @@ def run(args) -> int:
     out = check_output_path(out)
     prep = prepare(args.study)  # reads and checks the study, arm and cell files
     check_out_is_not_an_input(out, prep.plan.spec)
+    from ..studies.base import unused_note
+
+    note = unused_note(prep.kind, prep.plan.spec.settings)
+    if note:
+        sys.stderr.write(f"note: {prep.plan.spec.where}: [settings] not used, ignored: {note}\n")
     if args.scheduler:
         executor = "dask"
     elif args.in_process:

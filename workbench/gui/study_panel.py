@@ -3,12 +3,14 @@ reason, Run disabled until valid), an estimate before running, Run / Cancel, pro
 time left, and save / load of study files."""
 from __future__ import annotations
 
+import html
 import math
 
 from PySide6 import QtCore, QtWidgets
 
 from ..errors import WorkbenchError
 from ..studies import StudySpec, get_kind, kind_names
+from ..studies.base import unused_note
 from .formlogic import check_fields, format_value, unit_hint
 
 __all__ = ["StudyPanel"]
@@ -204,9 +206,12 @@ class StudyPanel(QtWidgets.QWidget):
             self.reasons[k].setText(errors.get(k, ""))
             self.reasons[k].setVisible(bad)
         other = errors.get("", "")
+        unused = "" if errors else unused_note(self.kind, values)
         self.summary.setText(f"<span style='color:#b01010'>{other}</span>" if other else
                              ("<span style='color:#b01010'>Fix the marked settings to run.</span>" if errors
-                              else "<span style='color:#206020'>Settings are valid.</span>"))
+                              else "<span style='color:#206020'>Settings are valid.</span>"
+                              + (f"<br><span style='color:#8a5a00'>Not used, ignored: {html.escape(unused)}</span>"
+                                 if unused else "")))
         ok = not errors
         self.run_btn.setEnabled(ok and not self.running)
         if ok and self._estimate_fn is not None:

@@ -370,6 +370,12 @@ class StudyKind:
         """
         raise NotImplementedError
 
+    def unused_settings(self, settings: Mapping) -> dict:
+        """``{key: why}`` for keys of a valid ``settings`` mapping that these settings do not read
+        (e.g. ``seed`` of a grid sweep): they are ignored, and the CLI and the GUI say so. Call
+        after :meth:`validate` succeeded. Default: none."""
+        return {}
+
     def plan(self, spec, arm, cell, chunk_cells: int | None = None) -> Plan:
         """Validate ``spec.settings`` and lay out the grid, the output fields and the chunks."""
         raise NotImplementedError
@@ -462,6 +468,15 @@ def get_kind(name: str, where: str = "kind") -> StudyKind:
     inst = target() if isinstance(target, type) else target
     _INSTANCES[name] = inst
     return inst
+
+
+def unused_note(kind: StudyKind, settings: Mapping) -> str:
+    """The settings a study ignores, grouped by reason (see :meth:`StudyKind.unused_settings`),
+    e.g. ``"samples, seed (mode is 'grid')"``; "" when it reads them all."""
+    by_reason: dict = {}
+    for key, why in kind.unused_settings(settings or {}).items():
+        by_reason.setdefault(why, []).append(key)
+    return "; ".join(f"{', '.join(keys)} ({why})" for why, keys in by_reason.items())
 
 
 #: calibration output kept for the run to reuse when at most this big

@@ -267,6 +267,18 @@ class JointSweep(StudyKind):
                                   near_singular=float(ns), store_sv=flags["store_sv"],
                                   store_tcp=flags["store_tcp"], dtype=dtype)
 
+    #: settings read by each mode besides the common ones
+    _MODE_KEYS = {"grid": {"joints", "ranges", "steps", "pose"},
+                  "reduce": {"joints", "ranges", "steps", "coarse_steps", "reduce", "best_by"},
+                  "samples": {"samples", "seed"}}
+
+    def unused_settings(self, settings) -> dict:
+        mode = settings.get("mode", "grid")
+        if mode not in self._MODE_KEYS:
+            return {}
+        mode_keys = set().union(*self._MODE_KEYS.values())
+        return {k: f"mode is {mode!r}" for k in settings if k in mode_keys and k not in self._MODE_KEYS[mode]}
+
     # ------------------------------------------------------------------------------------------
     def plan(self, spec, arm, cell=None, chunk_cells=None) -> Plan:
         where = f"{spec.where}: [settings]"

@@ -320,6 +320,26 @@ class ReachSlice(StudyKind):
     def validate(self, settings, arm, cell, where="settings"):
         return _validate(settings or {}, arm, cell, where)
 
+    def unused_settings(self, settings) -> dict:
+        grid = settings.get("grid", "plane")
+        plane = settings.get("plane", "xz")
+        orient = settings.get("orientation", "fixed")
+        why = {}
+        if grid == "box":
+            why.update({k: "grid is 'box'" for k in ("plane", "at", "origin", "plane_rpy", "u", "v")})
+        else:
+            why.update({k: "grid is 'plane'" for k in ("x", "y", "z")})
+            if plane == "frame":
+                why["at"] = "plane is 'frame'"
+            else:
+                why.update({k: f"plane is {plane!r}" for k in ("origin", "plane_rpy")})
+        for key, rule in (("rpy", "fixed"), ("axis", "axis"), ("directions", "sampled"), ("spins", "sampled")):
+            if orient != rule:
+                why[key] = f"orientation is {orient!r}"
+        if orient == "sampled":
+            why.update({k: "orientation is 'sampled' (no solution count)" for k in ("distinct_tol", "neighbour_seeds")})
+        return {k: v for k, v in why.items() if k in settings}
+
     def plan(self, spec, arm, cell, chunk_cells=None) -> Plan:
         where = f"{spec.where}: [settings]"
         s = self.validate(spec.settings, arm, cell, where)
