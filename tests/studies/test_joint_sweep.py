@@ -250,3 +250,21 @@ def test_settings_named_as_unused_really_change_nothing(s6, kind, mode, extra):
     assert a.keys() == b.keys()
     for k in a:
         np.testing.assert_array_equal(a[k], b[k], err_msg=k)
+
+
+def test_grid_limit_margin_and_status_equal_the_arms_per_pose_answers(s6, kind):
+    # the grid works limits out per axis value; the arm's per-pose functions are the reference,
+    # on ranges that run past the limits (negative margins, the outside-limits bit) and a fixed
+    # pose with one joint outside its limits too
+    for pose in ([10, 0, 0, 20, 0, 30], [10, 0, 0, 20, 0, 400]):
+        spec = StudySpec("joint_sweep", S6, settings={"joints": ["j3", "j1"], "steps": [41, 23],
+                                                      "ranges": [[-200, 200], [-190, 185]], "pose": pose})
+        plan = kind.plan(spec, s6, None, chunk_cells=97)
+        out = run_all(kind, plan, s6)
+        q = kind.cell_poses(plan, np.arange(plan.cells))
+        np.testing.assert_array_equal(out["limit_margin"], s6.limit_margin(q))
+        outside = (out["status"] & OUTSIDE_LIMITS) != 0
+        np.testing.assert_array_equal(outside, ~s6.in_limits(q))
+        assert outside.any() and (pose[5] == 400) == outside.all()
+        # grid values that land on a limit may sit an ulp outside it: inside by the 1e-12 slack
+        assert (out["limit_margin"] < -1e-9).sum() == outside.sum()

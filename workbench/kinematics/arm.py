@@ -195,21 +195,29 @@ class Arm:
     def clip_to_limits(self, q):
         return np.clip(q, self.model.lower, self.model.upper)
 
-    def in_limits(self, q, tol=1e-12):
+    def joints_in_limits(self, q, tol=1e-12):
+        """Per joint: inside its limits (..., n) bool (``tol`` rad / m of slack)."""
         q = np.asarray(q, float)
-        return np.all((q >= self.model.lower - tol) & (q <= self.model.upper + tol), axis=-1)
+        return (q >= self.model.lower - tol) & (q <= self.model.upper + tol)
 
-    def limit_margin(self, q):
-        """Smallest distance to a joint limit as a fraction of that joint's half range (...,);
-        1 at mid-range, 0 at a limit; unlimited joints count as 1."""
+    def in_limits(self, q, tol=1e-12):
+        return np.all(self.joints_in_limits(q, tol), axis=-1)
+
+    def joint_margins(self, q):
+        """Per joint: distance to the nearer limit as a fraction of the half range (..., n); 1 at
+        mid-range, 0 at a limit, negative outside; unlimited joints give 1."""
         q = np.asarray(q, float)
         lo, hi = self.model.lower, self.model.upper
         finite = np.isfinite(lo) & np.isfinite(hi) & (hi > lo)
         lo_f, hi_f = np.where(finite, lo, -1.0), np.where(finite, hi, 1.0)
         half = (hi_f - lo_f) / 2
         mid = (hi_f + lo_f) / 2
-        frac = np.where(finite, 1.0 - np.abs(q - mid) / half, 1.0)
-        return np.min(frac, axis=-1)
+        return np.where(finite, 1.0 - np.abs(q - mid) / half, 1.0)
+
+    def limit_margin(self, q):
+        """Smallest distance to a joint limit as a fraction of that joint's half range (...,);
+        1 at mid-range, 0 at a limit; unlimited joints count as 1."""
+        return np.min(self.joint_margins(q), axis=-1)
 
     def random_q(self, count, rng=None, unlimited=np.pi):
         """Uniform random joint values inside the limits, (count, n); unlimited revolute joints in

@@ -360,12 +360,35 @@ class JointSweep(StudyKind):
         m["limit_margin"] = arm.limit_margin(q)
         return m
 
+    @staticmethod
+    def _grid_limits(plan, arm, chunk):
+        """Limit margin and in-limits of grid cells (chunk.size,) from the chosen joints' axes: a
+        cell's value is the min / all over joints, and each joint's term depends on that joint's
+        value only, so it is worked out once per axis value instead of once per cell and joint
+        (the same per-joint arithmetic as :meth:`Arm.limit_margin` / :meth:`Arm.in_limits`)."""
+        st = plan.settings
+        idx = np.unravel_index(np.arange(chunk.start, chunk.stop), plan.shape)
+        fixed = [k for k in range(st.pose.size) if k not in st.joints]
+        margin = np.full(chunk.size, np.min(arm.joint_margins(st.pose)[fixed]) if fixed else np.inf)
+        inside = np.full(chunk.size, bool(np.all(arm.joints_in_limits(st.pose)[fixed])))
+        for ax, k, i in zip(plan.axes, st.joints, idx):
+            q_axis = np.repeat(st.pose[None, :], ax.values.size, axis=0)
+            q_axis[:, k] = ax.values
+            np.minimum(margin, arm.joint_margins(q_axis)[:, k][i], out=margin)
+            inside &= arm.joints_in_limits(q_axis)[:, k][i]
+        return margin, inside
+
     def compute_chunk(self, plan: Plan, arm, cell, chunk: Chunk) -> dict:
         st = plan.settings
         if st.mode == "reduce":
             return self._compute_reduce(plan, arm, chunk)
         q = self.chunk_poses(plan, arm, chunk)
-        m = self._measures(st, arm, q)
+        if st.mode == "grid":
+            m = pose_measures(arm, q, frame=st.frame, rows=st.rows, length=st.length)
+            m["limit_margin"], inside = self._grid_limits(plan, arm, chunk)
+        else:
+            m = self._measures(st, arm, q)
+            inside = arm.in_limits(q)
         out = {}
         for f in plan.fields:
             if f.name in m:
@@ -376,7 +399,7 @@ class JointSweep(StudyKind):
             out["tcp"] = arm.fk(q, frame=st.frame)[:, :3, 3].astype(st.dtype)
         if st.mode == "samples":
             out["q"] = q
-        out["status"] = self._status(st, m["inverse_condition"], arm.in_limits(q))
+        out["status"] = self._status(st, m["inverse_condition"], inside)
         return out
 
     @staticmethod
