@@ -34,7 +34,8 @@ from .kinematics.rows import parse_rows, row_scale
 
 __all__ = ["measures", "measures_from_sv", "pose_measures", "MEASURE_NAMES", "MEASURE_INFO",
            "svd_directions", "Ellipsoid", "velocity_ellipsoid", "force_ellipsoid",
-           "joint_limit_penalty", "limit_aware_manipulability", "SingularityNote", "singularity_note",
+           "joint_limit_penalty", "joint_limit_factors", "penalty_of_product", "limit_aware_manipulability",
+           "SingularityNote", "singularity_note",
            "explain_singularity", "NEAR_SINGULAR", "joint_torques", "gravity_torques", "max_payload"]
 
 MEASURE_NAMES = ("manipulability", "condition", "inverse_condition", "min_sv")
@@ -365,6 +366,15 @@ def joint_limit_penalty(q, lower, upper, k=None):
     ndarray, shape (...)
         The penalty; 0 on or outside a limit; 1 (no penalty) when no joint is limited.
     """
+    f, n_lim = joint_limit_factors(q, lower, upper)
+    return penalty_of_product(np.prod(f, axis=-1), n_lim, k)
+
+
+def joint_limit_factors(q, lower, upper):
+    """The per-joint factors of :func:`joint_limit_penalty`: f_i = (q_i - l_i)(u_i - q_i) / (u_i - l_i)^2
+    clipped at 0 (1/4 at mid-range, 0 at a limit), and 1 for a joint without finite limits.
+
+    Returns (f (..., n), number of limited joints)."""
     q = np.asarray(q, dtype=float)
     lo = np.asarray(lower, dtype=float)
     hi = np.asarray(upper, dtype=float)
@@ -372,17 +382,22 @@ def joint_limit_penalty(q, lower, upper, k=None):
         raise WorkbenchError(f"q: expected joint values shaped (..., {lo.shape[-1]}) to match the "
                              f"limits, got shape {q.shape}")
     lim = np.isfinite(lo) & np.isfinite(hi)
-    n_lim = int(lim.sum())
+    lo_f, hi_f = np.where(lim, lo, 0.0), np.where(lim, hi, 1.0)
+    f = np.where(lim, np.clip((q - lo_f) * (hi_f - q) / (hi_f - lo_f) ** 2, 0.0, None), 1.0)
+    return f, int(lim.sum())
+
+
+def penalty_of_product(prod, n_lim: int, k=None):
+    """P = 1 - exp(-k * prod) from the product of :func:`joint_limit_factors` (see
+    :func:`joint_limit_penalty` for k); 1 when no joint is limited."""
+    prod = np.asarray(prod, dtype=float)
     if n_lim == 0:
-        return np.ones(q.shape[:-1])
+        return np.ones(prod.shape)
     if k is None:
         k = 3.0 * 4.0 ** n_lim
     if not (np.isfinite(k) and k > 0):
         raise WorkbenchError(f"k: expected a positive penalty steepness, got {k!r}")
-    ql, l, u = q[..., lim], lo[lim], hi[lim]
-    f = (ql - l) * (u - ql) / (u - l) ** 2
-    f = np.clip(f, 0.0, None)
-    return -np.expm1(-k * np.prod(f, axis=-1))
+    return -np.expm1(-k * prod)
 
 
 def limit_aware_manipulability(arm, q, frame="tcp", rows="full", length=None, k=None, world=False):

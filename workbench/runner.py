@@ -660,7 +660,7 @@ def bench_sweep(quick: bool = False) -> dict:
                        "overhead_pair_min": min(pairs), "overhead_pair_max": max(pairs),
                        "cpu_overhead_vs_compute": over_cpu},
             "bars": {"runner+writer overhead<20%": [over, 0.20, bool(over < 0.20)]},
-            "notes": [f"{k} x {k} j2 x j3 sweep of demo_s6 (6 fields per cell), in-process, chunks cut by the "
+            "notes": [f"{k} x {k} j2 x j3 sweep of demo_s6 (7 fields per cell), in-process, chunks cut by the "
                       f"runner, Blosc LZ4 + shuffle HDF5 written from a background thread; median of {reps} "
                       f"pairs in alternating order (times: medians)"]}
 

@@ -135,6 +135,9 @@ def test_reduce_equals_brute_force(s6, kind):
         np.testing.assert_allclose(out["best_q"][cell], q[np.argmax(inv)])
         np.testing.assert_allclose(out["worst_q"][cell], q[np.argmin(inv)])
         assert math.isclose(out["limit_margin_min"][cell], s6.limit_margin(q).min(), rel_tol=1e-12)
+        from workbench.measures import limit_aware_manipulability
+        assert math.isclose(out["limit_aware_manipulability_max"][cell],
+                            limit_aware_manipulability(s6, q).max(), rel_tol=1e-9)
 
 
 def test_summary_lists_the_most_singular_poses_in_degrees(s6, kind):
@@ -268,3 +271,25 @@ def test_grid_limit_margin_and_status_equal_the_arms_per_pose_answers(s6, kind):
         assert outside.any() and (pose[5] == 400) == outside.all()
         # grid values that land on a limit may sit an ulp outside it: inside by the 1e-12 slack
         assert (out["limit_margin"] < -1e-9).sum() == outside.sum()
+
+
+
+def test_limit_aware_manipulability_per_cell_is_the_measure_at_that_pose(s6, kind):
+    # grid (per-axis products), samples and reduce against workbench.measures.limit_aware_manipulability
+    # at the same poses; that function's own checks (Tsai 1986 penalty, from memory) are in test_measures
+    from workbench.measures import limit_aware_manipulability
+
+    grid = StudySpec("joint_sweep", S6, settings={"joints": ["j3", "j5"], "steps": [9, 7],
+                                                  "ranges": [[-130, 170], [-125, 125]], "pose": [10, 5, 0, 20, 0, 30]})
+    plan = kind.plan(grid, s6, None, chunk_cells=20)
+    out = run_all(kind, plan, s6)
+    q = kind.cell_poses(plan, np.arange(plan.cells))
+    ref = limit_aware_manipulability(s6, q)
+    np.testing.assert_allclose(out["limit_aware_manipulability"], ref, rtol=1e-12, atol=0)
+    assert (ref == 0).any() and (ref > 0).any()  # the -130 deg and 170 deg columns are past j3's limits
+    cloud = StudySpec("joint_sweep", S6, settings={"mode": "samples", "samples": 300, "seed": 5})
+    plan = kind.plan(cloud, s6, None)
+    out = run_all(kind, plan, s6)
+    np.testing.assert_allclose(out["limit_aware_manipulability"], limit_aware_manipulability(s6, out["q"]),
+                               rtol=1e-12, atol=0)
+    assert np.all(out["limit_aware_manipulability"] <= out["manipulability"])

@@ -19,6 +19,7 @@ MEASURE_LABELS = {
     "inverse_condition": "inverse condition 1/k",
     "min_sv": "min. singular value",
     "limit_margin": "joint-limit margin",
+    "limit_aware_manipulability": "limit-aware manipulability",
     "reachable": "reachable",
     "score": "score",
     "payload": "payload (kg)",

@@ -17,8 +17,10 @@ Three modes (``mode`` in the ``[settings]`` table of a study file):
 Measures per cell (see :mod:`workbench.measures`): manipulability, condition, inverse_condition,
 min_sv of the chosen ``frame`` and task ``rows`` (translational rows divided by the characteristic
 length ``length`` when rows mix translation and rotation; default the arm's nominal reach), and the
-joint-limit margin (:meth:`workbench.kinematics.Arm.limit_margin`). Computed by the fused compiled
-path :func:`workbench.measures.pose_measures`, batched over the chunk.
+joint-limit margin (:meth:`workbench.kinematics.Arm.limit_margin`) and the limit-aware
+manipulability (manipulability times the joint-limit penalty of Tsai 1986,
+:func:`workbench.measures.joint_limit_penalty`). Computed by the fused compiled path
+:func:`workbench.measures.pose_measures`, batched over the chunk.
 
 File units: revolute joint values in degrees, prismatic in metres, ``length`` in metres.
 """
@@ -31,7 +33,7 @@ import numpy as np
 
 from ..kinematics.rows import parse_rows
 from ..measures import NEAR_SINGULAR as _NEAR_DEFAULT
-from ..measures import pose_measures
+from ..measures import joint_limit_factors, penalty_of_product, pose_measures
 from .base import Axis, Chunk, Field, Plan, StudyError, StudyKind, Table, block_rng
 
 __all__ = ["JointSweep", "JointSweepSettings", "MAX_CELLS", "MAX_POSES"]
@@ -42,7 +44,8 @@ MAX_CELLS = 10_000_000_000
 MAX_POSES = 100_000_000_000
 _MODES = ("grid", "reduce", "samples")
 _REDUCE_OPS = ("min", "max", "mean")
-_SCALARS = ("manipulability", "condition", "inverse_condition", "min_sv", "limit_margin")
+_SCALARS = ("manipulability", "condition", "inverse_condition", "min_sv", "limit_margin",
+            "limit_aware_manipulability")
 #: status bits
 NEAR_SINGULAR = 1
 OUTSIDE_LIMITS = 2
@@ -302,6 +305,8 @@ class JointSweep(StudyKind):
             "inverse_condition": "sm / s1 in [0, 1]; 0 singular, 1 isotropic",
             "min_sv": "smallest singular value; 0 at a singularity",
             "limit_margin": "smallest distance to a joint limit as a fraction of the half range (1 mid, 0 at a limit)",
+            "limit_aware_manipulability": "manipulability times the joint-limit penalty of Tsai 1986 "
+                                          "(workbench.measures.joint_limit_penalty); 0 at a limit",
         }
         fields = []
         if st.mode == "reduce":
@@ -358,25 +363,32 @@ class JointSweep(StudyKind):
     def _measures(self, st, arm, q):
         m = pose_measures(arm, q, frame=st.frame, rows=st.rows, length=st.length)
         m["limit_margin"] = arm.limit_margin(q)
+        f, n_lim = joint_limit_factors(q, arm.model.lower, arm.model.upper)
+        m["limit_aware_manipulability"] = penalty_of_product(np.prod(f, axis=-1), n_lim) * m["manipulability"]
         return m
 
     @staticmethod
     def _grid_limits(plan, arm, chunk):
-        """Limit margin and in-limits of grid cells (chunk.size,) from the chosen joints' axes: a
-        cell's value is the min / all over joints, and each joint's term depends on that joint's
-        value only, so it is worked out once per axis value instead of once per cell and joint
-        (the same per-joint arithmetic as :meth:`Arm.limit_margin` / :meth:`Arm.in_limits`)."""
+        """Limit margin, in-limits and joint-limit penalty of grid cells (chunk.size,) from the
+        chosen joints' axes: a cell's value is the min / all / product over joints of per-joint
+        terms that depend on that joint's value only, so each is worked out once per axis value
+        instead of once per cell and joint (the per-joint arithmetic of :meth:`Arm.limit_margin`,
+        :meth:`Arm.in_limits` and :func:`workbench.measures.joint_limit_factors`)."""
         st = plan.settings
+        lo, hi = arm.model.lower, arm.model.upper
         idx = np.unravel_index(np.arange(chunk.start, chunk.stop), plan.shape)
         fixed = [k for k in range(st.pose.size) if k not in st.joints]
         margin = np.full(chunk.size, np.min(arm.joint_margins(st.pose)[fixed]) if fixed else np.inf)
         inside = np.full(chunk.size, bool(np.all(arm.joints_in_limits(st.pose)[fixed])))
+        f_pose, n_lim = joint_limit_factors(st.pose, lo, hi)
+        prod = np.full(chunk.size, np.prod(f_pose[fixed]))
         for ax, k, i in zip(plan.axes, st.joints, idx):
             q_axis = np.repeat(st.pose[None, :], ax.values.size, axis=0)
             q_axis[:, k] = ax.values
             np.minimum(margin, arm.joint_margins(q_axis)[:, k][i], out=margin)
             inside &= arm.joints_in_limits(q_axis)[:, k][i]
-        return margin, inside
+            prod *= joint_limit_factors(q_axis, lo, hi)[0][:, k][i]
+        return margin, inside, penalty_of_product(prod, n_lim)
 
     def compute_chunk(self, plan: Plan, arm, cell, chunk: Chunk) -> dict:
         st = plan.settings
@@ -385,7 +397,8 @@ class JointSweep(StudyKind):
         q = self.chunk_poses(plan, arm, chunk)
         if st.mode == "grid":
             m = pose_measures(arm, q, frame=st.frame, rows=st.rows, length=st.length)
-            m["limit_margin"], inside = self._grid_limits(plan, arm, chunk)
+            m["limit_margin"], inside, penalty = self._grid_limits(plan, arm, chunk)
+            m["limit_aware_manipulability"] = penalty * m["manipulability"]
         else:
             m = self._measures(st, arm, q)
             inside = arm.in_limits(q)
