@@ -119,6 +119,14 @@ def test_fixed_orientation_with_mount_reproduces_targets_in_the_cell_frame():
     assert np.allclose(out["condition"][reached], 1 / out["inverse_condition"][reached])
     ns = (out["status"] & NEAR_SINGULAR) != 0
     assert np.array_equal(ns, reached & (out["inverse_condition"] < 0.02))  # the default, measures.NEAR_SINGULAR
+    # limit-aware manipulability of the best solution: workbench.measures at that pose (arm mounted)
+    from dataclasses import replace
+
+    from workbench.measures import limit_aware_manipulability
+    marm = Arm(replace(arm.model, mount=M))
+    ref = limit_aware_manipulability(marm, out["q"][reached], world=True)
+    np.testing.assert_allclose(out["limit_aware_manipulability"][reached], ref, rtol=1e-10, atol=1e-15)
+    assert np.all(np.isnan(out["limit_aware_manipulability"][~reached]))
     # status bits of unreached points name one reason
     reasons = out["status"][~reached] & (OUT_OF_REACH | LIMITS | NOT_CONVERGED)
     assert np.all(np.isin(reasons, [OUT_OF_REACH, LIMITS, NOT_CONVERGED]))

@@ -364,6 +364,8 @@ class ReachSlice(StudyKind):
             Field("min_sv", (), "float64", "", f"smallest singular value {what}"),
             Field("limit_margin", (), "float64", "", "smallest joint-limit margin (1 mid-range, 0 at a limit) "
                   "of the best solution"),
+            Field("limit_aware_manipulability", (), "float64", "", "manipulability times the joint-limit "
+                  "penalty of Tsai 1986 (workbench.measures.joint_limit_penalty) of the best solution"),
         ]
         if s.orientation == "sampled":
             fields.append(Field("reachability", (), "float64", "",
@@ -485,7 +487,7 @@ class ReachSlice(StudyKind):
     def compute_chunk(self, plan, arm, cell, chunk) -> dict:
         from ..kinematics import Arm
         from ..kinematics.ik import CONVERGED, solve_ik
-        from ..measures import pose_measures
+        from ..measures import joint_limit_penalty, pose_measures
 
         s = plan.settings
         idx = np.arange(chunk.start, chunk.stop)
@@ -513,6 +515,8 @@ class ReachSlice(StudyKind):
         for name in ("manipulability", "inverse_condition", "condition", "min_sv"):
             out[name] = np.where(reached, meas[name][rows, pick], np.nan)
         out["limit_margin"] = np.where(reached, arm.limit_margin(qb), np.nan)
+        pen = joint_limit_penalty(qb, arm.model.lower, arm.model.upper)
+        out["limit_aware_manipulability"] = np.where(reached, pen * out["manipulability"], np.nan)
         bits = _ik_status_bits(status)
         bits = np.where(reached, REACHED, bits).astype(np.uint8)
         bits |= np.where(reached & (out["inverse_condition"] < s.near_singular), NEAR_SINGULAR, 0).astype(np.uint8)
