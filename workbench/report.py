@@ -774,23 +774,16 @@ def write_report(results, out) -> str:
     ReportError
         Unknown extension, missing folder, or results that cannot be read.
     """
-    from .results import read_results
+    from .results import check_folder_takes_files, read_results
 
     out = os.fspath(out)
     ext = os.path.splitext(out)[1].lower()
     if ext not in (".pdf", ".html", ".htm"):
         raise ReportError(f"--out {out}: unknown report type {ext or '(none)'!r}; expected a .pdf or .html file")
     folder = os.path.dirname(os.path.abspath(out))
-    if not os.path.isdir(folder):
-        raise ReportError(f"--out {out}: folder {folder} does not exist")
     if os.path.isdir(out):
         raise ReportError(f"--out {out}: is a directory, expected a file name")
-    try:  # access() says yes to root everywhere: really try to create a file there
-        fd, probe = tempfile.mkstemp(prefix=".~probe", dir=folder)
-        os.close(fd)
-        os.unlink(probe)
-    except OSError as exc:
-        raise ReportError(f"--out {out}: cannot create files in {folder} ({exc.strerror})") from None
+    check_folder_takes_files(folder, f"--out {out}", ReportError)
     if ext != ".pdf":  # the HTML page replaces its image folder: never one that holds anything else
         img_dir = os.path.join(folder, os.path.splitext(os.path.basename(out))[0] + "_files")
         if os.path.lexists(img_dir) and (os.path.islink(img_dir) or not os.path.isdir(img_dir)):

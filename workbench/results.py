@@ -39,7 +39,7 @@ from .errors import WorkbenchError
 from .studies.base import Axis, Field, Plan, Table
 
 __all__ = ["SCHEMA_VERSION", "Results", "ResultsWriter", "MemoryWriter", "read_results",
-           "check_output_path", "export_csv", "export_png", "ResultsError"]
+           "check_output_path", "check_folder_takes_files", "export_csv", "export_png", "ResultsError"]
 
 SCHEMA_VERSION = 1
 #: HDF5 compression of the field datasets (``None``: none). "lz4" is Blosc's LZ4 codec after
@@ -213,20 +213,25 @@ def check_output_path(path) -> str:
     if os.path.isdir(p):
         raise ResultsError(f"--out {path}: is a directory; expected a results file name such as "
                            f"{os.path.join(os.fspath(path), 'results.h5')}")
-    folder = os.path.dirname(p)
-    if not os.path.isdir(folder):
-        raise ResultsError(f"--out {path}: folder {folder} does not exist")
-    if not os.access(folder, os.W_OK | os.X_OK):
-        raise ResultsError(f"--out {path}: folder {folder} is not writable")
+    check_folder_takes_files(os.path.dirname(p), f"--out {path}")
     if os.path.exists(p) and not os.access(p, os.W_OK):
         raise ResultsError(f"--out {path}: file exists and is not writable")
-    try:  # access() says yes to root everywhere: really try to create a file there
+    return p
+
+
+def check_folder_takes_files(folder, label, error=ResultsError) -> None:
+    """Raise ``error("<label>: ...")`` unless ``folder`` exists and new files can be created in it
+    (tried for real with a probe file: access() says yes to root everywhere). Leaves nothing."""
+    if not os.path.isdir(folder):
+        raise error(f"{label}: folder {folder} does not exist")
+    if not os.access(folder, os.W_OK | os.X_OK):
+        raise error(f"{label}: folder {folder} is not writable")
+    try:
         fd, probe = tempfile.mkstemp(prefix=".~probe", dir=folder)
         os.close(fd)
         os.unlink(probe)
     except OSError as exc:
-        raise ResultsError(f"--out {path}: cannot create files in {folder} ({exc.strerror})") from None
-    return p
+        raise error(f"{label}: cannot create files in {folder} ({exc.strerror})") from None
 
 
 def _largest_divisor_at_most(n: int, cap: int) -> int:
@@ -612,17 +617,7 @@ def check_export_target(path, what, source=None) -> str:
                            f"{os.path.splitext(p)[1] or 'no extension'}")
     if source is not None and os.path.realpath(p) == os.path.realpath(os.fspath(source)):
         raise ResultsError(f"{what} {path}: is the results file being exported; expected another file name")
-    folder = os.path.dirname(p)
-    if not os.path.isdir(folder):
-        raise ResultsError(f"{what} {path}: folder {folder} does not exist")
-    if not os.access(folder, os.W_OK | os.X_OK):
-        raise ResultsError(f"{what} {path}: folder {folder} is not writable")
-    try:  # access() says yes to root everywhere: really try to create a file there
-        fd, probe = tempfile.mkstemp(prefix=".~probe", dir=folder)
-        os.close(fd)
-        os.unlink(probe)
-    except OSError as exc:
-        raise ResultsError(f"{what} {path}: cannot create files in {folder} ({exc.strerror})") from None
+    check_folder_takes_files(os.path.dirname(p), f"{what} {path}")
     return p
 
 
