@@ -470,6 +470,18 @@ def get_kind(name: str, where: str = "kind") -> StudyKind:
     return inst
 
 
+def check_rows(value, where: str):
+    """The task rows ``value`` of a study's settings parsed (:func:`workbench.kinematics.rows.parse_rows`),
+    or a :class:`StudyError` ``"<where> rows: <what is wrong>"``."""
+    from ..kinematics.rows import parse_rows
+
+    try:
+        return parse_rows(value)
+    except Exception as exc:
+        msg = str(exc)  # parse_rows's messages start with "rows: " already
+        raise StudyError(f"{where} rows: {msg[len('rows: '):] if msg.startswith('rows: ') else msg}") from None
+
+
 def unused_note(kind: StudyKind, settings: Mapping) -> str:
     """The settings a study ignores, grouped by reason (see :meth:`StudyKind.unused_settings`),
     e.g. ``"samples, seed (mode is 'grid')"``; "" when it reads them all."""

@@ -31,10 +31,9 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from ..kinematics.rows import parse_rows
 from ..measures import NEAR_SINGULAR as _NEAR_DEFAULT
 from ..measures import joint_limit_factors, penalty_of_product, pose_measures
-from .base import Axis, Chunk, Field, Plan, StudyError, StudyKind, Table, block_rng
+from .base import Axis, Chunk, Field, Plan, StudyError, StudyKind, Table, block_rng, check_rows
 
 __all__ = ["JointSweep", "JointSweepSettings", "MAX_CELLS", "MAX_POSES"]
 
@@ -205,10 +204,7 @@ class JointSweep(StudyKind):
         except Exception as exc:  # ArmError: name the study key
             raise _err(where, "frame", str(exc).split(": ", 1)[-1]) from None
         rows_raw = s.get("rows", "full")
-        try:
-            rows = parse_rows(rows_raw)
-        except Exception as exc:
-            raise _err(where, "rows", str(exc).split(": ", 1)[-1]) from None
+        rows = check_rows(rows_raw, where)
         rows_name = rows_raw if isinstance(rows_raw, str) else ",".join(str(r) for r in rows_raw)
         length = s.get("length")
         if length is None:

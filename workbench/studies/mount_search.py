@@ -32,7 +32,7 @@ from typing import Mapping
 
 import numpy as np
 
-from .base import MAX_SEEDS, Axis, Field, Plan, StudyError, StudyKind, Table
+from .base import MAX_SEEDS, Axis, Field, Plan, StudyError, StudyKind, Table, check_rows
 from .cell import WorkPoint, candidate_grid, mount_transforms, relative_targets
 
 __all__ = ["MountSearch", "MountSettings", "evaluate_mounts", "score_candidates", "score_formula",
@@ -182,8 +182,6 @@ def _rows_text(rows):
 
 
 def _validate(settings: Mapping, arm, where: str) -> MountSettings:
-    from ..kinematics.rows import parse_rows
-
     unknown = sorted(set(settings) - _KEYS)
     if unknown:
         raise StudyError(f"{where}: unknown key '{unknown[0]}'; allowed keys: {', '.join(sorted(_KEYS))}")
@@ -193,11 +191,7 @@ def _validate(settings: Mapping, arm, where: str) -> MountSettings:
         raise StudyError(f"{where} measure: expected one of {', '.join(MEASURES)}, got {m!r}")
     out["measure"] = m
     rows = settings.get("rows", "full")
-    try:
-        parse_rows(rows)
-    except Exception as exc:
-        msg = str(exc)  # parse_rows's messages start with "rows:" already
-        raise StudyError(f"{where} {msg if msg.startswith('rows:') else 'rows: ' + msg}") from None
+    check_rows(rows, where)
     out["rows"] = rows if isinstance(rows, str) else tuple(rows)
     if "length" in settings:
         out["length"] = _pos(settings["length"], where, "length")

@@ -29,7 +29,7 @@ import numpy as np
 
 from ..arm.transforms import inverse_transform, make_transform
 from ..measures import NEAR_SINGULAR as _NEAR_DEFAULT
-from .base import MAX_SEEDS, Axis, Field, Plan, StudyError, StudyKind, Table
+from .base import MAX_SEEDS, Axis, Field, Plan, StudyError, StudyKind, Table, check_rows
 from .cell import sample_path
 
 __all__ = ["PathAudit", "PathSettings", "track_path", "joint_speeds", "task_rows_matrix", "audit_samples",
@@ -70,8 +70,6 @@ _KEYS = {"paths", "spacing", "rows", "length", "near_singular", "jump", "seeds",
 
 
 def _validate(settings: Mapping, arm, cell, where: str) -> PathSettings:
-    from ..kinematics.rows import parse_rows
-
     unknown = sorted(set(settings) - _KEYS)
     if unknown:
         raise StudyError(f"{where}: unknown key '{unknown[0]}'; allowed keys: {', '.join(sorted(_KEYS))}")
@@ -106,11 +104,7 @@ def _validate(settings: Mapping, arm, cell, where: str) -> PathSettings:
             raise StudyError(f"{where} seeds: expected an integer from 1 to {MAX_SEEDS}, got {v!r}")
         out["seeds"] = v
     rows = settings.get("rows", "full")
-    try:
-        parse_rows(rows)
-    except Exception as exc:
-        msg = str(exc)  # parse_rows's messages start with "rows:" already
-        raise StudyError(f"{where} {msg if msg.startswith('rows:') else 'rows: ' + msg}") from None
+    check_rows(rows, where)
     out["rows"] = rows if isinstance(rows, str) else tuple(rows)
     mount = None
     if "mount_xyz" in settings or "mount_rpy" in settings:

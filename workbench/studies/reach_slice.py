@@ -56,7 +56,7 @@ import numpy as np
 
 from ..arm.transforms import inverse_transform, make_transform
 from ..measures import NEAR_SINGULAR as _NEAR_DEFAULT
-from .base import Axis, Chunk, Field, Plan, StudyError, StudyKind, Table
+from .base import Axis, Chunk, Field, Plan, StudyError, StudyKind, Table, check_rows
 
 __all__ = ["ReachSlice", "ReachSettings", "sphere_orientations", "bench_reach_slice",
            "REACHED", "NEAR_SINGULAR", "OUT_OF_REACH", "LIMITS", "NOT_CONVERGED"]
@@ -195,8 +195,6 @@ def _grid_values(settings, where, ranges, names):
 
 
 def _validate(settings: Mapping, arm, cell, where: str) -> ReachSettings:
-    from ..kinematics.rows import parse_rows
-
     unknown = sorted(set(settings) - _KEYS)
     if unknown:
         raise StudyError(f"{where}: unknown key '{unknown[0]}'; allowed keys: {', '.join(sorted(_KEYS))}")
@@ -262,10 +260,7 @@ def _validate(settings: Mapping, arm, cell, where: str) -> ReachSettings:
     except Exception as exc:
         raise _err(where, "frame", str(exc)) from None
     rows = settings.get("rows", "full")
-    try:
-        parse_rows(rows)
-    except Exception as exc:
-        raise _err(where, "rows", str(exc)) from None
+    check_rows(rows, where)
     length = settings.get("length")
     length = float(arm.nominal_reach()) if length is None else _num(settings, where, "length", 1.0, positive=True)
     best = settings.get("best", "inverse_condition")
