@@ -163,18 +163,12 @@ def warnings_for(arm) -> list[str]:
     if unl_p:
         out.append(f"no limits on prismatic joint(s) {names(unl_p)}: random poses use -3.14..3.14 m; "
                    f"give limits in the arm file")
-    miss_mass = [k for k, j in enumerate(m.joints) if j.mass is None]
-    if miss_mass:
-        out.append(f"no link mass for joint(s) {names(miss_mass)}: gravity torques and load maps are "
-                   f"not available")
-    miss_eff = [k for k, j in enumerate(m.joints) if j.max_effort is None]
-    if miss_eff:
-        out.append(f"no max effort for joint(s) {names(miss_eff)}: load maps and torque-weighted force "
-                   f"ellipsoids are not available")
-    miss_spd = [k for k, j in enumerate(m.joints) if j.max_speed is None]
-    if miss_spd:
-        out.append(f"no max speed for joint(s) {names(miss_spd)}: speed-weighted ellipsoids and path "
-                   f"speed checks are not available")
+    for attr, what, lost in (("mass", "link mass", "gravity torques and load maps are"),
+                             ("max_effort", "max effort", "load maps and torque-weighted force ellipsoids are"),
+                             ("max_speed", "max speed", "speed-weighted ellipsoids and path speed checks are")):
+        missing = [k for k, j in enumerate(m.joints) if getattr(j, attr) is None]
+        if missing:
+            out.append(f"no {what} for joint(s) {names(missing)}: {lost} not available")
     # consecutive joints that can never be told apart: same axis line (revolute) or parallel
     # slides (prismatic); checked at the home pose, where it holds at every pose
     F = arm.frames(arm.home_q)

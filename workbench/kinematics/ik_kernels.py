@@ -162,6 +162,14 @@ def _task_jacobian(mode, J, R, inv_len, Jt):
 
 
 @njit(cache=True, inline="always")
+def _copy_down(G, k):
+    """Copy the top k x k block of G (2k rows) into its bottom half, to be factorised in place."""
+    for a in range(k):
+        for b in range(k):
+            G[k + a, b] = G[a, b]
+
+
+@njit(cache=True, inline="always")
 def _cholesky(A, k):
     """In-place lower Cholesky of A[:k, :k]; returns log det (or -inf if not positive definite)."""
     logdet = 0.0
@@ -225,9 +233,7 @@ def _dls_step(Jt, m, e, w0, lam0, mu, G, rhs, y, dq):
         for a in range(m):
             rhs[a] = e[a]
     # manipulability of the task Jacobian from an undamped factorisation
-    for a in range(k):
-        for b in range(k):
-            G[k + a, b] = G[a, b]  # keep a copy below (G has 2k rows)
+    _copy_down(G, k)  # factorise a copy below (G has 2k rows), keep the matrix above
     logdet = _cholesky(G[k:], k)
     w = np.exp(0.5 * logdet) if logdet > -np.inf else 0.0
     lam2 = mu
@@ -237,13 +243,10 @@ def _dls_step(Jt, m, e, w0, lam0, mu, G, rhs, y, dq):
     if lam2 > 0.0:
         for a in range(k):
             G[a, a] += lam2
-        for a in range(k):
-            for b in range(k):
-                G[k + a, b] = G[a, b]
+        _copy_down(G, k)
         if _cholesky(G[k:], k) == -np.inf:  # numerically singular even when damped
+            _copy_down(G, k)
             for a in range(k):
-                for b in range(k):
-                    G[k + a, b] = G[a, b]
                 G[k + a, a] += 1e-12 + lam0 * lam0
             _cholesky(G[k:], k)
     _chol_solve(G[k:], k, rhs, y)
