@@ -593,13 +593,20 @@ def summarise_mount_search(plan, arrays, top: int = 20) -> dict:
              "worst_score": np.array([r[2] for r in rows]), "score_drop": np.array([r[3] for r in rows]),
              "nominal_score": np.full(len(rows), sens["score"])},
             {}, "worst score over +-x, +-y (position) or +-yaw offsets of the best refined mount")
+    # the solutions behind the refined score (warm-started from them, the first solution is the
+    # same pose): the per-point values then give exactly the score of the 'refined' table
     ev = evaluate_mounts(arm, mount_transforms(best["x"], best["y"], best["height"], best["yaw"], best["tilt"])[None],
-                         points, s, q0=best["q"][None], choose="best")
+                         points, s, q0=best["q"][None], choose="first")
+    cols = {"point": np.array([p.name for p in points], dtype=object), "reached": ev["reached"][0].astype(int),
+            "measure": ev["measure"][0], "margin": ev["margin"][0]}
+    units = {}
+    for j, joint in enumerate(arm.model.joints):  # joint values at the recommended mount
+        cols[f"q_{joint.name}"] = np.degrees(ev["q"][0][:, j]) if joint.revolute else ev["q"][0][:, j] * 1000
+        units[f"q_{joint.name}"] = "deg" if joint.revolute else "mm"
     tables["best_points"] = Table(
-        "Work points from the best refined mount",
-        {"point": np.array([p.name for p in points], dtype=object), "reached": ev["reached"][0].astype(int),
-         "measure": ev["measure"][0], "margin": ev["margin"][0]}, {},
-        f"{s.measure.replace('_', ' ')} and joint-limit margin per work point")
+        "Work points from the best refined mount", cols, units,
+        f"{s.measure.replace('_', ' ')}, joint-limit margin and joint values per work point (the solutions "
+        f"behind the refined score)")
     return tables
 
 
