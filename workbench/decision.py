@@ -68,7 +68,7 @@ def _clean(text: str) -> str:
     return text
 
 
-def fmt_number(x, sig: int = 3) -> str:
+def fmt_number(x, sig: int = 3, trim: bool = True) -> str:
     """A dimensionless number for people: ``sig`` significant digits, no exponent between 1e-3 and
     1e5, a short exponent below (``1.8e-8``), never "-0".
 
@@ -76,6 +76,9 @@ def fmt_number(x, sig: int = 3) -> str:
     ----------
     x : float
     sig : int
+    trim : bool
+        Drop trailing zeros ("0.02" rather than "0.0200"); tables keep them so that a column's
+        values line up.
     """
     try:
         x = float(x)
@@ -90,14 +93,14 @@ def fmt_number(x, sig: int = 3) -> str:
     a = abs(x)
     if a < 1e-3:
         m, e = f"{x:.{max(sig - 2, 0)}e}".split("e")
-        if "." in m:
+        if "." in m and trim:
             m = m.rstrip("0").rstrip(".")
         return _clean(f"{m}e{int(e)}")
     if a >= 1e5:
         return _clean(f"{x:.0f}")
     d = max(0, sig - 1 - int(math.floor(math.log10(a))))
     t = f"{x:.{d}f}"
-    if "." in t:
+    if "." in t and trim:
         t = t.rstrip("0").rstrip(".")
     return _clean(t)
 
@@ -111,7 +114,7 @@ def fmt_mm(metres, decimals: int | None = None) -> str:
     if not math.isfinite(v):
         return fmt_number(v)
     if decimals is None:
-        decimals = 1 if abs(v) < 10 else 0
+        decimals = 1 if 0 < abs(v) < 9.95 else 0
     return _clean(f"{v:.{decimals}f}")
 
 
@@ -498,7 +501,7 @@ def _verdict_from_values(key, requirement, values, where, limit, better="higher"
     """A verdict over per-item values (NaN ignored): the worst item against ``limit``."""
     v = np.asarray(values, float)
     ok = np.isfinite(v)
-    sign = ">=" if better == "higher" else "<="
+    sign = "≥" if better == "higher" else "≤"
     thr = f"{sign} {fmt(limit)}" + (f" {unit}" if unit else "")
     if not ok.any():
         return Verdict(key, requirement, thr, "-", "-", NOT_CHECKED, note or "no values", None, limit, unit, better)
@@ -518,7 +521,7 @@ def _clearance_verdict(ctx, values, where, checked, asked, sentence):
     if values is None or not checked:
         return _not_checked("clearance", "Clearance to obstacles and between links",
                             _lower_first(sentence.split(": ", 1)[-1]).rstrip("."),
-                            f">= {fmt_mm(asked if asked else DEFAULT_CLEARANCE)} mm")
+                            f"≥ {fmt_mm(asked if asked else DEFAULT_CLEARANCE)} mm")
     return _verdict_from_values("clearance", "Clearance to obstacles and between links", np.asarray(values, float),
                                 where, asked, "higher", "mm", fmt=lambda v: fmt_mm(v))
 
@@ -531,7 +534,7 @@ def _torque_verdict(ctx, values, where):
             why = "the arm file gives no joint torque limits"
         else:
             why = "these results hold no holding torques (no tool wrench or payload checked by this study)"
-        return _not_checked("torque_margin", "Holding torques within the joint limits", why, ">= 0 % margin")
+        return _not_checked("torque_margin", "Holding torques within the joint limits", why, "≥ 0 % margin")
     return _verdict_from_values("torque_margin", "Holding torques within the joint limits", values, where, 0.0,
                                 "higher", "", fmt=fmt_percent)
 
@@ -548,7 +551,7 @@ def _cycle_verdict(ctx):
         return _not_checked("cycle_time", "Cycle time", "no required time in the cell file")
     k = int(np.nanargmax(ratio))
     ok = bool(np.nanmax(ratio) <= 1.0)
-    return Verdict("cycle_time", "Cycle time within the required time", f"<= {fmt_number(req[k])} s",
+    return Verdict("cycle_time", "Cycle time within the required time", f"≤ {fmt_number(req[k])} s",
                    f"{fmt_number(est[k])} s", names[k], PASS if ok else FAIL, "", float(est[k]), float(req[k]), "s",
                    "lower")
 
@@ -655,7 +658,7 @@ def _mount_decision(ctx: _Ctx) -> Decision:
                 parts.append(f"±{fmt_number(o[0])}" + (f"-{fmt_number(o[-1])}" if len(o) > 1 else "") + f" {unit_}")
         big = ", ".join(parts)
         verdicts.append(Verdict("placement_error", f"Score kept when the base is placed off ({big})",
-                                f"<= {fmt_percent(SENSITIVITY_DROP, 0)} lost", f"{fmt_percent(max(drop[k], 0))} lost",
+                                f"≤ {fmt_percent(SENSITIVITY_DROP, 0)} lost", f"{fmt_percent(max(drop[k], 0))} lost",
                                 f"{fmt_number(off[k])} {unit} off" + (" (turned)" if kinds[k] == "yaw" else ""),
                                 PASS if drop[k] <= SENSITIVITY_DROP else FAIL, "", float(max(drop[k], 0)),
                                 SENSITIVITY_DROP, "", "lower"))
@@ -865,7 +868,7 @@ def _path_decision(ctx: _Ctx) -> Decision:
         verdicts.append(v)
     else:
         verdicts.append(_not_checked("speed_ratio", "Joint speeds within the limits",
-                                     "the arm file gives no joint speed limits", "<= 1"))
+                                     "the arm file gives no joint speed limits", "≤ 1"))
     flips = done & ((flags & 4) > 0)
     fw = ", ".join(f"{names[p]} at {fmt_mm(v)} mm" for p, v in zip(pidx[flips], dist[flips])) or "-"
     verdicts.append(Verdict("branch_flips", "No branch flips (joint jumps between samples)", "0",
@@ -1064,12 +1067,12 @@ def _load_decision(ctx: _Ctx) -> Decision:
                                     f"{fmt_number(pmin)} kg (smallest)", where_of(k), NOT_CHECKED,
                                     "the cell states no payload to hold", pmin, None, "kg"))
         else:
-            verdicts.append(Verdict("payload", "Payload held at every reached point", f">= {fmt_number(req)} kg",
+            verdicts.append(Verdict("payload", "Payload held at every reached point", f"≥ {fmt_number(req)} kg",
                                     f"{fmt_number(pmin)} kg", where_of(k), PASS if pmin >= req else FAIL, "", pmin,
                                     req, "kg"))
         ko = int(flat_ok[np.argmax(own.reshape(-1)[flat_ok])])
         omax = float(own.reshape(-1)[ko])
-        verdicts.append(Verdict("own_load", "The arm holds its own weight (gravity torque / limit)", "<= 1",
+        verdicts.append(Verdict("own_load", "The arm holds its own weight (gravity torque / limit)", "≤ 1",
                                 fmt_number(omax), where_of(ko), PASS if omax <= 1 else FAIL, "", omax, 1.0, "",
                                 "lower"))
     verdicts.append(_clearance_verdict(ctx, None, [], checked, asked, coll))
@@ -1174,7 +1177,7 @@ def _generic_decision(ctx: _Ctx) -> Decision:
             k = int(np.flatnonzero(fin)[np.argmin(inv[fin])])
             w = _cell_where(r, k)
             frac = float((inv[fin] < thr).mean())
-            verdicts.append(Verdict("inverse_condition", "Inverse condition over the map", f">= {fmt_number(thr)}",
+            verdicts.append(Verdict("inverse_condition", "Inverse condition over the map", f"≥ {fmt_number(thr)}",
                                     fmt_number(inv[k]), w, PASS if inv[k] >= thr else FAIL,
                                     f"{fmt_percent(frac)} of the map is below", float(inv[k]), thr))
             qa = r.arrays.get("q")
