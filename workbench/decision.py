@@ -928,13 +928,22 @@ def _path_decision(ctx: _Ctx) -> Decision:
             risks.append(Risk("speed", f"{nm} at {fmt_mm(dist[k])} mm",
                               f"joint {ctx.jn(sj[k])} needs {fmt_percent(ratio[k], 0)} of its speed limit at "
                               f"{fmt_mm(v)} mm/s", change, float(ratio[k]), q[k], np.asarray(a["xyz"][k], float)))
+    span_risks = [rk for rk in risks if rk.key == "near_singular"]
     if np.isfinite(np.where(reached, margin, np.nan)).any():
         k = int(np.nanargmin(np.where(reached, margin, np.inf)))
         _, jk, _ = _limit_info(arm0, q[k][None])
-        risks.append(Risk("limit_margin", where[k], f"closest to a joint limit (margin {fmt_number(margin[k])}): "
-                          f"{_near_limit(arm0, q[k], int(jk[0]))}",
-                          "move the path or the base so that this joint turns less" if margin[k] < LIMIT_MARGIN else
-                          "room is left", LIMIT_MARGIN / max(margin[k], 1e-300), q[k], np.asarray(a["xyz"][k], float)))
+        inside = next((i for i, (i0, i1) in enumerate(spans) if i0 <= k < i1), None)
+        if inside is not None and margin[k] < LIMIT_MARGIN:
+            # the same place as a near-singular span: one risk, told once
+            rk = span_risks[inside]
+            idx = risks.index(rk)
+            risks[idx] = replace(rk, what=rk.what + f"; at {fmt_mm(dist[k])} mm {_near_limit(arm0, q[k], int(jk[0]))}")
+        else:
+                risks.append(Risk("limit_margin", where[k], f"closest to a joint limit (margin {fmt_number(margin[k])}): "
+                              f"{_near_limit(arm0, q[k], int(jk[0]))}",
+                              "move the path or the base so that this joint turns less" if margin[k] < LIMIT_MARGIN
+                              else "room is left", LIMIT_MARGIN / max(margin[k], 1e-300), q[k],
+                              np.asarray(a["xyz"][k], float)))
     top, rest = _rank_risks(risks)
     if top and top[0].pose is not None:
         pose, label = top[0].pose, f"the arm drawn at {top[0].where} (risk 1)"
@@ -1039,7 +1048,12 @@ def _load_decision(ctx: _Ctx) -> Decision:
     ax = r.axes
     plane = s.grid == "plane"
 
+    P = _plane_points(s, ax, pay.shape) if plane else None
+
     def where_of(flat):
+        if P is not None:
+            x_, y_, z_ = P.reshape(-1, 3)[flat]
+            return f"x = {fmt_mm(x_)} mm, y = {fmt_mm(y_)} mm, z = {fmt_mm(z_)} mm"
         idx = np.unravel_index(flat, pay.shape)
         parts = []
         for a_, i in zip(ax, idx):
@@ -1097,7 +1111,7 @@ def _load_decision(ctx: _Ctx) -> Decision:
             sev = 0.5 if req is None else req / max(pmin, 1e-9)
         risks.append(Risk("payload", where_of(k), f"the smallest payload of the slice, {fmt_number(pmin)} kg, "
                           f"set by joint {ctx.jn(j) if j >= 0 else '-'}'s torque limit", change, sev,
-                          q.reshape(-1, q.shape[-1])[k], None))
+                          q.reshape(-1, q.shape[-1])[k], None if P is None else P.reshape(-1, 3)[k]))
         counts = np.bincount(lim.reshape(-1)[flat_ok][lim.reshape(-1)[flat_ok] >= 0], minlength=len(ctx.names))
         jt = int(np.argmax(counts))
         risks.append(Risk("limiting_joint", "the whole slice", f"joint {ctx.jn(jt)}'s torque limit sets the payload on "
@@ -1105,7 +1119,6 @@ def _load_decision(ctx: _Ctx) -> Decision:
                           f"a heavier payload needs more torque at joint {ctx.jn(jt)} first", 0.3))
     if plane and (~ok).any():
         frac = float((~ok).mean())
-        P = _plane_points(s, ax, pay.shape)
         base = M[:3, 3]
         dist = np.linalg.norm(P - base, axis=-1)
         dmax = float(dist[ok].max()) if ok.any() else 0.0
@@ -1333,7 +1346,8 @@ def compare_decisions(decisions, labels=None, texts=None) -> Comparison:
                              + ")")
         keys_s = sorted({k for t in texts for k in (t.get("settings") or {})})
         for k in keys_s:
-            vals = [repr((t.get("settings") or {}).get(k, "(default)")) for t in texts]
+            vals = [repr((t.get("settings") or {})[k]) if k in (t.get("settings") or {}) else "(not set)"
+                    for t in texts]
             if len(set(vals)) > 1:
                 diffs.append(f"setting {k}: " + ", ".join(f"{a} {v}" for a, v in zip(labels, vals)))
     if not diffs:

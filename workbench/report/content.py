@@ -635,9 +635,30 @@ def _path_polylines(r, dec):
 # load map and the other kinds
 
 
+def _slice_corners(r):
+    """The load map's plane as 4 corners in the cell frame (m), or None (a joint grid)."""
+    try:
+        st = tomllib.loads(r.study_text or "").get("settings") or {}
+    except tomllib.TOMLDecodeError:
+        return None
+    if st.get("grid") != "plane" or len(r.axes) != 2:
+        return None
+    from ..studies.load_map import _PLANES
+
+    a, b, c = _PLANES[st.get("plane", "xz")]
+    v, u = r.axes[0].values, r.axes[1].values
+    C = np.zeros((4, 3))
+    for i, (uu, vv) in enumerate(((u[0], v[0]), (u[-1], v[0]), (u[-1], v[-1]), (u[0], v[-1]))):
+        C[i, a], C[i, b], C[i, c] = uu, vv, float(st.get("at", 0.0))
+    return C
+
+
 def _load_doc(r, dec, progress) -> D.Document:
     progress(0.35, "drawing the cell")
-    fig1 = D.Figure(G.cell_views(dec), _views_caption(dec, "the base placement used"))
+    C = _slice_corners(r)
+    fig1 = D.Figure(G.cell_views(dec, planes=None if C is None else [C]),
+                    _views_caption(dec, "the base placement used") + (" The slice of the map is drawn purple dashed."
+                                                                      if C is not None else ""))
     extra = []
     page1 = page_one(r, dec, "Load map", fig1, extra=extra)
     body = decision_sections(r, dec, "load")
@@ -731,8 +752,7 @@ def build_document(r, dec, paper="a4", csv_name=None, progress=None) -> D.Docume
     doc.body += appendices(r, dec.cell, arm_model)
     doc.paper = paper
     doc.meta["decision"] = dec
-    doc.meta["footer"] = (f"Layout report: {_s(r.name)} · kinematic and static maps, not a risk assessment "
-                          f"(see the cautions)")
+    doc.meta["footer"] = (f"{_s(r.name)} · kinematic and static maps, not a risk assessment")
     return doc.number()
 
 
@@ -763,10 +783,19 @@ def build_comparison(results, decisions, paper="a4", progress=None) -> D.Documen
     q = decisions[0].question
     best = cmp.best
     fails = [len(d.failed) for d in decisions]
-    ans = (f"Option {L[best]} ({_s(results[best].name)}) has the fewest failed requirements ({fails[best]})"
-           + (f" and the highest score ({fmt_number(decisions[best].recommendation.score)})"
-              if decisions[best].recommendation.score is not None else "") + "." if best is not None else "")
-    ans += " " + " ".join(f"{l}: {f} failed." for l, f in zip(L, fails))
+
+    def key(i):
+        return (fails[i], -round(decisions[i].recommendation.score or 0.0, 12))
+
+    tied = [L[i] for i in range(len(L)) if key(i) == key(best)]
+    sc = decisions[best].recommendation.score
+    if len(tied) > 1:
+        ans = (f"Options {', '.join(tied)} tie: {fails[best]} failed requirement{'s' if fails[best] != 1 else ''}"
+               + (f", score {fmt_number(sc)}" if sc is not None else "") + ".")
+    else:
+        ans = (f"Option {L[best]} ({_s(results[best].name)}) has the fewest failed requirements ({fails[best]})"
+               + (f" and then the highest score ({fmt_number(sc)})" if sc is not None else "") + ".")
+    ans += " Failed requirements: " + ", ".join(f"{l} {f}" for l, f in zip(L, fails)) + "."
     page1.append(D.Para(f"Question: {q} {ans}", "answer", html=f"<b>Question.</b> {_x(q)}<br/><b>Comparison.</b> "
                                                               f"{_x(ans)}"))
     page1.append(D.Para("The options", "subhead"))
@@ -780,6 +809,10 @@ def build_comparison(results, decisions, paper="a4", progress=None) -> D.Documen
                           "score"], rows, "The options and their base placements",
                          widths=[0.8, 3.2, 1.6, 1, 1, 1.1, 1, 0.9, 0.9],
                          align=["l", "l", "l", "r", "r", "r", "r", "l", "r"]))
+    samples = [(_path_polylines(r, d) if r.kind == "path_audit" else None) for r, d in zip(results, decisions)]
+    page1.append(D.Figure(G.top_views(decisions, L, samples), "The options seen from above (cell frame, mm), each arm "
+                          "drawn at its own risk 1 or weakest point; equipment grey, work points blue, paths orange, "
+                          "the base yellow."))
     page1.append(D.Para("Verdicts side by side", "subhead"))
     page1.append(_compare_verdicts(cmp))
     page1.append(D.Para("Differences between the options", "subhead"))
@@ -819,7 +852,7 @@ def build_comparison(results, decisions, paper="a4", progress=None) -> D.Documen
                              ("cell file sha256", fingerprint(r.cell_text))]))
     doc = D.Document(title, cmp.kind, page1, body, paper=paper)
     doc.meta["comparison"] = cmp
-    doc.meta["footer"] = f"{title} · kinematic and static maps, not a risk assessment (see the cautions)"
+    doc.meta["footer"] = f"{title} · kinematic and static maps, not a risk assessment"
     return doc.number()
 
 

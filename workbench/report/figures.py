@@ -168,7 +168,7 @@ def _cylinder_2d(c, a, b):
 
 
 def draw_cell(ax, cell, a, b, *, decision=None, pose=None, arm=None, paths=True, labels=True, region=True,
-              risk_marks=None, samples=None):
+              risk_marks=None, samples=None, planes=None):
     """Draw a cell projected on axes (a, b) of the cell frame (0 = x, 1 = y, 2 = z) in mm.
 
     Parameters
@@ -180,6 +180,7 @@ def draw_cell(ax, cell, a, b, *, decision=None, pose=None, arm=None, paths=True,
     pose, arm : the arm (mounted) and the pose (n,) to draw, optional
     risk_marks : list of (label, xyz) to mark, optional
     samples : list of (name, (N, 3) xyz) path polylines to draw instead of sampling the cell's paths
+    planes : list of (4, 3) corner arrays (m) of study planes (a load map's slice), drawn dashed
     """
     import matplotlib.patches as mp
 
@@ -225,6 +226,11 @@ def draw_cell(ax, cell, a, b, *, decision=None, pose=None, arm=None, paths=True,
         for name, P in drawn:
             ln, = ax.plot(P[:, a] * f, P[:, b] * f, color=PATH_C, lw=1.2, solid_capstyle="round")
             handles.setdefault("paths", ln)
+    for C in planes or ():
+        C = np.asarray(C, float)
+        ln, = ax.plot(np.append(C[:, a], C[0, a]) * f, np.append(C[:, b], C[0, b]) * f, color="#7b1fa2", lw=1.1,
+                      ls=(0, (5, 2)), zorder=3)
+        handles["study slice"] = ln
     if cell is not None and cell.points:
         P = np.array([p.position for p in cell.points]) * f
         ln, = ax.plot(P[:, a], P[:, b], "o", ms=3.2, mfc="white", mec=POINT_C, mew=1.0, ls="none")
@@ -277,7 +283,7 @@ def side_axis(cell, decision=None) -> int:
     return int(np.argmax(np.ptp(P[:, :2], axis=0)))
 
 
-def cell_views(decision, height=3.2, risk_marks=True, title=True, samples=None):
+def cell_views(decision, height=3.0, risk_marks=True, title=True, samples=None, planes=None):
     """The cell from above and from the side with the arm at the recommendation's pose."""
     fig = new_figure(height)
     a1, a2 = fig.subplots(1, 2, width_ratios=[1, 1])
@@ -285,10 +291,11 @@ def cell_views(decision, height=3.2, risk_marks=True, title=True, samples=None):
     marks = []
     if risk_marks:
         marks = [(str(i + 1), r.position) for i, r in enumerate(decision.risks) if r.position is not None]
-    h = draw_cell(a1, decision.cell, 0, 1, pose=rec.pose, arm=decision.arm, risk_marks=marks, samples=samples)
+    h = draw_cell(a1, decision.cell, 0, 1, pose=rec.pose, arm=decision.arm, risk_marks=marks, samples=samples,
+                  planes=planes)
     side = side_axis(decision.cell)
     draw_cell(a2, decision.cell, side, 2, pose=rec.pose, arm=decision.arm, risk_marks=marks, labels=True,
-              samples=samples)
+              samples=samples, planes=planes)
     if title:
         a1.set_title("from above", fontsize=FONT + 0.5)
         a2.set_title(f"from the side (looking along {'+y' if side == 0 else '+x'})", fontsize=FONT + 0.5)
@@ -298,6 +305,37 @@ def cell_views(decision, height=3.2, risk_marks=True, title=True, samples=None):
     if labels:
         fig.legend([h[k] for k in labels], labels, loc="outside lower center", ncol=min(len(labels), 5),
                    fontsize=FONT - 1, frameon=False)
+    return fig
+
+
+def top_views(decisions, labels, samples=None, height=2.7):
+    """The cells of several options from above, side by side on the same scale."""
+    k = len(decisions)
+    cols = min(k, 3)
+    rows = math.ceil(k / cols)
+    fig = new_figure(height * rows)
+    axs = fig.subplots(rows, cols, squeeze=False)
+    handles = {}
+    boxes = []
+    for i in range(rows * cols):
+        a = axs[i // cols][i % cols]
+        if i >= k:
+            a.axis("off")
+            continue
+        d = decisions[i]
+        handles.update(draw_cell(a, d.cell, 0, 1, pose=d.recommendation.pose, arm=d.arm, labels=False,
+                                 samples=None if samples is None else samples[i]))
+        a.set_title(f"option {labels[i]}", fontsize=FONT + 0.5)
+        a.autoscale_view()
+        boxes.append((a.get_xlim(), a.get_ylim()))
+    if boxes:  # one scale for all
+        x0, x1 = min(b[0][0] for b in boxes), max(b[0][1] for b in boxes)
+        y0, y1 = min(b[1][0] for b in boxes), max(b[1][1] for b in boxes)
+        for i in range(k):
+            a = axs[i // cols][i % cols]
+            a.set_xlim(x0, x1)
+            a.set_ylim(y0, y1)
+            a.set_aspect("equal", adjustable="datalim")
     return fig
 
 
@@ -520,8 +558,6 @@ def side_by_side_maps(Zs, labels, ax_x, ax_y, label, vmin, vmax, cell=None, mark
     rows = math.ceil(k / cols)
     fig = new_figure(2.5 * rows + 0.5)
     axs = fig.subplots(rows, cols, squeeze=False)
-    sx, _ = _disp(ax_x)
-    sy, _ = _disp(ax_y)
     im = None
     for i in range(rows * cols):
         a = axs[i // cols][i % cols]

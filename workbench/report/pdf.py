@@ -334,9 +334,15 @@ def _make_doc_class():
             canv.setFont(F["sans"], 6.8)
             canv.setFillGray(0.35)
             y = self.bottomMargin - 9.5
-            canv.drawString(self.leftMargin, y, self.rep.meta.get("footer", "")[:120])
             total = self.pages_total or 0
             txt = f"page {doc.page} of {total}" if total else f"page {doc.page}"
+            from reportlab.pdfbase.pdfmetrics import stringWidth
+
+            foot = self.rep.meta.get("footer", "")
+            room = self.width - stringWidth(txt, F["sans"], 6.8) - 12
+            while foot and stringWidth(foot, F["sans"], 6.8) > room:
+                foot = foot[:-2].rstrip() + "…"
+            canv.drawString(self.leftMargin, y, foot)
             canv.drawRightString(self.leftMargin + self.width, y, txt)
             canv.setStrokeGray(0.75)
             canv.setLineWidth(0.4)
