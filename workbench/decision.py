@@ -114,7 +114,7 @@ def fmt_mm(metres, decimals: int | None = None) -> str:
     if not math.isfinite(v):
         return fmt_number(v)
     if decimals is None:
-        decimals = 1 if 0 < abs(v) < 9.95 else 0
+        decimals = 1 if 0.05 <= abs(v) < 9.95 else 0
     return _clean(f"{v:.{decimals}f}")
 
 
@@ -886,21 +886,31 @@ def _path_decision(ctx: _Ctx) -> Decision:
     risks = []
     from .studies.path_audit import near_singular_spans
 
-    spans = near_singular_spans(dist, np.where(reached, inv, np.inf), thr, pidx)
+    # regions of trouble: near-singular samples with the unreached samples and branch flips
+    # between or beside them (one place, told once)
+    near = reached & (inv < thr)
+    bad = done & (near | ~reached | flips)
+    runs = near_singular_spans(dist, np.where(bad, 0.0, 1.0), 0.5, pidx)
+    spans = [(i0, i1) for i0, i1 in runs if near[i0:i1].any()]
     for (i0, i1) in spans:
-        k = i0 + int(np.argmin(inv[i0:i1]))
+        seg = np.flatnonzero(near[i0:i1]) + i0
+        k = int(seg[np.argmin(inv[seg])])
         p = pidx[k]
         lost, cause = _cause(arm, q[k], s.rows, length, thr)
         what = f"near singular from {fmt_mm(dist[i0])} to {fmt_mm(dist[i1 - 1])} mm (inverse condition down to " \
                f"{fmt_number(inv[k])} at {fmt_mm(dist[k])} mm, threshold {fmt_number(thr)})"
         if cause:
             what += f": {_lower_first(cause).rstrip('.')}"
+        miss_n = int((~reached[i0:i1]).sum())
+        if miss_n:
+            what += f"; {miss_n} sample{'s' if miss_n > 1 else ''} there not reached"
         fl = [j for j in range(i0, i1) if flips[j]]
         if fl:
-            what += f"; the arm flips branch at {fmt_mm(dist[fl[0]])} mm"
-        change = _span_change(arm, d, s, i0, i1, k, q, names[p], thr, length)
+            at = fmt_mm(dist[fl[0]]) + (f"-{fmt_mm(dist[fl[-1]])}" if len(fl) > 1 else "")
+            what += f"; the arm flips branch at {at} mm"
+        change = _span_change(arm, d, s, int(seg[0]), int(seg[-1]) + 1, k, q, names[p], thr, length)
         risks.append(Risk("near_singular", f"{names[p]}, {fmt_mm(dist[i0])}-{fmt_mm(dist[i1 - 1])} mm", what, change,
-                          thr / max(inv[k], 1e-300), q[k], np.asarray(a["xyz"][k], float)))
+                          2.0 + math.log10(thr / max(inv[k], 1e-300)), q[k], np.asarray(a["xyz"][k], float)))
     in_span = np.zeros(len(dist), bool)
     for i0, i1 in spans:
         in_span[i0:i1] = True
@@ -911,7 +921,13 @@ def _path_decision(ctx: _Ctx) -> Decision:
                           f"the arm changes branch: joint{'s' if len(js) > 1 else ''} {', '.join(js)} jump by up to "
                           f"{fmt_number(step.max())} deg between two samples",
                           "the controller cannot follow this continuously: move the path or the base, or split the "
-                          "path there", 5.0, q[k], np.asarray(a["xyz"][k], float)))
+                          "path there", 2.0, q[k], np.asarray(a["xyz"][k], float)))
+    lost_runs = near_singular_spans(dist, np.where(done & ~reached & ~in_span, 0.0, 1.0), 0.5, pidx)
+    for i0, i1 in lost_runs:
+        risks.append(Risk("unreached", f"{names[pidx[i0]]}, {fmt_mm(dist[i0])}-{fmt_mm(dist[i1 - 1])} mm",
+                          f"{i1 - i0} sample{'s' if i1 - i0 > 1 else ''} not reached (no IK solution inside the "
+                          f"limits was tracked there)", "move the path within reach or the base closer to it", 3.0,
+                          None, np.asarray(a["xyz"][i0], float)))
     if has_limits and np.isfinite(np.where(reached, ratio, np.nan)).any():
         for p, nm in enumerate(names):
             m = reached & (pidx == p) & np.isfinite(ratio)

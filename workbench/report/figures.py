@@ -335,7 +335,7 @@ def top_views(decisions, labels, samples=None, height=2.7):
             a = axs[i // cols][i % cols]
             a.set_xlim(x0, x1)
             a.set_ylim(y0, y1)
-            a.set_aspect("equal", adjustable="datalim")
+            a.set_aspect("equal", adjustable="box")
     return fig
 
 
