@@ -10,12 +10,11 @@ from workbench.decision import (FAIL, NOT_CHECKED, PASS, arm_shapes, compare_dec
                                 fmt_mm, fmt_number, fmt_percent)
 from workbench.errors import WorkbenchError
 
-from reportcell import make_results
 
 
 @pytest.fixture(scope="module")
-def res(tmp_path_factory):
-    return make_results(tmp_path_factory.mktemp("dec"))
+def res(small_cell_results):
+    return small_cell_results[1]
 
 
 @pytest.fixture(scope="module")
