@@ -487,7 +487,7 @@ def sensitivity_figure(kinds, offsets, drops_pct):
 
 def path_charts(s_mm, inv, ratio, qdot_deg, margin, flips, thr, joint_names, has_speed=True, title=""):
     """Inverse condition, joint-speed ratio, joint speeds and limit margin against distance."""
-    fig = new_figure(4.6)
+    fig = new_figure(4.05)
     axs = fig.subplots(4, 1, sharex=True)
     a1, a2, a3, a4 = axs
     a1.plot(s_mm, inv, lw=1, color="#1f77b4")
@@ -498,17 +498,17 @@ def path_charts(s_mm, inv, ratio, qdot_deg, margin, flips, thr, joint_names, has
                         label="near-singular span")
     a1.set_ylabel("inverse\ncondition")
     a1.set_ylim(bottom=0)
-    a1.legend(fontsize=FONT - 2, loc="upper right")
+    a1.legend(fontsize=FONT - 2, loc="best")
     if has_speed:
         a2.plot(s_mm, ratio, lw=1, color="#e67e22")
         a2.axhline(1.0, color=RISK_C, lw=0.8, ls="--", label="joint speed limit")
         a2.set_yscale("log")
-        a2.legend(fontsize=FONT - 2, loc="upper right")
+        a2.legend(fontsize=FONT - 2, loc="best")
     a2.set_ylabel("speed needed\n/ limit")
     for j in range(qdot_deg.shape[1]):
         a3.plot(s_mm, qdot_deg[:, j], lw=0.8, label=joint_names[j] if j < len(joint_names) else f"j{j + 1}")
     a3.set_ylabel("joint speed\n(deg/s)")
-    a3.legend(fontsize=FONT - 2.5, ncol=min(qdot_deg.shape[1], 7), loc="upper right")
+    a3.legend(fontsize=FONT - 2.5, ncol=min(qdot_deg.shape[1], 7), loc="best")
     a4.plot(s_mm, margin, lw=1, color="#2e8b57")
     if flips.any():
         a4.plot(s_mm[flips], margin[flips], "x", color=RISK_C, label="branch flip")
