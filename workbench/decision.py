@@ -1208,7 +1208,7 @@ def _generic_decision(ctx: _Ctx) -> Decision:
             frac = float((inv[fin] < thr).mean())
             verdicts.append(Verdict("inverse_condition", "Inverse condition over the map", f"≥ {fmt_number(thr)}",
                                     fmt_number(inv[k]), w, PASS if inv[k] >= thr else FAIL,
-                                    f"{fmt_percent(frac)} of the map is below", float(inv[k]), thr))
+                                    f"{fmt_percent(frac)} of the map is below {fmt_number(thr)}", float(inv[k]), thr))
             qa = r.arrays.get("q")
             if qa is not None and np.asarray(qa).reshape(len(inv), -1).shape[1] == arm.n:
                 pose = np.asarray(qa, float).reshape(len(inv), arm.n)[k]
@@ -1220,11 +1220,18 @@ def _generic_decision(ctx: _Ctx) -> Decision:
             if pose is not None and np.all(np.isfinite(pose)):
                 length = ctx.settings.get("length")
                 lost, cause = _cause(arm, pose, ctx.settings.get("rows", "full"), length, thr, "world frame")
-                risks.append(Risk("near_singular", w, (f"{fmt_percent(frac)} of the map is near singular; the worst "
+                risks.append(Risk("near_singular", w, (f"{fmt_percent(frac)} of the map is near singular (inverse "
+                                                       f"condition below {fmt_number(thr)}); the worst "
                                                        f"pose: {_lower_first(cause or lost).rstrip('.')}"),
                                   "keep the task away from these poses", thr / max(inv[k], 1e-300), pose))
                 label = f"the arm drawn at the worst pose ({w})"
-    if "reached" in r.arrays and r.kind == "reach_slice":
+    reach = ctx.table("reach")
+    if reach is not None and "reached" in reach.columns and "points" in reach.columns:
+        n_ok, n_all = int(np.asarray(reach.columns["reached"])[0]), int(np.asarray(reach.columns["points"])[0])
+        verdicts.append(Verdict("reached", "Slice points reached (information)", "-",
+                                f"{n_ok} of {n_all} ({fmt_percent(n_ok / max(n_all, 1), 0)})", "-", NOT_CHECKED,
+                                "the slice is a survey, not a requirement", float(n_ok), None))
+    elif "reached" in r.arrays and r.kind == "reach_slice":
         rr = np.asarray(r.arrays["reached"]).reshape(-1) > 0
         verdicts.append(Verdict("reached", "Slice points reached (information)", "-",
                                 f"{int(rr.sum())} of {rr.size} ({fmt_percent(rr.mean(), 0)})", "-", NOT_CHECKED,
@@ -1245,7 +1252,7 @@ def _generic_decision(ctx: _Ctx) -> Decision:
 def _cell_where(r, flat):
     idx = np.unravel_index(flat, r.shape)
     parts = []
-    for a_, i in zip(r.axes, idx):
+    for a_, i in reversed(list(zip(r.axes, idx))):
         if a_.name == "sample":
             parts.append(f"sample {int(i) + 1}")
             continue

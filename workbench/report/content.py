@@ -549,9 +549,13 @@ def _measure_setting(r):
 def _views_caption(dec, what) -> str:
     rec = dec.recommendation
     shapes = "its collision shapes" if _has_shapes(dec) else "lines between its joints (the arm has no shapes)"
-    txt = (f"The cell from above and from the side with the arm at {what}, {rec.pose_label or 'at its home pose'}; "
-           f"links drawn as {shapes}. Equipment grey, keep-out zones red hatched, work points blue circles, paths "
-           f"orange, the candidate region green dashed, the base yellow with its x axis as an arrow")
+    txt = (f"The {'cell' if dec.cell is not None else 'arm'} from above and from the side with the arm at {what}, "
+           f"{rec.pose_label or 'at its home pose'}; links drawn as {shapes}. ")
+    if dec.cell is not None:
+        txt += ("Equipment grey, keep-out zones red hatched, work points blue circles, paths orange, the candidate "
+                "region green dashed, the base yellow with its x axis as an arrow")
+    else:
+        txt += "The study has no cell: the arm alone, its base yellow with its x axis as an arrow"
     if any(r.position is not None for r in dec.risks):
         txt += "; circled numbers mark the risks"
     return txt + ". Lengths in mm, cell frame."
