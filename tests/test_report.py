@@ -254,3 +254,19 @@ def test_cli_report_error_is_one_line(tmp_path):
     from workbench.cli import main
 
     assert main(["report", str(tmp_path / "missing.h5"), "--out", str(tmp_path / "r.pdf")]) == 2
+
+
+def test_no_text_touches_the_page_edges(reports):
+    # every word of every page (title included) lies inside the page margins (pdftotext -bbox)
+    _, _, out = reports
+    for key in ("ms_pdf", "pa_pdf"):
+        xml = subprocess.run(["pdftotext", "-bbox", str(out[key]), "-"], capture_output=True, text=True,
+                             check=True).stdout
+        pages = re.findall(r'<page width="([\d.]+)" height="([\d.]+)">(.*?)</page>', xml, re.S)
+        assert pages
+        margin = D.MARGIN_X * 72 / 25.4
+        for w, h, body in pages:
+            for x0, y0, x1, y1 in re.findall(r'<word xMin="([\d.]+)" yMin="([\d.]+)" xMax="([\d.]+)" '
+                                             r'yMax="([\d.]+)"', body):
+                assert float(x0) >= margin - 1 and float(x1) <= float(w) - margin + 1, (key, x0, x1)
+                assert float(y0) >= 10 and float(y1) <= float(h) - 10, (key, y0, y1)
