@@ -279,7 +279,7 @@ def _height(fl, width) -> float:
 
 
 def _first_lines(flowables, width) -> float:
-    """Height of the first few lines of what follows a heading: a caption and four table rows, the
+    """Height of the first few lines of what follows a heading: a caption and three table rows, the
     first eight lines of a file text, or the first paragraph (at most 80 pt)."""
     from reportlab.platypus import Preformatted, Table
 
@@ -287,7 +287,7 @@ def _first_lines(flowables, width) -> float:
     for f in flowables:
         if isinstance(f, Table):
             f.wrap(width, 1e6)
-            return need + sum(f._rowHeights[:5])
+            return need + sum(f._rowHeights[:4])
         if isinstance(f, Preformatted):
             return need + 8 * f.style.leading
         h = _height(f, width)
