@@ -556,10 +556,6 @@ def _cycle_verdict(ctx):
                    "lower")
 
 
-def _threshold_text(thr) -> str:
-    return fmt_number(thr)
-
-
 # ----------------------------------------------------------------------------------------------
 # mount search
 

@@ -14,7 +14,7 @@ import tomllib
 
 import numpy as np
 
-from ..decision import (FAIL, LIMIT_MARGIN, NOT_CHECKED, PASS, SENSITIVITY_DROP, fmt_deg, fmt_mm, fmt_number,
+from ..decision import (FAIL, LIMIT_MARGIN, NOT_CHECKED, SENSITIVITY_DROP, fmt_deg, fmt_mm, fmt_number,
                         fmt_percent)
 from . import document as D
 from . import figures as G
@@ -480,7 +480,6 @@ def _mount_doc(r, dec, csv_name, progress) -> D.Document:
     vmax = float(np.nanmax(score)) if np.isfinite(score).any() else 1.0
     yaws = ax["yaw"].values
     heights = ax["height"].values
-    styles = [str(_s(s)) for s in (r.tables["refined"].columns["style"] if "refined" in r.tables else [])]
     for si in range(S):
         mc = None
         if rec.kind == "mount":
@@ -494,7 +493,6 @@ def _mount_doc(r, dec, csv_name, progress) -> D.Document:
                                                mark_cell=mc),
                              "Map score per base yaw (columns) and height (rows), x and y in mm, one colour scale; "
                              "the star marks the grid panel nearest the recommended mount's yaw and height."))
-    del styles
     sens = r.tables.get("sensitivity")
     if sens is not None and sens.rows:
         body.append(D.Heading("Sensitivity to placement errors", 2))
