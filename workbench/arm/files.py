@@ -18,6 +18,7 @@ Schema (angles in degrees, lengths in the file's ``length_unit``: "m" or "mm")::
     limits = [-170, 170]         # optional (default unlimited); lower < upper
     max_speed = 180              # optional: deg/s or length-unit/s
     max_effort = 800             # optional: N m (revolute) or N (prismatic)
+    max_acceleration = 600       # optional: deg/s^2 or length-unit/s^2 (cycle-time estimates)
     mass = 12.5                  # optional: kg of the link this joint moves
     com = [0, 0, 0.1]            # optional: centre of mass in that link's frame (length unit)
 
@@ -90,7 +91,8 @@ _DEG = math.pi / 180.0
 _UNITS = {"m": 1.0, "mm": 1e-3}
 _TOP_KEYS = {"arm", "joint", "tool", "mount", "flange", "base"}
 _ARM_KEYS = {"name", "description", "geometry", "length_unit", "home", "skip"}
-_JOINT_COMMON = {"name", "type", "limits", "max_speed", "max_effort", "mass", "com", "radius", "shape"}
+_JOINT_COMMON = {"name", "type", "limits", "max_speed", "max_effort", "max_acceleration", "mass", "com", "radius",
+                 "shape"}
 _JOINT_GEOM = {"dh": {"a", "alpha", "d", "theta"}, "mdh": {"a", "alpha", "d", "theta"},
                "origins": {"xyz", "rpy", "rot", "axis"}}
 _TOOL_KEYS = {"xyz", "rpy", "rot", "mass", "com", "radius", "shape"}
@@ -536,6 +538,8 @@ def parse_arm_dict(data: dict, source_name: str = "<arm>", text: str | None = No
             lower, upper = lo * qscale, hi * qscale
         max_speed = sj.num(jr["max_speed"], "max_speed", positive=True) * qscale if "max_speed" in jr else None
         max_effort = sj.num(jr["max_effort"], "max_effort", positive=True) if "max_effort" in jr else None
+        max_acc = (sj.num(jr["max_acceleration"], "max_acceleration", positive=True) * qscale
+                   if "max_acceleration" in jr else None)
         mass = sj.num(jr["mass"], "mass", nonneg=True) if "mass" in jr else None
         com = None
         if "com" in jr:
@@ -553,7 +557,7 @@ def parse_arm_dict(data: dict, source_name: str = "<arm>", text: str | None = No
             short_radius[i] = rr * L
         shape_lists.append(shapes)
         joints.append(Joint(jname, kind, np.ascontiguousarray(origin), axis, lower, upper,
-                            max_speed, max_effort, mass, com))
+                            max_speed, max_effort, mass, com, max_acc))
 
     end = posts[-1] if geometry == "dh" else np.eye(4)
     if "flange" in data:
@@ -645,7 +649,7 @@ def same_arm(a: ArmModel, b: ArmModel, atol: float = 1e-9) -> bool:
     if (a.name, a.description, a.names, tuple(a.kinds)) != (b.name, b.description, b.names, tuple(b.kinds)):
         return False
     for x, y in ((a.lower, b.lower), (a.upper, b.upper), (a.max_speed, b.max_speed),
-                 (a.max_effort, b.max_effort), (a.masses, b.masses)):
+                 (a.max_effort, b.max_effort), (a.masses, b.masses), (a.max_acceleration, b.max_acceleration)):
         if not np.allclose(x, y, rtol=1e-12, atol=atol, equal_nan=True):
             return False
     for ja, jb in zip(a.joints, b.joints):
@@ -694,6 +698,8 @@ def _model_to_dict(model: ArmModel) -> dict:
             jd["max_speed"] = _tidy(j.max_speed / s)
         if j.max_effort is not None:
             jd["max_effort"] = float(j.max_effort)
+        if j.max_acceleration is not None:
+            jd["max_acceleration"] = _tidy(j.max_acceleration / s)
         if j.mass is not None:
             jd["mass"] = float(j.mass)
         if j.com is not None:

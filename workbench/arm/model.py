@@ -61,6 +61,8 @@ class Joint:
         Mass (kg) of the link moved by this joint.
     com : (3,) ndarray or None
         Centre of mass of that link in this joint's frame (m).
+    max_acceleration : float or None
+        Largest joint acceleration, rad/s^2 or m/s^2 (cycle-time estimates).
     shapes : tuple of workbench.arm.shapes.Shape
         Collision shapes of that link in this joint's frame (m); empty when none are given.
     """
@@ -75,6 +77,7 @@ class Joint:
     max_effort: float | None = None
     mass: float | None = None
     com: np.ndarray | None = None
+    max_acceleration: float | None = None
     shapes: tuple = ()
 
     @property
@@ -157,6 +160,12 @@ class ArmModel:
     def max_speed(self) -> np.ndarray:
         """(n,) joint speed limits; NaN where not given."""
         return np.array([np.nan if j.max_speed is None else j.max_speed for j in self.joints], dtype=float)
+
+    @cached_property
+    def max_acceleration(self) -> np.ndarray:
+        """(n,) joint acceleration limits; NaN where not given."""
+        return np.array([np.nan if j.max_acceleration is None else j.max_acceleration for j in self.joints],
+                        dtype=float)
 
     @cached_property
     def max_effort(self) -> np.ndarray:

@@ -62,6 +62,11 @@ The floor (z = 0) is an obstacle unless ``[cell] floor = false``.
     xyz = [0.2, 0.0, 0.3]
     rpy = [0, 0, 90]
 
+    [requirements]                     # optional: what the work asks (workbench.studies.requirements)
+    force = [0, 0, 150]                # N the tool exerts (tool frame unless wrench_frame = "cell")
+    payload = 12.0                     # kg, with payload_com (offset from the TCP, tool frame)
+    # per point / per path: requirements = {force = [0, 0, 200], time = 8.0} inside [[point]] / [[path]]
+
 Mount styles: a candidate base frame is ``T(x, y, h) @ Rz(yaw) @ Ry(tilt)`` with tilt 0 (floor,
 base z up), 90 (wall: base z horizontal, pointing along the yaw direction), 180 (ceiling, base z
 down) or the given tilt in degrees.
@@ -93,10 +98,10 @@ STYLE_TILTS = {"floor": 0.0, "wall": 90.0, "ceiling": 180.0}
 MAX_MOUNT_CANDIDATES = 2_000_000
 _DEG = math.pi / 180.0
 _UNITS = {"m": 1.0, "mm": 1e-3}
-_TOP = {"cell", "point", "path", "box", "mount", "placement", "cylinder", "keep_out"}
+_TOP = {"cell", "point", "path", "box", "mount", "placement", "requirements", "cylinder", "keep_out"}
 _CELL_KEYS = {"name", "description", "length_unit", "floor"}
-_POINT_KEYS = {"name", "xyz", "orientation", "rpy", "axis", "tolerance", "angle_tolerance"}
-_PATH_KEYS = {"name", "speed", "through", "start", "segments", "orientation"}
+_POINT_KEYS = {"name", "xyz", "orientation", "rpy", "axis", "tolerance", "angle_tolerance", "requirements"}
+_PATH_KEYS = {"name", "speed", "through", "start", "segments", "orientation", "requirements"}
 _BOX_KEYS = {"name", "center", "size", "yaw", "collide"}
 _KEEP_KEYS = {"name", "center", "size", "yaw"}
 _CYL_KEYS = {"name", "center", "radius", "height", "axis", "collide"}
@@ -257,6 +262,21 @@ class Cell:
         out += [("cylinder", c) for c in self.cylinders if c.collide]
         out += [("keep_out", k) for k in self.keep_outs]
         return out
+
+    requirements: object = None          # cell-wide Requirements (workbench.studies.requirements)
+    point_requirements: dict = field(default_factory=dict)   # point name -> Requirements (merged)
+    path_requirements: dict = field(default_factory=dict)    # path name -> Requirements (merged)
+
+    def requirements_for(self, point: str | None = None, path: str | None = None):
+        """The :class:`~workbench.studies.requirements.Requirements` of a work point or a path (the
+        cell-wide ones merged with its own), or the cell-wide ones."""
+        from .requirements import Requirements
+
+        if point is not None and point in self.point_requirements:
+            return self.point_requirements[point]
+        if path is not None and path in self.path_requirements:
+            return self.path_requirements[path]
+        return self.requirements if self.requirements is not None else Requirements()
 
     @property
     def sha256(self) -> str:
@@ -661,8 +681,23 @@ def parse_cell_text(text: str, source_name: str = "<cell>") -> Cell:
         placement = make_transform(_vec(ctx, pl.get("xyz", [0, 0, 0]), "placement", None, "xyz") * L,
                                    _vec(ctx, pl.get("rpy", [0, 0, 0]), "placement", None, "rpy") * _DEG)
 
+    # ---- requirements: cell-wide defaults, then per point / per path
+    from .requirements import Requirements, parse_requirements
+
+    base = Requirements()
+    if "requirements" in data:
+        base = parse_requirements(ctx, data["requirements"], ("requirements", None), L, base, "cell")
+    point_reqs, path_reqs = {}, {}
+    for i, p in enumerate(raw_pts):
+        if "requirements" in p:
+            point_reqs[points[i].name] = parse_requirements(ctx, p["requirements"], ("point", i), L, base, "point")
+    for i, p in enumerate(raw_paths):
+        if "requirements" in p:
+            path_reqs[paths[i].name] = parse_requirements(ctx, p["requirements"], ("path", i), L, base, "path")
+
     return Cell(name.strip(), tuple(points), tuple(paths), tuple(boxes), mount, placement, desc, unit,
-                text, source_name, cylinders=tuple(cylinders), keep_outs=tuple(keep_outs), floor=floor)
+                text, source_name, requirements=base, point_requirements=point_reqs, path_requirements=path_reqs,
+                cylinders=tuple(cylinders), keep_outs=tuple(keep_outs), floor=floor)
 
 
 # ----------------------------------------------------------------------------------------------
