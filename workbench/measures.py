@@ -972,7 +972,11 @@ class Payload:
         object.__setattr__(self, "mass", m)
         object.__setattr__(self, "com", c)
         if self.inertia is not None:
-            I = np.asarray(self.inertia, dtype=float)
+            shown = np.asarray(self.inertia).tolist() if isinstance(self.inertia, np.ndarray) else self.inertia
+            try:
+                I = np.asarray(self.inertia, dtype=float)
+            except (TypeError, ValueError):
+                raise WorkbenchError(f"payload inertia: expected numbers (kg m^2), got {shown!r}") from None
             if I.shape == (3,):
                 I = np.diag(I)
             if I.shape == (6,):  # ixx iyy izz ixy ixz iyz
@@ -980,9 +984,9 @@ class Payload:
                 I = np.array([[xx, xy, xz], [xy, yy, yz], [xz, yz, zz]])
             if I.shape != (3, 3) or not np.all(np.isfinite(I)) or not np.allclose(I, I.T, atol=1e-12):
                 raise WorkbenchError(f"payload inertia: expected a symmetric 3x3 matrix, 3 principal values or "
-                                     f"[ixx, iyy, izz, ixy, ixz, iyz] in kg m^2, got {self.inertia!r}")
+                                     f"[ixx, iyy, izz, ixy, ixz, iyz] in kg m^2, got {shown!r}")
             if np.linalg.eigvalsh(I).min() < -1e-12 * max(1.0, float(np.abs(I).max())):
-                raise WorkbenchError(f"payload inertia: not positive semi-definite: {self.inertia!r}")
+                raise WorkbenchError(f"payload inertia: not positive semi-definite: {shown!r}")
             object.__setattr__(self, "inertia", I)
 
 

@@ -70,11 +70,24 @@ def _load_arm(path):
 
 
 def _atomic_target(path):
-    """A temporary name beside ``path`` with the same extension (write there, then os.replace)."""
+    """A temporary name beside ``path`` with the same extension (write there, then :func:`_commit`)."""
     folder = os.path.dirname(os.path.abspath(path)) or "."
     fd, tmp = tempfile.mkstemp(prefix=".~wb-", suffix=os.path.splitext(path)[1], dir=folder)
     os.close(fd)
     return tmp
+
+
+def usual_mode() -> int:
+    """The mode a plain ``open`` gives a new file: 0666 less the umask (``tempfile`` makes 0600)."""
+    mask = os.umask(0)
+    os.umask(mask)
+    return 0o666 & ~mask
+
+
+def _commit(tmp, path):
+    """Give the finished temporary file the usual mode and move it to ``path``."""
+    os.chmod(tmp, usual_mode())
+    os.replace(tmp, path)
 
 
 class MainWindow(QtWidgets.QMainWindow):
@@ -119,6 +132,9 @@ class MainWindow(QtWidgets.QMainWindow):
         self.selection = Selection(0)
 
         # ---- widgets ---------------------------------------------------------------------
+        from .style import apply_plot_style
+
+        apply_plot_style()
         self.scene, gl_note = make_scene(self)
         self.map_view = MapView(self.selection)
         self.hist_view = HistogramView(self.selection)
@@ -287,6 +303,9 @@ class MainWindow(QtWidgets.QMainWindow):
         except OSError as exc:
             self.show_error(f"{path}: {exc.strerror or exc}")
             return False
+        except Exception as exc:    # a bug behind the file: say so in one line, keep the window going
+            self.show_error(f"{path}: could not be opened ({exc.__class__.__name__}: {exc})")
+            return False
         self._add_recent(path)
         self.settings.setValue("last_dir", os.path.dirname(os.path.abspath(path)))
         self.status.showMessage(f"opened {kind} file {path}", 8000)
@@ -337,6 +356,7 @@ class MainWindow(QtWidgets.QMainWindow):
         self.arm_path = spec.arm_path
         self._set_arm(arm)
         self.study_panel.load_spec(spec)
+        self.clear_result()        # the previous study's result, summary and file no longer apply
 
     def _apply_results(self, path):
         from ..results import read_results
@@ -352,6 +372,10 @@ class MainWindow(QtWidgets.QMainWindow):
             self.scene.set_cell(self.cell_content)
         self.arm_path = session.spec.arm_path
         self._set_arm(session.arm)
+        try:      # the form shows the study behind the file (its kind and settings)
+            self.study_panel.load_spec(session.spec)
+        except WorkbenchError as exc:
+            self.status.showMessage(f"the study of this file is not offered here: {exc}", 8000)
         self.show_result(session.data)
         self.status.showMessage(f"results of {session.spec.name}: {100 * session.data.fraction_done:.0f}% of "
                                 f"the cells computed" + (" (incomplete run)" if res.incomplete else ""), 10000)
@@ -375,8 +399,9 @@ class MainWindow(QtWidgets.QMainWindow):
             self.recent_menu.addAction("(none yet)").setEnabled(False)
 
     # ---- arm state -----------------------------------------------------------------------
-    def _fit_scene(self):
-        """Scene bounds: the arm's reach around its base, and the cell's content."""
+    def _fit_scene(self, extra=None):
+        """Scene bounds: the arm's reach around its base, the cell's content and ``extra`` (k, 3)
+        points (ghost arms). With ``extra`` the bounds only grow, and only when it is outside."""
         arm = self.state.arm
         base = arm.model.mount[:3, 3]
         r = arm.nominal_reach()
@@ -388,6 +413,14 @@ class MainWindow(QtWidgets.QMainWindow):
             pts = np.vstack([p for p in pts if len(p)]) if any(len(p) for p in pts) else np.zeros((0, 3))
             if len(pts):
                 lo, hi = np.minimum(lo, pts.min(0)), np.maximum(hi, pts.max(0))
+        if extra is not None:
+            e = np.asarray(extra, float).reshape(-1, 3)
+            e = e[np.all(np.isfinite(e), axis=1)]
+            blo, bhi = getattr(self.scene, "_bounds", (lo, hi))
+            lo, hi = np.minimum(lo, blo), np.maximum(hi, bhi)
+            if not len(e) or (np.all(e >= lo) and np.all(e <= hi)):
+                return
+            lo, hi = np.minimum(lo, e.min(0)), np.maximum(hi, e.max(0))
         self.scene.fit(lo, hi)
 
     def _arm_changed(self, keep_arm=False):
@@ -520,6 +553,24 @@ class MainWindow(QtWidgets.QMainWindow):
         return ok
 
     # ---- results -------------------------------------------------------------------------
+    def clear_result(self):
+        """No result behind the views (a new study was loaded): empty map, list and summary."""
+        self.session = None
+        self.result = None
+        self.results_file = None
+        self.selection.resize(0)
+        empty = ResultData(kind="", shape=(1, 1), x=np.zeros(1), y=np.zeros(1), x_label="", y_label="",
+                           measures={"inverse_condition": np.full(1, np.nan)})
+        self.map_view.set_result(empty)
+        self.map_view.data = None
+        self.hist_view.set_result(empty, "inverse_condition")
+        self.hist_view.data = None
+        self.pose_list.set_result(empty)
+        self.pose_list.model.data_ = None
+        self.summary_view.setHtml(tables_html({}))
+        self.scene.set_ghosts(None)
+        self._show_candidates()
+
     def show_result(self, data: ResultData):
         self.result = data
         self.selection.resize(data.size)
@@ -614,7 +665,10 @@ class MainWindow(QtWidgets.QMainWindow):
             ok = np.all(np.isfinite(q), axis=1)
             q = q[ok]
             mounts = mounts[ok] if mounts is not None else None
-        self.scene.set_ghosts(self.state.link_points(q, mounts) if q is not None and len(q) else None)
+        ghosts = self.state.link_points(q, mounts) if q is not None and len(q) else None
+        if ghosts is not None:
+            self._fit_scene(extra=ghosts.reshape(-1, 3))     # ghost arms stay inside the views
+        self.scene.set_ghosts(ghosts)
         self.status.showMessage(f"{sel.count} cells brushed; {0 if q is None else len(q)} shown as ghost arms", 5000)
 
     def pick_cell(self, c):
@@ -630,6 +684,7 @@ class MainWindow(QtWidgets.QMainWindow):
         if d.mount_fn is not None:
             self._place_arm(d.mount_fn(c))
         self.state.set_q(q)
+        self.map_view.mark_cell(c)
         x, y = d.cell_xy(c)
         self.status.showMessage(f"cell {c} ({d.x_label} {x:.4g}" + (f", {d.y_label} {y:.4g}" if y is not None else "")
                                 + ")", 6000)
@@ -699,11 +754,14 @@ class MainWindow(QtWidgets.QMainWindow):
                 gen.setFileName(tmp)
                 gen.setSize(w.size())
                 gen.setViewBox(QtCore.QRect(0, 0, w.width(), w.height()))
+                # the axes and colour bar paint recorded pictures, which Qt scales by the ratio of
+                # the devices' resolutions: at the generator's default 72 dpi they came out at 0.75
+                gen.setResolution(w.logicalDpiX())
                 gen.setTitle(f"Manipulability Workbench map: {self.result.title}")
                 painter = QtGui.QPainter(gen)
                 w.render(painter)
                 painter.end()
-            os.replace(tmp, path)
+            _commit(tmp, path)
         finally:
             if os.path.exists(tmp):
                 os.unlink(tmp)
@@ -733,7 +791,7 @@ class MainWindow(QtWidgets.QMainWindow):
             with open(tmp, "w", encoding="utf-8") as fh:
                 fh.write(",".join(f'"{h}"' for h in head) + "\n")
                 np.savetxt(fh, table, delimiter=",", fmt="%.10g")
-            os.replace(tmp, path)
+            _commit(tmp, path)
         finally:
             if os.path.exists(tmp):
                 os.unlink(tmp)
@@ -748,7 +806,7 @@ class MainWindow(QtWidgets.QMainWindow):
         tmp = _atomic_target(path)
         try:
             shutil.copyfile(self.results_file, tmp)
-            os.replace(tmp, path)
+            _commit(tmp, path)
         finally:
             if os.path.exists(tmp):
                 os.unlink(tmp)

@@ -55,9 +55,13 @@ class StudySession:
         if arrays is None:
             arrays = {f.name: f.empty(plan.cells) for f in plan.fields}
         self.arrays = {k: np.asarray(v) for k, v in arrays.items()}   # each (cells, *field shape)
+        #: (plan.cells,) which cells of the plan's grid are computed (the views may show fewer
+        #: cells: a mount search's floor map reduces over styles, heights and yaws)
+        self.cells_done = np.zeros(plan.cells, bool) if done is None else \
+            np.asarray(done, bool).reshape(-1).copy()
         self.data = self._result_data()
-        if done is not None:
-            self.data.done[:] = np.asarray(done, bool).reshape(-1)
+        if done is not None and self.data.size == plan.cells:
+            self.data.done[:] = self.cells_done
 
     def estimate(self):
         """:class:`workbench.studies.Estimate` (times a few cells)."""
@@ -183,6 +187,12 @@ class StudySession:
                           joint_kinds=tuple(j.kind for j in arm.model.joints),
                           title=(self.spec.name if self.spec is not None else "") or self.kind.title,
                           threshold_measure=thr)
+        # which map axes are joints (their values are also the joint columns of the pose list)
+        names = list(arm.names)
+        ax_x = axes[1] if len(axes) == 2 else (axes[0] if len(axes) == 1 else None)
+        ax_y = axes[0] if len(axes) == 2 else None
+        data.extras["axis_joints"] = {k: names.index(a.name) for k, a in (("x", ax_x), ("y", ax_y))
+                                      if a is not None and a.name in names and data.has_poses}
         if "tcp" in self.arrays and self.arrays["tcp"].shape[1:] == (3,):
             data.tcp = self.arrays["tcp"]
         if len(axes) == 1 and axes[0].name == "sample" and plan.kind != "path_audit":
@@ -194,13 +204,13 @@ class StudySession:
         for name, v in arrays.items():
             if name in self.arrays:
                 self.arrays[name][start:stop] = np.asarray(v).reshape((stop - start,) + self.arrays[name].shape[1:])
-        if self.plan.kind == "mount_search":
-            return
-        self.data.done[start:stop] = True
+        self.cells_done[start:stop] = True
+        if self.data.size == self.plan.cells:
+            self.data.done[start:stop] = True
 
     @property
     def complete(self) -> bool:
-        return bool(self.data.done.all())
+        return bool(self.cells_done.all())
 
 
 def session_from_spec(spec, arm=None, cell=None) -> StudySession:
