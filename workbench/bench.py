@@ -26,6 +26,7 @@ ENTRIES = [
     ("reach_slice", "workbench.studies.reach_slice:bench_reach_slice"),
     ("sweep", "workbench.runner:bench_sweep"),
     ("scaling", "workbench.runner:bench_scaling"),
+    ("shared", "workbench.runner:bench_shared"),
     ("memory", "workbench.runner:bench_memory"),
     ("mount_search", "workbench.studies.mount_search:bench_mount_search"),
     ("path_audit", "workbench.studies.path_audit:bench_path_audit"),
