@@ -8,7 +8,8 @@ import sys
 def add_parser(sub):
     p = sub.add_parser("bench", help="throughput of this machine against plain references, as ratios",
                        description="Run the engine and plain references on the same inputs in one process "
-                                   "and print rates, ratios and PASS/FAIL against the project's bars.")
+                                   "and print rates, ratios and PASS/FAIL against the project's bars. "
+                                   "Exit status 1 when any bar fails.")
     p.add_argument("--json", action="store_true", help="print machine-readable JSON")
     p.add_argument("--quick", action="store_true", help="smaller sizes (seconds, not minutes)")
     p.add_argument("--only", nargs="+", metavar="NAME", help="run only these entries")
@@ -16,7 +17,7 @@ def add_parser(sub):
 
 
 def run(args) -> int:
-    from ..bench import ENTRIES, format_results, run_benches
+    from ..bench import ENTRIES, failed_bars, format_results, run_benches
     from ..errors import WorkbenchError
 
     names = args.only
@@ -30,6 +31,10 @@ def run(args) -> int:
         print(json.dumps(results, indent=2, default=_jsonable))
     else:
         print(format_results(results))
+    failed = failed_bars(results)
+    if failed:
+        print(f"bench: {len(failed)} bar(s) failed: {'; '.join(failed)}", file=sys.stderr)
+        return 1
     return 0
 
 
