@@ -280,7 +280,8 @@ def test_an_unknown_table_in_a_cell_file_is_called_a_table():
     text = TRAY.read_text().replace("[placement]", "[placements]", 1)
     # before: "tray_cell.toml 'placements': unknown key; allowed keys: box, cell, ..."
     with pytest.raises(CellFileError, match=r"^tray_cell\.toml: unknown table or key 'placements'; allowed tables: "
-                                            r"\[\[box\]\], \[cell\], \[mount\], \[\[path\]\], \[placement\]"):
+                                            r"\[\[box\]\], \[cell\], \[\[cylinder\]\], \[\[keep_out\]\], \[mount\], \[\[path\]\], "
+                                            r"\[placement\]"):
         parse_cell_text(text, "tray_cell.toml")
 
 

@@ -29,6 +29,8 @@ ENTRIES = [
     ("memory", "workbench.runner:bench_memory"),
     ("mount_search", "workbench.studies.mount_search:bench_mount_search"),
     ("path_audit", "workbench.studies.path_audit:bench_path_audit"),
+    ("largest_force", "workbench.measures:bench_largest_force"),
+    ("cycle_time", "workbench.studies.timing:bench_timing"),
     ("gui", "workbench.gui.bench:bench_gui"),
 ]
 
