@@ -29,6 +29,8 @@ ENTRIES = [
     ("memory", "workbench.runner:bench_memory"),
     ("mount_search", "workbench.studies.mount_search:bench_mount_search"),
     ("path_audit", "workbench.studies.path_audit:bench_path_audit"),
+    ("largest_force", "workbench.measures:bench_largest_force"),
+    ("cycle_time", "workbench.studies.timing:bench_timing"),
     ("gui", "workbench.gui.bench:bench_gui"),
 ]
 
@@ -142,12 +144,6 @@ def bench_kernel(quick: bool = False) -> dict:
     notes = ["the numpy reference runs on one thread; the engine on the kernels' threads "
              f"({_threads()}); other work on the machine lowers the ratios"]
     return {"name": "kernel", "metrics": metrics, "ratios": ratios, "bars": bars, "notes": notes}
-
-
-def failed_bars(results) -> list[str]:
-    """``entry: bar`` for every bar that failed in ``results``."""
-    return [f"{r['name']}: {k}" for r in results if "skipped" not in r
-            for k, (_v, _t, ok) in r.get("bars", {}).items() if not ok]
 
 
 def _threads() -> int:

@@ -213,6 +213,8 @@ def summarise(arm, samples=REACH_SAMPLES, seed=0) -> dict:
             "max_speed": None if j.max_speed is None else _clean(j.max_speed * f, 6),
             "speed_unit": f"{unit}/s",
             "max_effort": j.max_effort, "effort_unit": "N m" if j.revolute else "N",
+            "max_acceleration": None if j.max_acceleration is None else _clean(j.max_acceleration * f, 6),
+            "acceleration_unit": f"{unit}/s^2",
             "mass_kg": j.mass,
             "com_mm": None if j.com is None else [_clean(x * 1000.0, 6) for x in j.com],
         })
@@ -255,6 +257,9 @@ def format_info(info: dict) -> str:
                  f"{info['prismatic']} prismatic; described as {info['described_as']}")
     lines.append("")
     rows = [("#", "joint", "type", "limits", "max speed", "max effort", "mass kg", "COM mm (joint frame)")]
+    acc = any(j.get("max_acceleration") is not None for j in info["joints"])
+    if acc:
+        rows[0] = rows[0][:5] + ("max accel",) + rows[0][5:]
     for j in info["joints"]:
         lim = "unlimited" if j["limits"] is None else \
             f"{fmt_num(j['limits'][0], 6)} .. {fmt_num(j['limits'][1], 6)} {j['unit']}"
@@ -262,7 +267,11 @@ def format_info(info: dict) -> str:
         eff = "-" if j["max_effort"] is None else f"{fmt_num(j['max_effort'])} {j['effort_unit']}"
         mass = "-" if j["mass_kg"] is None else fmt_num(j["mass_kg"])
         com = "-" if j["com_mm"] is None else fmt_vec(j["com_mm"])
-        rows.append((str(j["index"]), j["name"], j["type"], lim, spd, eff, mass, com))
+        row = (str(j["index"]), j["name"], j["type"], lim, spd, eff, mass, com)
+        if acc:
+            a = "-" if j.get("max_acceleration") is None else f"{fmt_num(j['max_acceleration'])} {j['acceleration_unit']}"
+            row = row[:5] + (a,) + row[5:]
+        rows.append(row)
     widths = [max(len(r[c]) for r in rows) for c in range(len(rows[0]))]
     for r in rows:
         lines.append("  " + "  ".join(s.ljust(w) for s, w in zip(r, widths)).rstrip())

@@ -13,6 +13,15 @@ Per sample: the measures of the chosen rows, the joint speeds needed for the too
 ``b`` the tool twist along the path tangent at the path's speed, with the turn rate of the
 orientation interpolation), the ratio of each joint speed to its limit, and the joint-limit margin.
 
+Requirements (the cell's ``[requirements]`` merged per path, :mod:`workbench.studies.requirements`):
+holding torques along the path (arm weight, payload with its centre of mass, tool wrench) and
+their margin against ``max_effort`` (fields ``torque_margin``, ``torque_joint``, ``tau``); the
+largest tool speed each sample allows within the joint speed limits (``tool_speed_max`` = path
+speed / speed ratio: joint speeds scale with the tool speed along the path); and a cycle-time
+estimate per path (table ``cycle_time``, :func:`workbench.studies.timing.time_parameterise`:
+joint speed and acceleration limits and the path's tool speed, rest to rest, dynamics neglected)
+against the path's required ``time``.
+
 Summaries: the near-singular spans (inverse condition below ``near_singular``) with their path
 distances, the worst joint-speed ratio in them and a plain-words note
 (:func:`workbench.measures.explain_singularity`); the worst joint-speed ratio of every path and
@@ -30,10 +39,11 @@ import numpy as np
 from ..arm.transforms import inverse_transform, make_transform
 from ..measures import NEAR_SINGULAR as _NEAR_DEFAULT
 from .base import MAX_SEEDS, Axis, Field, Plan, StudyError, StudyKind, Table, check_rows
+from ..limits import MAX_PATH_SAMPLES
 from .cell import sample_path
 
 __all__ = ["PathAudit", "PathSettings", "track_path", "joint_speeds", "task_rows_matrix", "audit_samples",
-           "near_singular_spans", "FLAGS", "bench_path_audit"]
+           "near_singular_spans", "cycle_time_table", "FLAGS", "bench_path_audit"]
 
 _DEG = math.pi / 180.0
 
@@ -250,6 +260,14 @@ def joint_speeds(J, twist, rule: str = "fixed", tool_z=None) -> np.ndarray:
     return np.einsum("...ij,...j->...i", np.linalg.pinv(A), b)
 
 
+def expected_samples(cell, path, spacing: float) -> int:
+    """Samples :func:`~workbench.studies.cell.sample_path` makes for ``path`` at ``spacing`` (m), worked
+    out from the segment lengths without making them (at most one more per segment)."""
+    corners = sample_path(cell, path, 1e12).corners  # two samples per segment: cheap
+    seg = np.diff(corners)
+    return int(1 + np.sum(np.maximum(1, np.ceil(seg / spacing - 1e-9))))
+
+
 def audit_samples(arm, q, samples_twist, rule, s: PathSettings, R_base):
     """Measures, joint speeds, speed ratios and limit margins for tracked poses.
 
@@ -332,10 +350,12 @@ class PathAudit(StudyKind):
     def plan(self, spec, arm, cell, chunk_cells=None) -> Plan:
         s = self.validate(spec.settings, arm, cell, f"{spec.where}: [settings]")
         paths = [cell.get_path(nm) for nm in s.paths] if s.paths else list(cell.paths)
+        N = sum(expected_samples(cell, p, s.spacing) for p in paths)  # before any sample is made
+        if N > MAX_PATH_SAMPLES:
+            raise StudyError(f"{spec.where}: [settings] spacing: {s.spacing:g} m gives {N:,} samples along "
+                             f"{', '.join(p.name for p in paths)}; at most {MAX_PATH_SAMPLES:,} (use a larger spacing)")
         parts = [sample_path(cell, p, s.spacing) for p in paths]
         N = sum(len(p.s) for p in parts)
-        if N > 2_000_000:
-            raise StudyError(f"{spec.where}: [settings] spacing: {N} samples; at most 2 000 000 (use a larger spacing)")
         mount = _mount_of(s, arm, cell)
         inv = inverse_transform(mount)
         poses = np.concatenate([p.poses for p in parts])
@@ -350,6 +370,7 @@ class PathAudit(StudyKind):
             "speeds": [p.speed for p in parts], "lengths": [p.length for p in parts],
             "corners": [p.corners for p in parts],
             "mount": mount, "arm_model": arm.model,
+            "requirements": [cell.requirements_for(path=p.name) for p in paths],
         }
         n = arm.n
         fields = (
@@ -368,6 +389,18 @@ class PathAudit(StudyKind):
             Field("pos_err", (), "float64", "m", "TCP position error of the tracked solution", kind="other"),
             Field("xyz", (3,), "float64", "m", "sample position in the cell frame", kind="point"),
         )
+        m = arm.model
+        if np.all(np.isfinite(m.max_speed)):
+            fields += (Field("tool_speed_max", (), "float64", "m/s",
+                             "largest tool speed along the path within the joint speed limits"),)
+        if np.all(np.isfinite(m.max_effort)) and (m.has_masses or any(r.loads for r in data["requirements"])):
+            fields += (
+                Field("torque_margin", (), "float64", "",
+                      "smallest holding-torque margin (limit - |tau|) / limit (arm weight, payload, tool wrench)"),
+                Field("torque_joint", (), "int32", "", "joint (0-based) of the smallest torque margin", kind="other"),
+                Field("tau", (n,), "float64", "N m", "holding torques (arm weight, payload, tool wrench)",
+                      kind="other"),
+            )
         axes = (Axis("sample", np.arange(N), "", "path sample"),)
         # continuation is sequential: one chunk per run keeps the work linear (any chunking gives
         # the same values: each chunk re-tracks its paths from their start)
@@ -389,6 +422,14 @@ def _col(values, text=False):
 
 def _rows_text(rows):
     return rows if isinstance(rows, str) else ",".join(map(str, rows))
+
+
+def _mounted(arm, M):
+    from dataclasses import replace
+
+    from ..kinematics import Arm
+
+    return Arm(replace(arm.model, mount=np.asarray(M, float)))
 
 
 def compute_audit_chunk(plan, arm, start, stop) -> dict:
@@ -420,6 +461,16 @@ def compute_audit_chunk(plan, arm, start, stop) -> dict:
         out["flags"][o] = ff
         for key in ("inverse_condition", "min_sv", "manipulability", "qdot", "speed_ratio", "speed_joint", "margin"):
             out[key][o] = a[key]
+        if "tool_speed_max" in out:
+            with np.errstate(divide="ignore", invalid="ignore"):
+                out["tool_speed_max"][o] = np.where(a["speed_ratio"] > 0, d["speeds"][p] / a["speed_ratio"], np.inf)
+        if "torque_margin" in out:
+            from .requirements import requirement_check
+
+            chk = requirement_check(_mounted(arm, d["mount"]), qq, d["requirements"][p])
+            out["torque_margin"][o] = np.where(miss, np.nan, chk.torque_margin)
+            out["torque_joint"][o] = np.where(miss, -1, chk.torque_joint)
+            out["tau"][o] = np.where(miss[:, None], np.nan, chk.tau)
         out["pos_err"][o] = perr[sl]
         out["xyz"][o] = d["cell_xyz"][lo:hi]
     return out
@@ -489,6 +540,7 @@ def summarise_audit(plan, arrays) -> dict:
         {k: _col(v, k in ("path", "joint")) for k, v in wrow.items()},
         {"length": "mm", "tool_speed": "mm/s", "at": "mm"},
         "speed ratio = |joint speed needed| / joint speed limit (> 1: the tool speed cannot be kept)")
+    tables["cycle_time"] = cycle_time_table(plan, arrays)
     fl = np.flatnonzero(done & ((flags & JUMP) > 0))
     if len(fl):
         steps = [np.abs(q[k] - q[k - 1]) if k > 0 else np.zeros(arm.n) for k in fl]
@@ -500,6 +552,64 @@ def summarise_audit(plan, arrays) -> dict:
                                 dtype=object)},
             {"at": "mm", "step": "deg"}, f"joint steps above {np.degrees(s.jump):g} deg")
     return tables
+
+
+def cycle_time_table(plan, arrays) -> Table:
+    """Table ``cycle_time``: per path the time-optimal estimate within the joint speed and
+    acceleration limits and the path's tool speed (:func:`workbench.studies.timing.time_parameterise`),
+    the required time from the cell's requirements, whether it is met and what limits the speed."""
+    from .timing import NEGLECTED, time_parameterise
+
+    d = plan.data
+    m = d["arm_model"]
+    dist = np.asarray(arrays["distance"], float)
+    pidx = np.asarray(arrays["path_index"])
+    q = np.asarray(arrays["q"], float)
+    flags = np.asarray(arrays["flags"]).astype(np.uint8)
+    rows = {"path": [], "time": [], "required": [], "meets": [], "length": [], "tool_speed": [],
+            "at_tool_speed": [], "limited_by": [], "note": []}
+    reqs = d.get("requirements") or [None] * len(d["names"])
+    for p, nm in enumerate(d["names"]):
+        sel = np.flatnonzero((pidx == p) & np.isfinite(dist))
+        if not len(sel):
+            continue
+        need = reqs[p].time if reqs[p] is not None else None
+        rows["path"].append(nm)
+        rows["required"].append(np.nan if need is None else need)
+        rows["length"].append(d["lengths"][p] * 1000)
+        rows["tool_speed"].append(d["speeds"][p] * 1000)
+        est, frac, lim, note = np.nan, np.nan, "-", ""
+        if np.any((flags[sel] & REACHED) == 0):
+            note = f"not estimated: {int(np.sum((flags[sel] & REACHED) == 0))} samples unreached"
+        elif not np.any(np.isfinite(m.max_speed)):
+            note = "not estimated: the arm file gives no joint speed limits"
+        else:
+            s_, q_ = dist[sel], q[sel]
+            keep = np.concatenate([[True], np.diff(s_) > 0])
+            try:
+                r = time_parameterise(s_[keep], q_[keep], m.max_speed, m.max_acceleration, d["speeds"][p])
+            except Exception as exc:  # an estimate is a help, never a reason to lose the results
+                note = f"not estimated: {exc}"
+            else:
+                est = r.time
+                frac = float(np.mean(r.binding == 0))
+                lim = r.summary()
+                note = "; ".join(r.notes + ((("branch flips on the path: the joint jumps are timed as they are"),)
+                                            if np.any(flags[sel] & JUMP) else ()))
+        rows["time"].append(est)
+        rows["at_tool_speed"].append(frac)
+        rows["limited_by"].append(lim)
+        rows["note"].append(note)
+        if need is None:
+            rows["meets"].append("no time asked")
+        elif not np.isfinite(est):
+            rows["meets"].append("not checked")
+        else:
+            rows["meets"].append("yes" if est <= need else f"no: {est - need:.2f} s over")
+    return Table("Cycle time per path (time-optimal within joint speed and acceleration limits)",
+                 {k: _col(v, k in ("path", "meets", "limited_by", "note")) for k, v in rows.items()},
+                 {"time": "s", "required": "s", "length": "mm", "tool_speed": "mm/s"},
+                 f"rest to rest along the path at most at its tool speed; neglected: {NEGLECTED}")
 
 
 # ----------------------------------------------------------------------------------------------
