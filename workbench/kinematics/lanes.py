@@ -239,8 +239,8 @@ def _jacobi(W, k, ln, sweeps, d, g, sv):
 
     Per column pair (i, j): a = |w_i|^2, b = |w_j|^2, g = w_i . w_j; the rotation that makes the
     pair orthogonal has t = tan(theta) = num / den with num = 2 g sgn(b - a),
-    den = |b - a| + sqrt((b - a)^2 + 4 g^2), so cos = den / sqrt(den^2 + num^2) and
-    sin = num / sqrt(den^2 + num^2): two square roots and one division per pair and lane.
+    den = |b - a| + sqrt((b - a)^2 + 4 g^2), so cos = 1 / sqrt(1 + t^2), sin = t cos (|t| <= 1, so nothing overflows or underflows
+    even for columns of rounding-level size).
     """
     L = W.shape[2]
     cs = d[0]
@@ -264,9 +264,10 @@ def _jacobi(W, k, ln, sweeps, d, g, sv):
                     gg = g[2, l]
                     num = 2.0 * gg if diff >= 0.0 else -2.0 * gg
                     den = abs(diff) + np.sqrt(diff * diff + 4.0 * gg * gg)
-                    inv = 1.0 / np.sqrt(den * den + num * num)
-                    cs[l] = den * inv if den > 0.0 else 1.0
-                    sn[l] = num * inv if den > 0.0 else 0.0
+                    t = num / den if den > 0.0 else 0.0  # |t| <= 1: den >= |num|
+                    cc = 1.0 / np.sqrt(1.0 + t * t)
+                    cs[l] = cc
+                    sn[l] = cc * t
                 for e in range(ln):
                     for l in range(L):
                         bi = W[i, e, l]
