@@ -20,9 +20,35 @@ def test_kernel_bench_reports_rates_ratios_and_accuracy():
 
 
 def test_bench_cli_json_and_bad_entry(capsys):
-    assert main(["bench", "--quick", "--only", "kernel", "--json"]) == 0
-    out = json.loads(capsys.readouterr().out)
+    status = main(["bench", "--quick", "--only", "kernel", "--json"])
+    captured = capsys.readouterr()
+    out = json.loads(captured.out)
     assert out[0]["name"] == "kernel" and out[0]["ratios"]["vs_numpy_batched"] > 0
+    # the exit status follows the bars (whichever way this machine's timings went)
+    failed = [k for k, (_v, _t, ok) in out[0]["bars"].items() if not ok]
+    assert status == (1 if failed else 0)
+    assert ("bar(s) failed" in captured.err) == bool(failed)
     assert main(["bench", "--only", "nonsense"]) == 2
     err = capsys.readouterr().err
     assert err.startswith("error: --only: unknown bench entry 'nonsense'") and err.count("\n") == 1
+
+
+def test_bench_exit_status_is_one_when_any_bar_fails(monkeypatch, capsys):
+    # a bar that fails must fail the command (a script or CI sees it), one that passes must not
+    import workbench.bench as b
+
+    def fake(quick=False):
+        return {"name": "fake", "metrics": {}, "ratios": {},
+                "bars": {"good>=1": [2.0, 1.0, True], "bad>=5": [4.0, 5.0, False]}, "notes": []}
+
+    def fine(quick=False):
+        return {"name": "fine", "metrics": {}, "ratios": {}, "bars": {"good>=1": [2.0, 1.0, True]}, "notes": []}
+
+    monkeypatch.setattr(b, "ENTRIES", [("fake", "tests.test_bench:_unused")])
+    monkeypatch.setattr(b, "run_benches", lambda names, quick, log: [fake(), fine()])
+    assert main(["bench", "--quick"]) == 1
+    captured = capsys.readouterr()
+    assert "FAIL bad>=5" in captured.out and "PASS good>=1" in captured.out
+    assert "bench: 1 bar(s) failed: fake: bad>=5" in captured.err
+    monkeypatch.setattr(b, "run_benches", lambda names, quick, log: [fine()])
+    assert main(["bench", "--quick"]) == 0

@@ -48,6 +48,12 @@ _SCHEMES = ("tcp://", "tls://", "inproc://", "ws://", "wss://", "ucx://")
 READ_BACK_BYTES = 512 << 20
 #: the biggest chunk of result arrays a worker holds at once
 MAX_CHUNK_BYTES = 48 << 20
+#: calibrated chunk sizes: floor and ceiling in cells (see :func:`chunk_cells_for`)
+MIN_CHUNK_CELLS = 512
+MIN_SLOW_CHUNK_CELLS = 16
+SLOW_CHUNK_SECONDS = 2.0
+MAX_CHUNK_CELLS = 1 << 20
+MAX_CHUNKS = 20_000
 
 
 class RunError(WorkbenchError):
@@ -118,6 +124,24 @@ def _is_cancelled(cancel):
     if callable(cancel):
         return lambda: bool(cancel())
     raise TypeError("cancel: expected a threading.Event or a callable returning True to stop")
+
+
+def chunk_cells_for(seconds_per_cell: float, cells: int, cell_bytes: int, chunk_seconds: float = 0.25) -> float:
+    """Cells per chunk for about ``chunk_seconds`` of compute, within a floor and a ceiling.
+
+    Ceiling: ``MAX_CHUNK_CELLS`` and ``MAX_CHUNK_BYTES`` of result arrays (what a worker holds at
+    once). Floor: ``MIN_CHUNK_CELLS`` (one kernel block; fewer cells per call make the per-chunk
+    overhead of the runner and writer, about a millisecond, larger than the compute of fast kinds),
+    lowered for kinds so slow that such a chunk would take over ``SLOW_CHUNK_SECONDS`` (never below
+    ``MIN_SLOW_CHUNK_CELLS``), and raised so a grid has at most ``MAX_CHUNKS`` chunks. The memory
+    ceiling wins over the floor."""
+    spc = max(float(seconds_per_cell), 1e-12)
+    target = chunk_seconds / spc
+    floor = max(MIN_SLOW_CHUNK_CELLS, min(MIN_CHUNK_CELLS, SLOW_CHUNK_SECONDS / spc))
+    floor = max(floor, math.ceil(cells / MAX_CHUNKS))
+    target = max(target, floor)
+    target = min(target, MAX_CHUNK_CELLS, MAX_CHUNK_BYTES / max(1, cell_bytes))
+    return float(max(1.0, min(target, cells)))
 
 
 def _nice_chunk(cells_per_chunk: float, cells: int) -> int:
@@ -298,8 +322,7 @@ def run_study(study, out=None, executor="inprocess", workers=None, scheduler=Non
     if (chunk_cells is None and not prep.fixed_chunks and plan.n_chunks > 1
             and getattr(kind, "calibrated_chunks", True)):
         per_thread = est.seconds_per_cell * (1 if executor == "inprocess" else max(1, _threads()))
-        target = chunk_seconds / max(per_thread, 1e-12)
-        target = min(target, MAX_CHUNK_BYTES / max(1, plan.cell_bytes))
+        target = chunk_cells_for(per_thread, plan.cells, plan.cell_bytes, chunk_seconds)
         if executor != "inprocess":  # at least ~4 chunks per worker for balance
             target = min(target, max(1.0, plan.cells / (4 * n_workers)))
         plan = plan.with_chunk_cells(_nice_chunk(target, plan.cells))
