@@ -227,11 +227,26 @@ class Ellipsoid:
             raise WorkbenchError("d: expected non-zero, finite direction(s), got a zero-length or non-finite one")
         d = d / norm
         c = np.einsum("...ij,...i->...j", self.directions, d)
-        with np.errstate(divide="ignore"):
-            inv = np.where(np.isinf(self.radii), 0.0, 1.0 / self.radii)
+        r = np.broadcast_to(self.radii, c.shape)
+        # a flat ellipsoid (radius 0: more task rows than joints, or an exact singularity) has no
+        # extent off its span: a direction with a real component along a zero axis gets 0; one in
+        # the span (component at rounding level) ignores that axis instead of dividing 0 by 0
+        finite = np.where(np.isfinite(r), r, 0.0)
+        scale = np.max(finite, axis=-1, keepdims=True)
+        flat = finite <= FLAT_RADIUS * scale
+        off_span = np.any(flat & np.isfinite(r) & (np.abs(c) > FLAT_COMPONENT), axis=-1)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            inv = np.where(np.isinf(r) | flat, 0.0, 1.0 / np.where(flat, 1.0, r))
         quad = np.sum((c * inv) ** 2, axis=-1)
         with np.errstate(divide="ignore"):
-            return np.where(quad > 0, 1.0 / np.sqrt(np.where(quad > 0, quad, 1.0)), np.inf)
+            out = np.where(quad > 0, 1.0 / np.sqrt(np.where(quad > 0, quad, 1.0)), np.inf)
+        return np.where(off_span, 0.0, out)
+
+
+#: radii at most this fraction of an ellipsoid's largest finite radius count as 0 (a flat axis)
+FLAT_RADIUS = 1e-12
+#: a unit direction whose component along a flat axis is at most this lies in the ellipsoid's span
+FLAT_COMPONENT = 1e-9
 
 
 _ROWN = ("vx", "vy", "vz", "wx", "wy", "wz")

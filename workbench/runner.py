@@ -535,6 +535,35 @@ def _run_processes(kind, plan, arm, cell, finished, is_cancelled, n_workers, poo
             pool.shutdown(wait=not cancelled, cancel_futures=True)
 
 
+def _connect(Client, addr, timeout=None):
+    """A Client of the scheduler at ``addr``, or a RunError after ``timeout`` seconds (default
+    :data:`workbench.limits.SCHEDULER_TIMEOUT_S`) when it does not answer: a port that accepts the
+    connection but never replies would otherwise keep the run waiting for ever. The attempt runs in a
+    daemon thread so a stuck handshake cannot hold the caller."""
+    import threading
+
+    from .limits import SCHEDULER_TIMEOUT_S
+
+    timeout = SCHEDULER_TIMEOUT_S if timeout is None else float(timeout)
+    box: dict = {}
+
+    def attempt():
+        try:
+            box["client"] = Client(addr, timeout=f"{max(1, int(timeout))}s")
+        except BaseException as exc:  # noqa: BLE001 - handed to the caller
+            box["error"] = exc
+
+    t = threading.Thread(target=attempt, name="workbench-dask-connect", daemon=True)
+    t.start()
+    t.join(timeout + 1.0)
+    if "client" in box:
+        return box["client"]
+    if "error" in box:
+        raise box["error"]
+    raise RunError(f"--scheduler {addr}: no answer within {timeout:g} s (the port accepts connections but no Dask "
+                   f"scheduler replies); expected the address of a running dask scheduler")
+
+
 def _run_dask(kind, plan, arm, cell, finished, is_cancelled, n_workers, scheduler, pool):
     try:
         from distributed import Client, LocalCluster, wait
@@ -552,7 +581,7 @@ def _run_dask(kind, plan, arm, cell, finished, is_cancelled, n_workers, schedule
                                        dashboard_address=None, silence_logs=logging.ERROR)
                 client = Client(cluster)
             else:
-                client = Client(addr, timeout="10s")
+                client = _connect(Client, addr)
         except RunError:
             raise
         except Exception as exc:

@@ -77,6 +77,7 @@ from dataclasses import replace
 
 import numpy as np
 
+from ..limits import MAX_MAGNITUDE, check_toml_text
 from .model import PRISMATIC, REVOLUTE, ArmError, ArmModel, Joint
 from .transforms import make_transform, matrix_to_rpy, rot_x, rot_z, translation
 
@@ -85,7 +86,7 @@ __all__ = ["ArmFileError", "read_arm_file", "parse_arm_dict", "parse_arm_text", 
 
 MAX_JOINTS = 32
 MAX_FILE_BYTES = 4 * 1024 * 1024
-_MAX_MAGNITUDE = 1e9          # any number in a file; larger values are typos, not arms
+_MAX_MAGNITUDE = MAX_MAGNITUDE  # any number in a file; larger values are typos, not arms
 _ROT_TOL = 1e-6
 _DEG = math.pi / 180.0
 _UNITS = {"m": 1.0, "mm": 1e-3}
@@ -401,6 +402,7 @@ def parse_arm_text(raw, source_name: str = "<arm>") -> ArmModel:
         text = str(raw)
     if "\x00" in text:
         raise ArmFileError(f"{source_name}: contains NUL characters; expected a TOML arm file (text)")
+    check_toml_text(text, source_name, ArmFileError)
     try:
         data = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:

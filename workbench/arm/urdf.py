@@ -25,6 +25,7 @@ import os
 
 import numpy as np
 
+from ..limits import MAX_MAGNITUDE
 from .files import MAX_FILE_BYTES, MAX_JOINTS, ArmFileError
 from .model import PRISMATIC, REVOLUTE, ArmModel, Joint
 from .transforms import make_transform
@@ -108,6 +109,9 @@ def parse_urdf_text(raw, source_name: str = "<urdf>", base_link: str | None = No
         raise ArmFileError(f"{src}: unsafe XML refused ({type(exc).__name__})") from None
     except DET.ParseError as exc:
         raise ArmFileError(f"{src}: malformed XML: {str(exc).splitlines()[0]}") from None
+    except LookupError as exc:  # <?xml ... encoding="..."?> that Python does not know
+        raise ArmFileError(f"{src}: {str(exc).splitlines()[0] if str(exc) else 'unknown encoding'} in the XML "
+                           f"declaration; expected UTF-8 (or another encoding Python knows)") from None
     except (ValueError, RecursionError) as exc:
         raise ArmFileError(f"{src}: malformed XML: {str(exc).splitlines()[0] if str(exc) else 'nested too deeply'}"
                            ) from None
@@ -278,6 +282,8 @@ def _float(s, where, what) -> float:
         raise ArmFileError(f"{where}: {what}: expected a number, got {s!r}") from None
     if not math.isfinite(v):
         raise ArmFileError(f"{where}: {what}: expected a finite number, got {s!r}")
+    if abs(v) > MAX_MAGNITUDE:  # the same bound as the arm-file reader's
+        raise ArmFileError(f"{where}: {what}: expected a number of magnitude at most {MAX_MAGNITUDE:g}, got {s!r}")
     return v
 
 

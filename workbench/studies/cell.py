@@ -87,6 +87,7 @@ import numpy as np
 
 from ..arm.transforms import inverse_transform, make_transform, rot_y, rot_z, translation
 from ..errors import WorkbenchError
+from ..limits import MAX_CELL_COORD, MAX_MAGNITUDE, MAX_TEXT_BYTES, check_toml_text
 
 __all__ = ["CellFileError", "Cell", "WorkPoint", "Path", "Segment", "Box", "Cylinder", "MountRegion",
            "read_cell_file", "parse_cell_text", "mount_transforms", "style_tilt", "PathSamples",
@@ -370,9 +371,15 @@ class _Ctx:
 def _num(ctx, v, table, index, key, positive=False, nonneg=False):
     if isinstance(v, bool) or not isinstance(v, (int, float)):
         raise ctx.err(f"expected a number, got {v!r}", table, index, key)
-    v = float(v)
+    try:
+        v = float(v)
+    except OverflowError:  # a TOML integer beyond a float
+        raise ctx.err(f"expected a number of magnitude at most {MAX_MAGNITUDE:g}, got {v!r}", table, index,
+                      key) from None
     if not math.isfinite(v):
         raise ctx.err(f"expected a finite number, got {v!r}", table, index, key)
+    if abs(v) > MAX_MAGNITUDE:
+        raise ctx.err(f"expected a number of magnitude at most {MAX_MAGNITUDE:g}, got {v:g}", table, index, key)
     if positive and v <= 0:
         raise ctx.err(f"expected a number > 0, got {v:g}", table, index, key)
     if nonneg and v < 0:
@@ -384,6 +391,17 @@ def _vec(ctx, v, table, index, key, size=3):
     if not isinstance(v, (list, tuple)) or len(v) != size:
         raise ctx.err(f"expected a list of {size} numbers, got {v!r}", table, index, key)
     return np.array([_num(ctx, x, table, index, key) for x in v], dtype=float)
+
+
+def _coord(ctx, values, table, index, key, unit):
+    """``values`` (metres, any shape) unchanged when every one is within :data:`MAX_CELL_COORD`."""
+    a = np.asarray(values, dtype=float)
+    if a.size and float(np.max(np.abs(a))) > MAX_CELL_COORD:
+        bad = float(a.reshape(-1)[int(np.argmax(np.abs(a)))])
+        shown = f"{bad * 1e3:g} mm ({bad:g} m)" if unit == "mm" else f"{bad:g} m"
+        raise ctx.err(f"value {shown} is beyond the limit of {MAX_CELL_COORD:g} m from the cell origin "
+                      f"(is the length unit right?)", table, index, key)
+    return values
 
 
 def _numlist(ctx, v, table, key, nonempty=True):
@@ -425,13 +443,15 @@ def read_cell_file(path) -> Cell:
     path = os.fspath(path)
     try:
         with open(path, "rb") as fh:
-            raw = fh.read()
+            raw = fh.read(MAX_TEXT_BYTES + 1)
     except IsADirectoryError:
         raise CellFileError(f"{path}: is a directory, expected a cell file (.toml)") from None
     except FileNotFoundError:
         raise CellFileError(f"{path}: no such file") from None
     except OSError as exc:
         raise CellFileError(f"{path}: cannot be read ({exc.strerror})") from None
+    if len(raw) > MAX_TEXT_BYTES:
+        raise CellFileError(f"{path}: larger than {MAX_TEXT_BYTES >> 20} MB; a cell file is a few kB of TOML")
     try:
         text = raw.decode("utf-8")
     except UnicodeDecodeError:
@@ -441,6 +461,7 @@ def read_cell_file(path) -> Cell:
 
 def parse_cell_text(text: str, source_name: str = "<cell>") -> Cell:
     """Parse and validate cell-file text (see the module docstring for the schema)."""
+    check_toml_text(text, source_name, CellFileError)
     ctx = _Ctx(source_name, text)
     try:
         data = tomllib.loads(text)
@@ -482,7 +503,7 @@ def parse_cell_text(text: str, source_name: str = "<cell>") -> Cell:
             raise ctx.err(f"duplicate work point name {pname!r}", "point", i, "name")
         if "xyz" not in p:
             raise ctx.err("missing key 'xyz' (the TCP position)", "point", i)
-        xyz = _vec(ctx, p["xyz"], "point", i, "xyz") * L
+        xyz = _coord(ctx, _vec(ctx, p["xyz"], "point", i, "xyz") * L, "point", i, "xyz", unit)
         rule = p.get("orientation", "fixed" if "rpy" in p else ("axis" if "axis" in p else "free"))
         if rule not in ORIENTATION_RULES:
             raise ctx.err(f"expected one of fixed, axis, free, got {rule!r}", "point", i, "orientation")
@@ -594,10 +615,11 @@ def parse_cell_text(text: str, source_name: str = "<cell>") -> Cell:
             for k in ("center", "size"):
                 if k not in b:
                     raise ctx.err(f"missing key '{k}'", table, i)
-            size = _vec(ctx, b["size"], table, i, "size") * L
+            size = _coord(ctx, _vec(ctx, b["size"], table, i, "size") * L, table, i, "size", unit)
             if np.any(size <= 0):
                 raise ctx.err("every size must be > 0", table, i, "size")
-            out.append(Box(bname, _vec(ctx, b["center"], table, i, "center") * L, size,
+            out.append(Box(bname, _coord(ctx, _vec(ctx, b["center"], table, i, "center") * L, table, i, "center",
+                                         unit), size,
                            _num(ctx, b.get("yaw", 0.0), table, i, "yaw") * _DEG,
                            True if keep_out else _collide(b, table, i), keep_out))
         return out
@@ -619,9 +641,12 @@ def parse_cell_text(text: str, source_name: str = "<cell>") -> Cell:
         ax = _vec(ctx, cy.get("axis", [0, 0, 1]), "cylinder", i, "axis")
         if np.linalg.norm(ax) < 1e-9:
             raise ctx.err("zero-length axis; expected a direction", "cylinder", i, "axis")
-        cylinders.append(Cylinder(cname, _vec(ctx, cy["center"], "cylinder", i, "center") * L,
-                                  _num(ctx, cy["radius"], "cylinder", i, "radius", positive=True) * L,
-                                  _num(ctx, cy["height"], "cylinder", i, "height", positive=True) * L,
+        cylinders.append(Cylinder(cname, _coord(ctx, _vec(ctx, cy["center"], "cylinder", i, "center") * L,
+                                                "cylinder", i, "center", unit),
+                                  _coord(ctx, _num(ctx, cy["radius"], "cylinder", i, "radius", positive=True) * L,
+                                         "cylinder", i, "radius", unit),
+                                  _coord(ctx, _num(ctx, cy["height"], "cylinder", i, "height", positive=True) * L,
+                                         "cylinder", i, "height", unit),
                                   ax / np.linalg.norm(ax), _collide(cy, "cylinder", i)))
 
     # ---- mount region
@@ -633,7 +658,7 @@ def parse_cell_text(text: str, source_name: str = "<cell>") -> Cell:
         for ax in ("x", "y"):
             if ax not in m:
                 raise ctx.err(f"missing key '{ax}' ([min, max] or a single value)", "mount")
-            r = _numlist(ctx, m[ax], "mount", ax)
+            r = _coord(ctx, _numlist(ctx, m[ax], "mount", ax) * L, "mount", None, ax, unit) / L
             if len(r) == 1:
                 r = np.array([r[0], r[0]])
             if len(r) != 2:
@@ -653,7 +678,8 @@ def parse_cell_text(text: str, source_name: str = "<cell>") -> Cell:
             else:
                 vals = r[:1]
             axes[ax] = vals * L
-        heights = _numlist(ctx, m.get("heights", [0.0]), "mount", "heights") * L
+        heights = _coord(ctx, _numlist(ctx, m.get("heights", [0.0]), "mount", "heights") * L, "mount", None,
+                         "heights", unit)
         yaws = _numlist(ctx, m.get("yaws", [0.0]), "mount", "yaws") * _DEG
         st = m.get("style", "floor")
         st_list = st if isinstance(st, list) else [st]
@@ -678,7 +704,8 @@ def parse_cell_text(text: str, source_name: str = "<cell>") -> Cell:
     if "placement" in data:
         pl = data["placement"]
         _keys(ctx, pl, _PLACE_KEYS, "placement")
-        placement = make_transform(_vec(ctx, pl.get("xyz", [0, 0, 0]), "placement", None, "xyz") * L,
+        placement = make_transform(_coord(ctx, _vec(ctx, pl.get("xyz", [0, 0, 0]), "placement", None, "xyz") * L,
+                                          "placement", None, "xyz", unit),
                                    _vec(ctx, pl.get("rpy", [0, 0, 0]), "placement", None, "rpy") * _DEG)
 
     # ---- requirements: cell-wide defaults, then per point / per path

@@ -601,6 +601,13 @@ def summarise_mount_search(plan, arrays, top: int = 20) -> dict:
         return tables
     refined = []
     seen = []
+    if s.refine == 0:  # no polishing: the best grid candidate is the answer (no 'refined' table)
+        a, b, c, d, e = np.unravel_index(order[0], plan.shape)
+        sc0, ev0 = _score_at(arm, points, s, ax["x"][e], ax["y"][d], ax["height"][b], ax["yaw"][c],
+                             plan.data["tilts"][a], q0=qall[order[0]][None])
+        refined_best = {"x": float(ax["x"][e]), "y": float(ax["y"][d]), "yaw": float(ax["yaw"][c]),
+                        "score": float(sc0), "start_score": float(sc0), "evaluations": 0, "q": ev0["q"][0],
+                        "style": styles[a], "height": float(ax["height"][b]), "tilt": float(plan.data["tilts"][a])}
     for k in order:
         if len(refined) >= s.refine:
             break
@@ -616,14 +623,17 @@ def summarise_mount_search(plan, arrays, top: int = 20) -> dict:
         r.update(style=styles[a], height=float(ax["height"][b]), tilt=float(plan.data["tilts"][a]))
         refined.append(r)
     refined.sort(key=lambda r: -r["score"])
-    tables["refined"] = Table(
-        "Refined mounts (off the grid, Nelder-Mead over x, y, yaw)",
-        {"rank": np.arange(1, len(refined) + 1), "x": np.array([r["x"] for r in refined]) * 1000,
-         "y": np.array([r["y"] for r in refined]) * 1000, "height": np.array([r["height"] for r in refined]) * 1000,
-         "yaw": np.degrees([r["yaw"] for r in refined]), "style": np.array([r["style"] for r in refined], dtype=object),
-         "grid_score": np.array([r["start_score"] for r in refined]), "score": np.array([r["score"] for r in refined]),
-         "evaluations": np.array([r["evaluations"] for r in refined])},
-        {"x": "mm", "y": "mm", "height": "mm", "yaw": "deg"}, formula)
+    if not refined:
+        refined = [refined_best]
+    else:
+        tables["refined"] = Table(
+            "Refined mounts (off the grid, Nelder-Mead over x, y, yaw)",
+            {"rank": np.arange(1, len(refined) + 1), "x": np.array([r["x"] for r in refined]) * 1000,
+             "y": np.array([r["y"] for r in refined]) * 1000, "height": np.array([r["height"] for r in refined]) * 1000,
+             "yaw": np.degrees([r["yaw"] for r in refined]), "style": np.array([r["style"] for r in refined], dtype=object),
+             "grid_score": np.array([r["start_score"] for r in refined]), "score": np.array([r["score"] for r in refined]),
+             "evaluations": np.array([r["evaluations"] for r in refined])},
+            {"x": "mm", "y": "mm", "height": "mm", "yaw": "deg"}, formula)
     best = refined[0]
     if s.sensitivity:
         sens = sensitivity(arm, points, s, best["x"], best["y"], best["height"], best["yaw"], best["tilt"],

@@ -39,6 +39,7 @@ import numpy as np
 from ..arm.transforms import inverse_transform, make_transform
 from ..measures import NEAR_SINGULAR as _NEAR_DEFAULT
 from .base import MAX_SEEDS, Axis, Field, Plan, StudyError, StudyKind, Table, check_rows
+from ..limits import MAX_PATH_SAMPLES
 from .cell import sample_path
 
 __all__ = ["PathAudit", "PathSettings", "track_path", "joint_speeds", "task_rows_matrix", "audit_samples",
@@ -259,6 +260,14 @@ def joint_speeds(J, twist, rule: str = "fixed", tool_z=None) -> np.ndarray:
     return np.einsum("...ij,...j->...i", np.linalg.pinv(A), b)
 
 
+def expected_samples(cell, path, spacing: float) -> int:
+    """Samples :func:`~workbench.studies.cell.sample_path` makes for ``path`` at ``spacing`` (m), worked
+    out from the segment lengths without making them (at most one more per segment)."""
+    corners = sample_path(cell, path, 1e12).corners  # two samples per segment: cheap
+    seg = np.diff(corners)
+    return int(1 + np.sum(np.maximum(1, np.ceil(seg / spacing - 1e-9))))
+
+
 def audit_samples(arm, q, samples_twist, rule, s: PathSettings, R_base):
     """Measures, joint speeds, speed ratios and limit margins for tracked poses.
 
@@ -341,10 +350,12 @@ class PathAudit(StudyKind):
     def plan(self, spec, arm, cell, chunk_cells=None) -> Plan:
         s = self.validate(spec.settings, arm, cell, f"{spec.where}: [settings]")
         paths = [cell.get_path(nm) for nm in s.paths] if s.paths else list(cell.paths)
+        N = sum(expected_samples(cell, p, s.spacing) for p in paths)  # before any sample is made
+        if N > MAX_PATH_SAMPLES:
+            raise StudyError(f"{spec.where}: [settings] spacing: {s.spacing:g} m gives {N:,} samples along "
+                             f"{', '.join(p.name for p in paths)}; at most {MAX_PATH_SAMPLES:,} (use a larger spacing)")
         parts = [sample_path(cell, p, s.spacing) for p in paths]
         N = sum(len(p.s) for p in parts)
-        if N > 2_000_000:
-            raise StudyError(f"{spec.where}: [settings] spacing: {N} samples; at most 2 000 000 (use a larger spacing)")
         mount = _mount_of(s, arm, cell)
         inv = inverse_transform(mount)
         poses = np.concatenate([p.poses for p in parts])
