@@ -183,3 +183,33 @@ def test_bad_trajectory_rows_and_layouts(tmp_path):
     with pytest.raises(CellFileError, match="orientation 'fixed' needs rotation columns"):
         parse_cell_text(BASE + '\n[[path]]\nname = "p"\nspeed = 100\ncsv = "p.csv"\ncolumns = ["X", "Y", "Z"]\n'
                         'rotation = "none"\norientation = "fixed"\n', str(tmp_path / "c.toml"))
+
+
+def test_results_keep_the_csv_files_they_were_run_with(tmp_path):
+    # The results file holds the cell text with the CSV files it names embedded: it reads back
+    # (and its decision is made) after the files are gone.
+    import shutil
+
+    from workbench.results import read_results
+    from workbench.runner import run_study
+
+    src = ROOT / "arms" / "cells" / "press"
+    work = tmp_path / "cell"
+    shutil.copytree(src, work)
+    study = work / "press_path_audit.toml"
+    study.write_text(study.read_text().replace("../../demo_s6.toml", str(ROOT / "arms" / "demo_s6.toml")))
+    out = tmp_path / "audit.h5"
+    run_study(str(study), out=str(out))
+    for f in ("press_seam.csv", "press_pick.csv"):
+        (work / f).unlink()
+    r = read_results(str(out))
+    assert "[[embedded_csv]]" in r.cell_text and 'file = "press_seam.csv"' in r.cell_text
+    _, plan, arm, cell = r.context()
+    assert cell.paths[0].poses.shape == (121, 4, 4) and cell.trajectories[0].t[-1] == pytest.approx(2.4)
+    from workbench.decision import decision_for
+
+    d = decision_for(r)
+    assert {v.key: v.status for v in d.verdicts}["cycle_time"] == "fail"
+    # the cell file itself (with the files gone) now says which file is missing
+    with pytest.raises(TaskDataError, match="press_seam.csv: no such file"):
+        read_cell_file(work / "press_cell.toml")

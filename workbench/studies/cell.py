@@ -100,7 +100,7 @@ MAX_MOUNT_CANDIDATES = 2_000_000
 _DEG = math.pi / 180.0
 _UNITS = {"m": 1.0, "mm": 1e-3}
 _TOP = {"cell", "point", "path", "box", "mount", "placement", "requirements", "cylinder", "keep_out",
-        "trajectory"}
+        "trajectory", "embedded_csv"}
 _CELL_KEYS = {"name", "description", "length_unit", "floor"}
 _POINT_KEYS = {"name", "xyz", "orientation", "rpy", "axis", "tolerance", "angle_tolerance", "requirements"}
 _PATH_KEYS = {"name", "speed", "through", "start", "segments", "orientation", "requirements", "csv", "columns",
@@ -262,6 +262,7 @@ class Cell:
     keep_outs: tuple = ()
     floor: bool = True
     trajectories: tuple = ()             # joint trajectories from CSV (workbench.studies.taskdata.Trajectory)
+    csv_texts: dict = field(default_factory=dict)   # CSV file name (as written) -> the text read
 
     def obstacles(self) -> list:
         """What the clearance checks test against: [("floor", None)] when the floor is on, then
@@ -479,7 +480,8 @@ def parse_cell_text(text: str, source_name: str = "<cell>") -> Cell:
         raise CellFileError(f"{source_name}: malformed TOML: {exc}") from None
     unknown = sorted(set(data) - _TOP)
     if unknown:  # a top-level name is a table (or a stray key): say so, not "unknown key"
-        tables = ", ".join(f"[{t}]" if t in ("cell", "mount", "placement") else f"[[{t}]]" for t in sorted(_TOP))
+        tables = ", ".join(f"[{t}]" if t in ("cell", "mount", "placement", "requirements") else f"[[{t}]]"
+                           for t in sorted(_TOP - {"embedded_csv"}))  # embedded_csv: written by the workbench
         raise CellFileError(f"{source_name}: unknown table or key '{unknown[0]}'; allowed tables: {tables}")
     if "cell" not in data:
         raise CellFileError(f"{source_name}: missing table [cell] (with at least 'name')")
@@ -535,6 +537,17 @@ def parse_cell_text(text: str, source_name: str = "<cell>") -> Cell:
         points.append(WorkPoint(pname.strip(), T, rule, tol, atol))
     names = {p.name for p in points}
 
+    # ---- CSV files embedded in the text (results files keep the files a cell names)
+    embedded, csv_texts = {}, {}
+    raw_emb = data.get("embedded_csv", [])
+    if not isinstance(raw_emb, list):
+        raise CellFileError(f"{source_name}: 'embedded_csv' must be an array of tables ([[embedded_csv]])")
+    for i, e in enumerate(raw_emb):
+        _keys(ctx, e, {"file", "text"}, "embedded_csv", i)
+        if not isinstance(e.get("file"), str) or not isinstance(e.get("text"), str):
+            raise ctx.err("expected file = NAME and text = CSV content (strings)", "embedded_csv", i)
+        embedded[e["file"]] = e["text"]
+
     # ---- paths
     raw_paths = data.get("path", [])
     if not isinstance(raw_paths, list):
@@ -553,7 +566,7 @@ def parse_cell_text(text: str, source_name: str = "<cell>") -> Cell:
         if speed <= 0:
             raise ctx.err(f"tool speed must be > 0 mm/s, got {speed:g}", "path", i, "speed")
         if "csv" in p:
-            paths.append(_csv_path(ctx, p, i, pname.strip(), speed, source_name))
+            paths.append(_csv_path(ctx, p, i, pname.strip(), speed, source_name, embedded, csv_texts))
             continue
         stray = sorted(set(p) & {"columns", "rotation", "csv_unit"})
         if stray:
@@ -738,9 +751,10 @@ def parse_cell_text(text: str, source_name: str = "<cell>") -> Cell:
         if any(x.name == tname.strip() for x in trajectories) or any(x.name == tname.strip() for x in paths):
             raise ctx.err(f"duplicate name {tname!r} (paths and trajectories need distinct names)", "trajectory", i,
                           "name")
-        from .taskdata import parse_layout, read_trajectory_csv
+        from .taskdata import parse_layout, read_trajectory_csv, with_text
 
-        layout = parse_layout(ctx, t, "trajectory", i, _base_dir(source_name), "trajectory")
+        layout = with_text(parse_layout(ctx, t, "trajectory", i, _base_dir(source_name), "trajectory", embedded))
+        csv_texts[layout.name] = layout.text
         trajectories.append(read_trajectory_csv(layout, tname.strip()))
 
     # ---- requirements: cell-wide defaults, then per point / per path
@@ -763,7 +777,8 @@ def parse_cell_text(text: str, source_name: str = "<cell>") -> Cell:
 
     return Cell(name.strip(), tuple(points), tuple(paths), tuple(boxes), mount, placement, desc, unit,
                 text, source_name, requirements=base, point_requirements=point_reqs, path_requirements=path_reqs,
-                cylinders=tuple(cylinders), keep_outs=tuple(keep_outs), floor=floor, trajectories=tuple(trajectories))
+                cylinders=tuple(cylinders), keep_outs=tuple(keep_outs), floor=floor, trajectories=tuple(trajectories),
+                csv_texts=csv_texts)
 
 
 def _base_dir(source_name: str) -> str:
@@ -773,20 +788,23 @@ def _base_dir(source_name: str) -> str:
     return os.getcwd()
 
 
-def _csv_path(ctx, p, i, name, speed, source_name) -> Path:
+def _csv_path(ctx, p, i, name, speed, source_name, embedded=None, csv_texts=None) -> Path:
     """A [[path]] with 'csv': the file's TCP poses as the path's samples."""
-    from .taskdata import parse_layout, read_pose_csv
+    from .taskdata import parse_layout, read_pose_csv, with_text
 
     for k in ("through", "start", "segments"):
         if k in p:
             raise ctx.err("a path from a CSV file takes no points ('through', 'start', 'segments')", "path", i, k)
-    layout = parse_layout(ctx, p, "path", i, _base_dir(source_name), "path")
+    layout = parse_layout(ctx, p, "path", i, _base_dir(source_name), "path", embedded)
     rule = p.get("orientation", "fixed" if layout.rotation != "none" else "free")
     if rule not in ORIENTATION_RULES:
         raise ctx.err(f"expected one of fixed, axis, free, got {rule!r}", "path", i, "orientation")
     if rule != "free" and layout.rotation == "none":
         raise ctx.err(f"orientation {rule!r} needs rotation columns (rotation = 'rpy' or 'quaternion')", "path", i,
                       "orientation")
+    layout = with_text(layout)
+    if csv_texts is not None:
+        csv_texts[layout.name] = layout.text
     poses = read_pose_csv(layout)
     return Path(name, "", (), speed * 1e-3, rule, poses, layout.file)
 

@@ -32,19 +32,22 @@ Every bad row gives one line: ``FILE: line L, column 'NAME': what is wrong``.
 from __future__ import annotations
 
 import csv
+import io
 import math
 import os
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 import numpy as np
 
 from ..errors import WorkbenchError
 
 __all__ = ["TaskDataError", "PoseCsv", "TrajectoryCsv", "Trajectory", "read_pose_csv", "write_pose_csv",
+           "read_csv_text", "self_contained_text",
            "samples_from_poses", "read_trajectory_csv", "write_trajectory_csv", "trajectory_rates",
            "MAX_ROWS"]
 
 MAX_ROWS = 2_000_000
+MAX_CSV_BYTES = 256 * 1024 * 1024
 _UNITS = {"m": 1.0, "mm": 1e-3}
 _DEG = math.pi / 180.0
 
@@ -61,6 +64,8 @@ class PoseCsv:
     columns: tuple
     rotation: str = "rpy"        # "rpy" | "quaternion" | "none"
     unit: str = "mm"
+    name: str = ""               # the file name as the cell file writes it
+    text: str | None = field(default=None, repr=False, compare=False)   # its content when embedded
 
 
 @dataclass(frozen=True)
@@ -73,6 +78,8 @@ class TrajectoryCsv:
     angle_unit: str = "deg"
     unit: str = "mm"
     time_unit: str = "s"
+    name: str = ""
+    text: str | None = field(default=None, repr=False, compare=False)
 
 
 @dataclass(frozen=True, eq=False)
@@ -96,16 +103,31 @@ class Trajectory:
         return self.values * np.array([asc if j.revolute else lsc for j in m.joints])
 
 
-def _read_table(path, names, what):
-    """Rows of the named columns as floats (N, len(names)); errors name file, line, column."""
+def read_csv_text(path, what) -> str:
+    """The text of a CSV file (UTF-8, a BOM dropped), or a one-line TaskDataError."""
     try:
-        fh = open(path, newline="", encoding="utf-8-sig")
+        with open(path, "rb") as fh:
+            raw = fh.read(MAX_CSV_BYTES + 1)
     except FileNotFoundError:
         raise TaskDataError(f"{path}: no such file ({what})") from None
     except IsADirectoryError:
         raise TaskDataError(f"{path}: is a directory, expected a CSV file ({what})") from None
     except OSError as exc:
         raise TaskDataError(f"{path}: cannot be read ({exc.strerror})") from None
+    if len(raw) > MAX_CSV_BYTES:
+        raise TaskDataError(f"{path}: more than {MAX_CSV_BYTES:,} bytes; at most that much is read ({what})")
+    try:
+        return raw.decode("utf-8-sig")
+    except UnicodeDecodeError:
+        raise TaskDataError(f"{path}: not UTF-8 text; expected a CSV file ({what})") from None
+
+
+def _read_table(path, names, what, text=None):
+    """Rows of the named columns as floats (N, len(names)) and the row line numbers, from the file
+    (or its embedded ``text``); errors name file, line, column."""
+    if text is None:
+        text = read_csv_text(path, what)
+    fh = io.StringIO(text, newline="")
     with fh:
         try:
             sample = fh.read(65536)
@@ -169,7 +191,7 @@ def _quat_matrix(w, x, y, z):
 def read_pose_csv(layout: PoseCsv) -> np.ndarray:
     """TCP poses (N, 4, 4) in the cell frame (m) from a pose CSV file."""
     need = {"rpy": 6, "quaternion": 7, "none": 3}[layout.rotation]
-    data, lines = _read_table(layout.file, list(layout.columns[:need]), "a pose path")
+    data, lines = _read_table(layout.file, list(layout.columns[:need]), "a pose path", layout.text)
     from ..limits import MAX_CELL_COORD
 
     N = data.shape[0]
@@ -255,7 +277,7 @@ def samples_from_poses(poses, rule: str, speed: float, name: str):
 
 def read_trajectory_csv(layout: TrajectoryCsv, name: str = "trajectory", requirements=None) -> Trajectory:
     """A :class:`Trajectory` from a CSV file of time + joint values (times strictly increasing)."""
-    data, lines = _read_table(layout.file, [layout.time, *layout.joints], "a joint trajectory")
+    data, lines = _read_table(layout.file, [layout.time, *layout.joints], "a joint trajectory", layout.text)
     t = data[:, 0] * (1e-3 if layout.time_unit == "ms" else 1.0)
     dt = np.diff(t)
     bad = np.flatnonzero(~(dt > 0))
@@ -288,13 +310,45 @@ def trajectory_rates(t, q):
     return qd, qdd
 
 
-def parse_layout(ctx, tbl, table, index, base_dir, kind):
+def self_contained_text(cell, text: str) -> str:
+    """The cell text with the CSV files it names appended as ``[[embedded_csv]]`` tables (their
+    content as read), so that a results file holding it reads back without the files. The text is
+    returned unchanged when the cell names no CSV file, a file holds ``'''`` or the result would be
+    larger than a cell file may be."""
+    from ..limits import MAX_TEXT_BYTES
+
+    files = getattr(cell, "csv_texts", None) or {}
+    if not files or text is None or "[[embedded_csv]]" in text:
+        return text
+    parts = [text.rstrip("\n"), "", "# ---- added by the workbench when the study ran: the CSV files this cell names, "
+             "as they were read"]
+    for name, body in files.items():
+        body = body.replace("\r\n", "\n").replace("\r", "\n")  # TOML strings take no bare CR
+        if "'''" in body or "\\" in name or '"' in name:
+            return text
+        parts += ["[[embedded_csv]]", f'file = "{name}"', "text = '''", body.rstrip("\n") + "'''", ""]
+    out = "\n".join(parts)
+    return out if len(out) <= MAX_TEXT_BYTES else text
+
+
+def with_text(layout):
+    """``layout`` with the file's text read (or kept when it came embedded in the cell text)."""
+    from dataclasses import replace
+
+    if layout.text is not None:
+        return layout
+    what = "a pose path" if isinstance(layout, PoseCsv) else "a joint trajectory"
+    return replace(layout, text=read_csv_text(layout.file, what))
+
+
+def parse_layout(ctx, tbl, table, index, base_dir, kind, embedded=None):
     """The CSV layout of a ``[[path]]`` with ``csv`` (kind "path") or a ``[[trajectory]]`` (kind
     "trajectory") from the cell file, errors through the cell reader's ``ctx``."""
     f = tbl.get("csv")
     if not isinstance(f, str) or not f.strip():
         raise ctx.err(f"expected a CSV file name, got {f!r}", table, index, "csv")
     file = f if os.path.isabs(f) else os.path.join(base_dir, f)
+    text = (embedded or {}).get(f)
     unit = tbl.get("csv_unit", "mm")
     if unit not in _UNITS:
         raise ctx.err(f"expected 'mm' or 'm', got {unit!r}", table, index, "csv_unit")
@@ -314,7 +368,7 @@ def parse_layout(ctx, tbl, table, index, base_dir, kind):
         if rot not in ("rpy", "quaternion", "none"):
             raise ctx.err(f"expected 'rpy', 'quaternion' or 'none', got {rot!r}", table, index, "rotation")
         need = {"rpy": 6, "quaternion": 7, "none": 3}[rot]
-        return PoseCsv(file, names("columns", need), rot, unit)
+        return PoseCsv(file, names("columns", need), rot, unit, f, text)
     t = tbl.get("time")
     if not isinstance(t, str) or not t.strip():
         raise ctx.err(f"expected the name of the time column, got {t!r}", table, index, "time")
@@ -327,4 +381,4 @@ def parse_layout(ctx, tbl, table, index, base_dir, kind):
     js = names("joints")
     if t.strip() in js:
         raise ctx.err(f"the time column {t!r} is also named as a joint column", table, index, "joints")
-    return TrajectoryCsv(file, t.strip(), js, au, unit, tu)
+    return TrajectoryCsv(file, t.strip(), js, au, unit, tu, f, text)
