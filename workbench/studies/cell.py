@@ -99,10 +99,13 @@ STYLE_TILTS = {"floor": 0.0, "wall": 90.0, "ceiling": 180.0}
 MAX_MOUNT_CANDIDATES = 2_000_000
 _DEG = math.pi / 180.0
 _UNITS = {"m": 1.0, "mm": 1e-3}
-_TOP = {"cell", "point", "path", "box", "mount", "placement", "requirements", "cylinder", "keep_out"}
+_TOP = {"cell", "point", "path", "box", "mount", "placement", "requirements", "cylinder", "keep_out",
+        "trajectory"}
 _CELL_KEYS = {"name", "description", "length_unit", "floor"}
 _POINT_KEYS = {"name", "xyz", "orientation", "rpy", "axis", "tolerance", "angle_tolerance", "requirements"}
-_PATH_KEYS = {"name", "speed", "through", "start", "segments", "orientation", "requirements"}
+_PATH_KEYS = {"name", "speed", "through", "start", "segments", "orientation", "requirements", "csv", "columns",
+              "rotation", "csv_unit"}
+_TRAJ_KEYS = {"name", "csv", "time", "joints", "angle_unit", "csv_unit", "time_unit", "requirements"}
 _BOX_KEYS = {"name", "center", "size", "yaw", "collide"}
 _KEEP_KEYS = {"name", "center", "size", "yaw"}
 _CYL_KEYS = {"name", "center", "radius", "height", "axis", "collide"}
@@ -163,8 +166,12 @@ class Path:
     segments: tuple[Segment, ...]
     speed: float
     rule: str
+    poses: np.ndarray | None = field(default=None, compare=False)   # a path from a CSV file: its rows (cell frame)
+    csv: str | None = None                                           # that file
 
     def point_names(self) -> list[str]:
+        if self.poses is not None:
+            return []
         out = [self.start]
         for s in self.segments:
             if s.via:
@@ -254,6 +261,7 @@ class Cell:
     cylinders: tuple = ()
     keep_outs: tuple = ()
     floor: bool = True
+    trajectories: tuple = ()             # joint trajectories from CSV (workbench.studies.taskdata.Trajectory)
 
     def obstacles(self) -> list:
         """What the clearance checks test against: [("floor", None)] when the floor is on, then
@@ -310,6 +318,8 @@ class Cell:
             s += f", {len(self.cylinders)} cylinders"
         if self.keep_outs:
             s += f", {len(self.keep_outs)} keep-out zones"
+        if self.trajectories:
+            s += f", {len(self.trajectories)} joint trajectories"
         if self.mount is not None:
             s += f", {self.mount.count} mount candidates"
         return s
@@ -542,8 +552,15 @@ def parse_cell_text(text: str, source_name: str = "<cell>") -> Cell:
         speed = _num(ctx, p["speed"], "path", i, "speed")
         if speed <= 0:
             raise ctx.err(f"tool speed must be > 0 mm/s, got {speed:g}", "path", i, "speed")
+        if "csv" in p:
+            paths.append(_csv_path(ctx, p, i, pname.strip(), speed, source_name))
+            continue
+        stray = sorted(set(p) & {"columns", "rotation", "csv_unit"})
+        if stray:
+            raise ctx.err("only a path from a CSV file ('csv') takes this key", "path", i, stray[0])
         if ("through" in p) == ("start" in p):
-            raise ctx.err("give either 'through' (a polyline) or 'start' with 'segments'", "path", i)
+            raise ctx.err("give either 'through' (a polyline), 'start' with 'segments', or 'csv' (a file of TCP "
+                          "poses)", "path", i)
         segs = []
         if "through" in p:
             thr = p["through"]
@@ -708,6 +725,24 @@ def parse_cell_text(text: str, source_name: str = "<cell>") -> Cell:
                                           "placement", None, "xyz", unit),
                                    _vec(ctx, pl.get("rpy", [0, 0, 0]), "placement", None, "rpy") * _DEG)
 
+    # ---- joint trajectories from CSV files
+    raw_tr = data.get("trajectory", [])
+    if not isinstance(raw_tr, list):
+        raise CellFileError(f"{source_name}: 'trajectory' must be an array of tables ([[trajectory]])")
+    trajectories = []
+    for i, t in enumerate(raw_tr):
+        _keys(ctx, t, _TRAJ_KEYS, "trajectory", i)
+        tname = t.get("name")
+        if not isinstance(tname, str) or not tname.strip():
+            raise ctx.err(f"expected a non-empty string, got {tname!r}", "trajectory", i, "name")
+        if any(x.name == tname.strip() for x in trajectories) or any(x.name == tname.strip() for x in paths):
+            raise ctx.err(f"duplicate name {tname!r} (paths and trajectories need distinct names)", "trajectory", i,
+                          "name")
+        from .taskdata import parse_layout, read_trajectory_csv
+
+        layout = parse_layout(ctx, t, "trajectory", i, _base_dir(source_name), "trajectory")
+        trajectories.append(read_trajectory_csv(layout, tname.strip()))
+
     # ---- requirements: cell-wide defaults, then per point / per path
     from .requirements import Requirements, parse_requirements
 
@@ -721,10 +756,39 @@ def parse_cell_text(text: str, source_name: str = "<cell>") -> Cell:
     for i, p in enumerate(raw_paths):
         if "requirements" in p:
             path_reqs[paths[i].name] = parse_requirements(ctx, p["requirements"], ("path", i), L, base, "path")
+    for i, t in enumerate(raw_tr):
+        if "requirements" in t:
+            path_reqs[trajectories[i].name] = parse_requirements(ctx, t["requirements"], ("trajectory", i), L, base,
+                                                                 "path")
 
     return Cell(name.strip(), tuple(points), tuple(paths), tuple(boxes), mount, placement, desc, unit,
                 text, source_name, requirements=base, point_requirements=point_reqs, path_requirements=path_reqs,
-                cylinders=tuple(cylinders), keep_outs=tuple(keep_outs), floor=floor)
+                cylinders=tuple(cylinders), keep_outs=tuple(keep_outs), floor=floor, trajectories=tuple(trajectories))
+
+
+def _base_dir(source_name: str) -> str:
+    """Folder that CSV file names in a cell file are relative to (the cell file's own)."""
+    if source_name and not source_name.startswith("<"):
+        return os.path.dirname(os.path.abspath(source_name))
+    return os.getcwd()
+
+
+def _csv_path(ctx, p, i, name, speed, source_name) -> Path:
+    """A [[path]] with 'csv': the file's TCP poses as the path's samples."""
+    from .taskdata import parse_layout, read_pose_csv
+
+    for k in ("through", "start", "segments"):
+        if k in p:
+            raise ctx.err("a path from a CSV file takes no points ('through', 'start', 'segments')", "path", i, k)
+    layout = parse_layout(ctx, p, "path", i, _base_dir(source_name), "path")
+    rule = p.get("orientation", "fixed" if layout.rotation != "none" else "free")
+    if rule not in ORIENTATION_RULES:
+        raise ctx.err(f"expected one of fixed, axis, free, got {rule!r}", "path", i, "orientation")
+    if rule != "free" and layout.rotation == "none":
+        raise ctx.err(f"orientation {rule!r} needs rotation columns (rotation = 'rpy' or 'quaternion')", "path", i,
+                      "orientation")
+    poses = read_pose_csv(layout)
+    return Path(name, "", (), speed * 1e-3, rule, poses, layout.file)
 
 
 # ----------------------------------------------------------------------------------------------
@@ -838,6 +902,10 @@ def sample_path(cell: Cell, path: Path, spacing: float) -> PathSamples:
     """
     if not (isinstance(spacing, (int, float)) and math.isfinite(spacing) and spacing > 0):
         raise WorkbenchError(f"path audit 'spacing': expected a positive length in metres, got {spacing!r}")
+    if path.poses is not None:  # a path from a CSV file: its rows, as they are
+        from .taskdata import samples_from_poses
+
+        return samples_from_poses(path.poses, path.rule, path.speed, path.name)
     by = {p.name: p for p in cell.points}
     s_all, P_all, R_all, t_all, w_all, seg_all = [], [], [], [], [], []
     corners = [0.0]
