@@ -220,7 +220,9 @@ def _track(arm, T, rule, seeds, jump, prev, q, flags, perr):
             qk, stat, pe = res.q, int(res.status), float(res.pos_err)
         if stat == CONVERGED:
             flags[k] |= REACHED
-        if prev is not None and _joint_step(arm, qk, prev) > jump:
+        # a flip is between two reached samples: an unreached sample's joint values are only the
+        # solver's closest miss, and a jump to or from it says nothing about the arm's branch
+        if stat == CONVERGED and prev is not None and _joint_step(arm, qk, prev) > jump:
             flags[k] |= JUMP
         q[k] = qk
         perr[k] = pe
@@ -612,7 +614,13 @@ def summarise_audit(plan, arrays) -> dict:
     tables["cycle_time"] = cycle_time_table(plan, arrays)
     fl = np.flatnonzero(done & ((flags & JUMP) > 0))
     if len(fl):
-        steps = [np.abs(q[k] - q[k - 1]) if k > 0 else np.zeros(arm.n) for k in fl]
+        def before(k):  # the reached sample of the same path the flip came from
+            j = k - 1
+            while j >= 0 and pidx[j] == pidx[k] and not reached[j]:
+                j -= 1
+            return j if j >= 0 and pidx[j] == pidx[k] else None
+
+        steps = [np.abs(q[k] - q[before(k)]) if before(k) is not None else np.zeros(arm.n) for k in fl]
         tables["branch_flips"] = Table(
             "Branch flips (large joint steps between samples)",
             {"path": np.array([names[pidx[k]] for k in fl], dtype=object), "at": dist[fl] * 1000,
