@@ -113,3 +113,217 @@ def test_mount_search_refine_zero_keeps_the_best_grid_candidate():
     assert sc["score"][0] == pytest.approx(rank["score"][0], rel=1e-9)
     assert best["reached"].tolist() == ev["reached"][0].astype(int).tolist()
     assert np.allclose(best["measure"], ev["measure"][0], rtol=1e-6, atol=1e-9)
+
+
+# ---------------------------------------------------------------------------------------------
+# count_solutions near a singularity
+
+
+def anthropomorphic_3r(a2=0.5, a3=0.4, d1=0.3):
+    """Anthropomorphic 3R arm built in code: joint 1 about z, joints 2 and 3 about parallel
+    horizontal axes (Siciliano, Sciavicco, Villani, Oriolo, "Robotics: Modelling, Planning and
+    Control", 2009, sec. 2.12.4; from memory)."""
+    from workbench.arm.model import ArmModel, Joint
+    from workbench.arm.transforms import translation
+    from workbench.kinematics import Arm
+
+    j1 = Joint("a1", "revolute", np.eye(4), np.array([0.0, 0, 1]))
+    j2 = Joint("a2", "revolute", translation(0, 0, d1), np.array([0.0, 1, 0]))
+    j3 = Joint("a3", "revolute", translation(a2, 0, 0), np.array([0.0, 1, 0]))
+    return Arm(ArmModel("anthropomorphic 3R", (j1, j2, j3), end=translation(a3, 0, 0)))
+
+
+def closed_form_3r(p, a2=0.5, a3=0.4, d1=0.3):
+    """The four position solutions of the anthropomorphic 3R (same source as above, from memory;
+    signs for axes along +y, checked by the FK below): shoulder th1 = atan2(py, px) or + pi, elbow
+    th3 = +-acos(c3), th2 from the planar 2R in the arm's vertical plane."""
+    px, py, pz = p
+    r = math.hypot(px, py)
+    z = pz - d1
+    c3 = (r * r + z * z - a2 * a2 - a3 * a3) / (2 * a2 * a3)
+    out = []
+    for th1, rr in ((math.atan2(py, px), r), (math.atan2(py, px) + math.pi, -r)):
+        for sgn in (1, -1):
+            th3 = sgn * math.acos(c3)
+            # rotation about +y turns +x towards -z: the 2R in the (x, -z) plane
+            th2 = math.atan2(-z, rr) - math.atan2(a3 * math.sin(th3), a2 + a3 * math.cos(th3))
+            out.append([th1, th2, th3])
+    return np.array(out)
+
+
+@pytest.mark.parametrize("rho", [3.6e-5, 1e-4, 0.05])
+def test_count_solutions_matches_the_closed_form_near_the_shoulder_singularity(rho):
+    # the wrist point at rho from axis 1: the smallest singular value of the position Jacobian is
+    # about rho (joint 1 moves the point at speed rho); 1e-6 m of tolerance leaves 1e-6 / rho rad of
+    # play in joint 1, and before the fix each converged seed in that play counted as a solution
+    # (16 "distinct" at rho = 3.6e-5). The closed form has 4.
+    from workbench.kinematics.ik import count_solutions, distinct_solutions, solve_ik
+
+    arm = anthropomorphic_3r()
+    p = np.array([rho, 0.0, 0.9])
+    G = np.eye(4)
+    G[:3, 3] = p
+    res = solve_ik(arm, G[None], seeds=32, orientation="free", all_solutions=True)
+    expected = closed_form_3r(p)
+    # the closed form's solutions reach p (this checks the formula's signs)
+    assert np.allclose(np.asarray(arm.fk(expected))[:, :3, 3], p, atol=1e-12)
+    assert count_solutions(arm, res.q, res.status).tolist() == [4]
+    kept = res.q[0][distinct_solutions(arm, res.q, res.status)[0]]
+    wrap = lambda d: (d + np.pi) % (2 * np.pi) - np.pi  # noqa: E731
+    for e in expected:  # each closed-form solution is one of the kept ones
+        gap = np.abs(wrap(kept - e)).max(axis=1)
+        assert gap.min() <= max(1e-5, 2e-6 / rho), (e, kept)
+
+
+def test_distinct_branches_close_in_joint_space_stay_distinct():
+    # planar 2R near the stretched pose: elbow +-a with a = 0.05 rad are two closed-form solutions
+    # 0.1 rad apart; the midpoint (th2 = 0) misses the target by l1 l2 a^2 / (l1 + l2) ~ 1.2e-3 m
+    # (common practice: cos a ~ 1 - a^2 / 2), so they are not merged
+    from workbench.arm.model import ArmModel, Joint
+    from workbench.arm.transforms import translation
+    from workbench.kinematics import Arm
+    from workbench.kinematics.ik import count_solutions
+
+    arm = Arm(ArmModel("2R", (Joint("t1", "revolute", np.eye(4), np.array([0.0, 0, 1])),
+                              Joint("t2", "revolute", translation(1, 0, 0), np.array([0.0, 0, 1]))),
+                       end=translation(1, 0, 0)))
+    a = 0.05
+    q = np.array([[[-a / 2, a], [a / 2, -a]]])
+    T = np.asarray(arm.fk(q))
+    assert np.allclose(T[0, 0, :3, 3], T[0, 1, :3, 3], atol=1e-12)  # the same tip: two solutions
+    assert count_solutions(arm, q, np.zeros((1, 2), int)).tolist() == [2]
+
+
+# ---------------------------------------------------------------------------------------------
+# URDF joint names an arm file cannot hold
+
+
+URDF_NAMES = """<robot name="names">
+  <link name="l0"/><link name="l1"/><link name="l2"/><link name="l3"/><link name="l4"/>
+  <joint name="arm:j1" type="revolute"><parent link="l0"/><child link="l1"/><axis xyz="0 0 1"/>
+    <limit lower="-3" upper="3" effort="10" velocity="2"/></joint>
+  <joint name="2" type="revolute"><parent link="l1"/><child link="l2"/><origin xyz="0.4 0 0.1"/>
+    <axis xyz="0 1 0"/><limit lower="-2" upper="2" effort="10" velocity="2"/></joint>
+  <joint name="base" type="revolute"><parent link="l2"/><child link="l3"/><origin xyz="0.3 0 0"/>
+    <axis xyz="0 1 0"/><limit lower="-2" upper="2" effort="10" velocity="2"/></joint>
+  <joint name="arm_j1" type="prismatic"><parent link="l3"/><child link="l4"/><origin xyz="0.1 0 0"/>
+    <axis xyz="1 0 0"/><limit lower="0" upper="0.2" effort="10" velocity="1"/></joint>
+</robot>
+"""
+
+
+def test_urdf_joint_names_are_made_arm_file_safe_and_read_back(tmp_path):
+    from workbench.arm.files import read_arm_file, same_arm, write_arm_file
+    from workbench.arm.urdf import parse_urdf_text
+    from workbench.kinematics import Arm
+
+    model = parse_urdf_text(URDF_NAMES, "names.urdf")
+    assert model.names == ("arm_j1_2", "joint_2", "joint_base", "arm_j1")
+    assert "'arm:j1' -> 'arm_j1_2'" in model.description
+    out = tmp_path / "names.toml"
+    write_arm_file(model, out)  # before: written, but reading it back failed on 'arm:j1'
+    back = read_arm_file(out)
+    assert back.names == model.names and same_arm(back, model, atol=1e-12)
+    # the same kinematics: tool positions at random poses agree with the URDF model (numpy FK)
+    q = np.random.default_rng(3).uniform([-3, -2, -2, 0], [3, 2, 2, 0.2], (20, 4))
+    assert np.allclose(Arm(back).fk(q), Arm(model).fk(q), atol=1e-12)
+
+
+# ---------------------------------------------------------------------------------------------
+# workbench jacobian: rows the arm cannot serve at any pose
+
+
+def test_jacobian_of_rows_the_wall_arm_never_serves_is_not_called_a_singularity(capsys):
+    # demo_p3 moves in a vertical plane of the world (mounted on a wall): world rows vy, wz are
+    # zero at every pose, so [vx, vy, wz] has rank 1 at most. numpy: the rank of the world rows at
+    # random poses is 1, and the base-frame planar rows have rank 3.
+    from workbench.cli import main
+    from workbench.kinematics import load_arm as load
+
+    arm = load(ROOT / "arms" / "demo_p3.toml")
+    Q = np.random.default_rng(0).uniform(-2, 2, (10, 3))
+    Jw = np.asarray(arm.jacobian(Q, world=True))[:, [0, 1, 5], :]
+    Jb = np.asarray(arm.jacobian(Q))[:, [0, 1, 5], :]
+    assert max(np.linalg.matrix_rank(j) for j in Jw) == 1 and min(np.linalg.matrix_rank(j) for j in Jb) == 3
+    assert main(["jacobian", str(ROOT / "arms" / "demo_p3.toml"), "--q", "-30,60,20", "--rows", "planar",
+                 "--world"]) == 0
+    out = capsys.readouterr().out
+    assert "At a singularity" not in out and "stretched" not in out
+    assert "cannot serve the world-frame rows [vx, vy, wz] at any pose (rank at most 1 of 3" in out
+    assert "never moves along or about vy, wz" in out and "drop --world" in out
+    # at a true singularity the old note stays: the base-frame rows with the arm stretched out
+    assert main(["jacobian", str(ROOT / "arms" / "demo_p3.toml"), "--q", "30,0,0", "--rows", "planar"]) == 0
+    out = capsys.readouterr().out
+    assert "At a singularity" in out and "cannot serve" not in out
+
+
+# ---------------------------------------------------------------------------------------------
+# path audit: branch flips only between reached samples
+
+
+def test_branch_flips_are_counted_between_reached_samples_only():
+    # targets along a line from inside the reach of the demo arm to far outside and back: before the
+    # fix every unreached sample whose closest miss moved the joints flagged a flip (64 in the
+    # issue's case, all unreached). Independent count: numpy over the tracked joint values, the
+    # largest wrapped joint step between consecutive *reached* samples above the threshold.
+    from workbench.studies.path_audit import JUMP, REACHED, track_path
+
+    arm = load_arm(S6)
+    xs = np.concatenate([np.linspace(0.6, 4.0, 30), np.linspace(4.0, 0.6, 30)])
+    T = np.tile(np.eye(4), (len(xs), 1, 1))
+    T[:, :3, :3] = np.diag([1.0, -1.0, -1.0])
+    T[:, 0, 3], T[:, 2, 3] = xs, 0.4
+    jump = math.radians(10)
+    q, flags, _ = track_path(arm, T, "fixed", seeds=8, jump=jump)
+    reached = (flags & REACHED) > 0
+    assert reached.any() and (~reached).sum() >= 20
+    assert not np.any((flags & JUMP)[~reached])
+    idx = np.flatnonzero(reached)
+    steps = np.abs((np.diff(q[idx], axis=0) + np.pi) % (2 * np.pi) - np.pi).max(axis=1)
+    expected = np.zeros(len(xs), bool)
+    expected[idx[1:]] = steps > jump
+    assert np.array_equal((flags & JUMP) > 0, expected)
+
+
+# ---------------------------------------------------------------------------------------------
+# a kind added with register_kind on worker processes
+
+
+from workbench.studies.joint_sweep import JointSweep  # noqa: E402
+
+
+class CopiedSweep(JointSweep):
+    """A kind registered at run time (a plug-in): the joint sweep under another name."""
+
+    name = "copied_sweep"
+    title = "Copied sweep"
+
+
+def test_a_registered_kind_runs_on_worker_processes(tmp_path):
+    # before: the worker processes did not know the name ("unknown study kind 'copied_sweep'")
+    from workbench.runner import run_study
+    from workbench.studies.base import KINDS, register_kind
+    from workbench.studies.spec import StudySpec
+
+    register_kind("copied_sweep", CopiedSweep)
+    try:
+        settings = {"joints": ["j2", "j3"], "steps": [9, 7], "rows": "translation"}
+        spec = StudySpec(kind="copied_sweep", arm=str(S6), settings=settings)
+        res = run_study(spec, out=tmp_path / "r.h5", executor="processes", workers=2, chunk_cells=16)
+        assert not res.incomplete
+        # independent value: numpy's SVD of the translation rows at the grid's poses
+        arm = load_arm(S6)
+        j2 = np.radians(np.linspace(*settings_range(arm, 1), 9))
+        j3 = np.radians(np.linspace(*settings_range(arm, 2), 7))
+        Q = np.tile(arm.home_q, (63, 1))
+        Q[:, 1], Q[:, 2] = np.repeat(j2, 7), np.tile(j3, 9)
+        sv = np.linalg.svd(np.asarray(arm.jacobian(Q))[:, :3, :], compute_uv=False)
+        got = np.asarray(res.arrays["inverse_condition"]).reshape(-1)
+        assert np.allclose(got, sv[:, -1] / sv[:, 0], rtol=1e-9, atol=1e-12)
+    finally:
+        KINDS.pop("copied_sweep", None)
+
+
+def settings_range(arm, k):
+    """The default sweep range of joint k in degrees: its limits (the joint sweep's default)."""
+    return math.degrees(arm.model.lower[k]), math.degrees(arm.model.upper[k])

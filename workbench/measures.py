@@ -1058,8 +1058,9 @@ def holding_parts(arm, q, force=None, moment=None, payload=None, g=9.81, frame="
         Include the arm's own link and tool masses (refused with a clear message when the arm file
         gives no masses).
     world : bool
-        Gravity and world-frame vectors are in the world frame (the mount respected); false: the
-        arm's base frame.
+        Work in the world frame (the arm's mount respected; default) or in its base frame. ``g`` and
+        world-frame vectors are always given in the world frame, so the torques are the same either
+        way (joint torques do not depend on the frame the sums are made in).
 
     Returns
     -------

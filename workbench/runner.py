@@ -228,8 +228,32 @@ def _compute(kind_name, plan, arm, cell, chunk, threads=None):
 
     if threads is not None:
         kernels.set_threads(threads)
-    kind = get_kind(kind_name)
+    kind = _worker_kind(kind_name)
     return chunk, kind.compute_chunk(plan, arm, cell, chunk)
+
+
+def _kind_ref(kind: StudyKind):
+    """What a worker needs to find ``kind``: its name when the registry entry is a dotted path
+    (every process knows it), else ``(name, target)`` with the class or instance given to
+    :func:`~workbench.studies.base.register_kind` (pickled by reference to its module), so a kind
+    registered at run time works in worker processes and on Dask workers too."""
+    from .studies.base import KINDS
+
+    target = KINDS.get(kind.name)
+    if isinstance(target, str):
+        return kind.name
+    return (kind.name, target if target is not None else type(kind))
+
+
+def _worker_kind(ref) -> StudyKind:
+    from .studies.base import KINDS, register_kind
+
+    if isinstance(ref, tuple):
+        name, target = ref
+        if KINDS.get(name) is not target:
+            register_kind(name, target)
+        return get_kind(name)
+    return get_kind(ref)
 
 
 def _worker_init():
@@ -499,7 +523,7 @@ def _run_processes(kind, plan, arm, cell, finished, is_cancelled, n_workers, poo
         def submit():
             c = next(chunks, None)
             if c is not None:
-                pending.add(pool.submit(_compute, kind.name, plan, arm, cell, c, 1))
+                pending.add(pool.submit(_compute, _kind_ref(kind), plan, arm, cell, c, 1))
             return c is not None
 
         for _ in range(2 * n_workers):
@@ -589,7 +613,7 @@ def _run_dask(kind, plan, arm, cell, finished, is_cancelled, n_workers, schedule
                 cluster.close()
             raise RunError(f"--scheduler {addr}: cannot connect ({str(exc).splitlines()[0]})") from None
     try:
-        ctx = client.scatter([kind.name, plan, arm, cell], broadcast=True)
+        ctx = client.scatter([_kind_ref(kind), plan, arm, cell], broadcast=True)
         n_slots = max(1, sum(client.nthreads().values())) if hasattr(client, "nthreads") else n_workers
         chunks = iter(plan.chunks)
         pending = set()

@@ -22,11 +22,12 @@ from __future__ import annotations
 
 import math
 import os
+from dataclasses import replace
 
 import numpy as np
 
 from ..limits import MAX_MAGNITUDE
-from .files import MAX_FILE_BYTES, MAX_JOINTS, ArmFileError
+from .files import MAX_FILE_BYTES, MAX_JOINTS, ArmFileError, arm_joint_name
 from .model import PRISMATIC, REVOLUTE, ArmModel, Joint
 from .transforms import make_transform
 
@@ -260,10 +261,21 @@ def parse_urdf_text(raw, source_name: str = "<urdf>", base_link: str | None = No
     names = [j.name for j in out]
     if len(set(names)) != len(names):  # pragma: no cover - joint names are unique above
         raise ArmFileError(f"{src}: duplicate joint names on the chain")
+    # names an arm file cannot hold ('arm:j1', '2', 'base') are renamed, so the arm written from
+    # this model reads back; the description says which
+    renamed, taken = [], set()
+    for k, j in enumerate(out):
+        new = arm_joint_name(j.name, taken | set(names[k + 1:]))
+        taken.add(new)
+        if new != j.name:
+            renamed.append(f"{j.name!r} -> {new!r}")
+            out[k] = replace(j, name=new)
     home = np.clip(np.zeros(len(out)), [j.lower for j in out], [j.upper for j in out])
+    description = f"imported from URDF {os.path.basename(src)} ({base} -> {tip})"
+    if renamed:
+        description += f"; joints renamed for arm files: {', '.join(renamed)}"
     return ArmModel(name=robot_name, joints=tuple(out), end=np.ascontiguousarray(end), home=home,
-                    description=f"imported from URDF {os.path.basename(src)} ({base} -> {tip})",
-                    source=None, path=src)
+                    description=description, source=None, path=src)
 
 
 def _subtree(base, children):

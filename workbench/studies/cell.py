@@ -99,10 +99,13 @@ STYLE_TILTS = {"floor": 0.0, "wall": 90.0, "ceiling": 180.0}
 MAX_MOUNT_CANDIDATES = 2_000_000
 _DEG = math.pi / 180.0
 _UNITS = {"m": 1.0, "mm": 1e-3}
-_TOP = {"cell", "point", "path", "box", "mount", "placement", "requirements", "cylinder", "keep_out"}
+_TOP = {"cell", "point", "path", "box", "mount", "placement", "requirements", "cylinder", "keep_out",
+        "trajectory", "embedded_csv"}
 _CELL_KEYS = {"name", "description", "length_unit", "floor"}
 _POINT_KEYS = {"name", "xyz", "orientation", "rpy", "axis", "tolerance", "angle_tolerance", "requirements"}
-_PATH_KEYS = {"name", "speed", "through", "start", "segments", "orientation", "requirements"}
+_PATH_KEYS = {"name", "speed", "through", "start", "segments", "orientation", "requirements", "csv", "columns",
+              "rotation", "csv_unit"}
+_TRAJ_KEYS = {"name", "csv", "time", "joints", "angle_unit", "csv_unit", "time_unit", "requirements"}
 _BOX_KEYS = {"name", "center", "size", "yaw", "collide"}
 _KEEP_KEYS = {"name", "center", "size", "yaw"}
 _CYL_KEYS = {"name", "center", "radius", "height", "axis", "collide"}
@@ -163,8 +166,12 @@ class Path:
     segments: tuple[Segment, ...]
     speed: float
     rule: str
+    poses: np.ndarray | None = field(default=None, compare=False)   # a path from a CSV file: its rows (cell frame)
+    csv: str | None = None                                           # that file
 
     def point_names(self) -> list[str]:
+        if self.poses is not None:
+            return []
         out = [self.start]
         for s in self.segments:
             if s.via:
@@ -254,6 +261,8 @@ class Cell:
     cylinders: tuple = ()
     keep_outs: tuple = ()
     floor: bool = True
+    trajectories: tuple = ()             # joint trajectories from CSV (workbench.studies.taskdata.Trajectory)
+    csv_texts: dict = field(default_factory=dict)   # CSV file name (as written) -> the text read
 
     def obstacles(self) -> list:
         """What the clearance checks test against: [("floor", None)] when the floor is on, then
@@ -310,6 +319,8 @@ class Cell:
             s += f", {len(self.cylinders)} cylinders"
         if self.keep_outs:
             s += f", {len(self.keep_outs)} keep-out zones"
+        if self.trajectories:
+            s += f", {len(self.trajectories)} joint trajectories"
         if self.mount is not None:
             s += f", {self.mount.count} mount candidates"
         return s
@@ -469,7 +480,8 @@ def parse_cell_text(text: str, source_name: str = "<cell>") -> Cell:
         raise CellFileError(f"{source_name}: malformed TOML: {exc}") from None
     unknown = sorted(set(data) - _TOP)
     if unknown:  # a top-level name is a table (or a stray key): say so, not "unknown key"
-        tables = ", ".join(f"[{t}]" if t in ("cell", "mount", "placement") else f"[[{t}]]" for t in sorted(_TOP))
+        tables = ", ".join(f"[{t}]" if t in ("cell", "mount", "placement", "requirements") else f"[[{t}]]"
+                           for t in sorted(_TOP - {"embedded_csv"}))  # embedded_csv: written by the workbench
         raise CellFileError(f"{source_name}: unknown table or key '{unknown[0]}'; allowed tables: {tables}")
     if "cell" not in data:
         raise CellFileError(f"{source_name}: missing table [cell] (with at least 'name')")
@@ -525,6 +537,17 @@ def parse_cell_text(text: str, source_name: str = "<cell>") -> Cell:
         points.append(WorkPoint(pname.strip(), T, rule, tol, atol))
     names = {p.name for p in points}
 
+    # ---- CSV files embedded in the text (results files keep the files a cell names)
+    embedded, csv_texts = {}, {}
+    raw_emb = data.get("embedded_csv", [])
+    if not isinstance(raw_emb, list):
+        raise CellFileError(f"{source_name}: 'embedded_csv' must be an array of tables ([[embedded_csv]])")
+    for i, e in enumerate(raw_emb):
+        _keys(ctx, e, {"file", "text"}, "embedded_csv", i)
+        if not isinstance(e.get("file"), str) or not isinstance(e.get("text"), str):
+            raise ctx.err("expected file = NAME and text = CSV content (strings)", "embedded_csv", i)
+        embedded[e["file"]] = e["text"]
+
     # ---- paths
     raw_paths = data.get("path", [])
     if not isinstance(raw_paths, list):
@@ -542,8 +565,15 @@ def parse_cell_text(text: str, source_name: str = "<cell>") -> Cell:
         speed = _num(ctx, p["speed"], "path", i, "speed")
         if speed <= 0:
             raise ctx.err(f"tool speed must be > 0 mm/s, got {speed:g}", "path", i, "speed")
+        if "csv" in p:
+            paths.append(_csv_path(ctx, p, i, pname.strip(), speed, source_name, embedded, csv_texts))
+            continue
+        stray = sorted(set(p) & {"columns", "rotation", "csv_unit"})
+        if stray:
+            raise ctx.err("only a path from a CSV file ('csv') takes this key", "path", i, stray[0])
         if ("through" in p) == ("start" in p):
-            raise ctx.err("give either 'through' (a polyline) or 'start' with 'segments'", "path", i)
+            raise ctx.err("give either 'through' (a polyline), 'start' with 'segments', or 'csv' (a file of TCP "
+                          "poses)", "path", i)
         segs = []
         if "through" in p:
             thr = p["through"]
@@ -708,6 +738,25 @@ def parse_cell_text(text: str, source_name: str = "<cell>") -> Cell:
                                           "placement", None, "xyz", unit),
                                    _vec(ctx, pl.get("rpy", [0, 0, 0]), "placement", None, "rpy") * _DEG)
 
+    # ---- joint trajectories from CSV files
+    raw_tr = data.get("trajectory", [])
+    if not isinstance(raw_tr, list):
+        raise CellFileError(f"{source_name}: 'trajectory' must be an array of tables ([[trajectory]])")
+    trajectories = []
+    for i, t in enumerate(raw_tr):
+        _keys(ctx, t, _TRAJ_KEYS, "trajectory", i)
+        tname = t.get("name")
+        if not isinstance(tname, str) or not tname.strip():
+            raise ctx.err(f"expected a non-empty string, got {tname!r}", "trajectory", i, "name")
+        if any(x.name == tname.strip() for x in trajectories) or any(x.name == tname.strip() for x in paths):
+            raise ctx.err(f"duplicate name {tname!r} (paths and trajectories need distinct names)", "trajectory", i,
+                          "name")
+        from .taskdata import parse_layout, read_trajectory_csv, with_text
+
+        layout = with_text(parse_layout(ctx, t, "trajectory", i, _base_dir(source_name), "trajectory", embedded))
+        csv_texts[layout.name] = layout.text
+        trajectories.append(read_trajectory_csv(layout, tname.strip()))
+
     # ---- requirements: cell-wide defaults, then per point / per path
     from .requirements import Requirements, parse_requirements
 
@@ -721,10 +770,43 @@ def parse_cell_text(text: str, source_name: str = "<cell>") -> Cell:
     for i, p in enumerate(raw_paths):
         if "requirements" in p:
             path_reqs[paths[i].name] = parse_requirements(ctx, p["requirements"], ("path", i), L, base, "path")
+    for i, t in enumerate(raw_tr):
+        if "requirements" in t:
+            path_reqs[trajectories[i].name] = parse_requirements(ctx, t["requirements"], ("trajectory", i), L, base,
+                                                                 "path")
 
     return Cell(name.strip(), tuple(points), tuple(paths), tuple(boxes), mount, placement, desc, unit,
                 text, source_name, requirements=base, point_requirements=point_reqs, path_requirements=path_reqs,
-                cylinders=tuple(cylinders), keep_outs=tuple(keep_outs), floor=floor)
+                cylinders=tuple(cylinders), keep_outs=tuple(keep_outs), floor=floor, trajectories=tuple(trajectories),
+                csv_texts=csv_texts)
+
+
+def _base_dir(source_name: str) -> str:
+    """Folder that CSV file names in a cell file are relative to (the cell file's own)."""
+    if source_name and not source_name.startswith("<"):
+        return os.path.dirname(os.path.abspath(source_name))
+    return os.getcwd()
+
+
+def _csv_path(ctx, p, i, name, speed, source_name, embedded=None, csv_texts=None) -> Path:
+    """A [[path]] with 'csv': the file's TCP poses as the path's samples."""
+    from .taskdata import parse_layout, read_pose_csv, with_text
+
+    for k in ("through", "start", "segments"):
+        if k in p:
+            raise ctx.err("a path from a CSV file takes no points ('through', 'start', 'segments')", "path", i, k)
+    layout = parse_layout(ctx, p, "path", i, _base_dir(source_name), "path", embedded)
+    rule = p.get("orientation", "fixed" if layout.rotation != "none" else "free")
+    if rule not in ORIENTATION_RULES:
+        raise ctx.err(f"expected one of fixed, axis, free, got {rule!r}", "path", i, "orientation")
+    if rule != "free" and layout.rotation == "none":
+        raise ctx.err(f"orientation {rule!r} needs rotation columns (rotation = 'rpy' or 'quaternion')", "path", i,
+                      "orientation")
+    layout = with_text(layout)
+    if csv_texts is not None:
+        csv_texts[layout.name] = layout.text
+    poses = read_pose_csv(layout)
+    return Path(name, "", (), speed * 1e-3, rule, poses, layout.file)
 
 
 # ----------------------------------------------------------------------------------------------
@@ -838,6 +920,10 @@ def sample_path(cell: Cell, path: Path, spacing: float) -> PathSamples:
     """
     if not (isinstance(spacing, (int, float)) and math.isfinite(spacing) and spacing > 0):
         raise WorkbenchError(f"path audit 'spacing': expected a positive length in metres, got {spacing!r}")
+    if path.poses is not None:  # a path from a CSV file: its rows, as they are
+        from .taskdata import samples_from_poses
+
+        return samples_from_poses(path.poses, path.rule, path.speed, path.name)
     by = {p.name: p for p in cell.points}
     s_all, P_all, R_all, t_all, w_all, seg_all = [], [], [], [], [], []
     corners = [0.0]

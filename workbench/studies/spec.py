@@ -258,6 +258,9 @@ def load_context(spec: StudySpec):
             raise StudyError(f"{where}: [study] cell: cell file {cell_path} does not exist")
         cell_text = read_text(cell_path, f"{where}: [study] cell")
         cell = _read_cell(cell_path, where)
+        from .taskdata import self_contained_text
+
+        cell_text = self_contained_text(cell, cell_text)  # the CSV files it names go into the results too
     elif get_kind(spec.kind).needs_cell:
         raise StudyError(f"{where}: [study] cell: study kind {spec.kind!r} needs a cell file")
     return arm, cell, arm_text, cell_text
