@@ -631,7 +631,10 @@ def _mount_decision(ctx: _Ctx) -> Decision:
 
     # verdicts
     missing = [nm for nm, ok in zip(names, reached) if not ok]
-    verdicts = [Verdict("points_served", "Work points served (reached, inside the joint limits)", f"all {P}",
+    served_what = ("Work points served (reached, inside the joint limits, the cell's requirements met)"
+                   if bp is not None and "requirements_met" in bp.columns else
+                   "Work points served (reached, inside the joint limits)")
+    verdicts = [Verdict("points_served", served_what, f"all {P}",
                         f"{int(reached.sum())} of {P}", ", ".join(missing) if missing else "-",
                         PASS if not missing else FAIL, "", float(reached.sum()), float(P), "", "higher")]
     verdicts.append(_verdict_from_values("inverse_condition", f"Inverse condition ({_rows_words(s.rows)})",

@@ -229,8 +229,32 @@ def _compute(kind_name, plan, arm, cell, chunk, threads=None):
 
     if threads is not None:
         kernels.set_threads(threads)
-    kind = get_kind(kind_name)
+    kind = _worker_kind(kind_name)
     return chunk, kind.compute_chunk(plan, arm, cell, chunk)
+
+
+def _kind_ref(kind: StudyKind):
+    """What a worker needs to find ``kind``: its name when the registry entry is a dotted path
+    (every process knows it), else ``(name, target)`` with the class or instance given to
+    :func:`~workbench.studies.base.register_kind` (pickled by reference to its module), so a kind
+    registered at run time works in worker processes and on Dask workers too."""
+    from .studies.base import KINDS
+
+    target = KINDS.get(kind.name)
+    if isinstance(target, str):
+        return kind.name
+    return (kind.name, target if target is not None else type(kind))
+
+
+def _worker_kind(ref) -> StudyKind:
+    from .studies.base import KINDS, register_kind
+
+    if isinstance(ref, tuple):
+        name, target = ref
+        if KINDS.get(name) is not target:
+            register_kind(name, target)
+        return get_kind(name)
+    return get_kind(ref)
 
 
 #: how often a worker process checks that the process that started it still runs (seconds)
@@ -575,7 +599,7 @@ def _run_processes(kind, plan, arm, cell, finished, is_cancelled, n_workers, poo
         def submit():
             c = next(chunks, None)
             if c is not None:
-                pending.add(pool.submit(_compute, kind.name, plan, arm, cell, c, 1))
+                pending.add(pool.submit(_compute, _kind_ref(kind), plan, arm, cell, c, 1))
             return c is not None
 
         with _SigintBlocked():  # the first submits start the workers
@@ -614,6 +638,35 @@ def _run_processes(kind, plan, arm, cell, finished, is_cancelled, n_workers, poo
                 fut.cancel()
 
 
+def _connect(Client, addr, timeout=None):
+    """A Client of the scheduler at ``addr``, or a RunError after ``timeout`` seconds (default
+    :data:`workbench.limits.SCHEDULER_TIMEOUT_S`) when it does not answer: a port that accepts the
+    connection but never replies would otherwise keep the run waiting for ever. The attempt runs in a
+    daemon thread so a stuck handshake cannot hold the caller."""
+    import threading
+
+    from .limits import SCHEDULER_TIMEOUT_S
+
+    timeout = SCHEDULER_TIMEOUT_S if timeout is None else float(timeout)
+    box: dict = {}
+
+    def attempt():
+        try:
+            box["client"] = Client(addr, timeout=f"{max(1, int(timeout))}s")
+        except BaseException as exc:  # noqa: BLE001 - handed to the caller
+            box["error"] = exc
+
+    t = threading.Thread(target=attempt, name="workbench-dask-connect", daemon=True)
+    t.start()
+    t.join(timeout + 1.0)
+    if "client" in box:
+        return box["client"]
+    if "error" in box:
+        raise box["error"]
+    raise RunError(f"--scheduler {addr}: no answer within {timeout:g} s (the port accepts connections but no Dask "
+                   f"scheduler replies); expected the address of a running dask scheduler")
+
+
 def _run_dask(kind, plan, arm, cell, finished, is_cancelled, n_workers, scheduler, pool):
     try:
         from distributed import Client, LocalCluster, wait
@@ -631,7 +684,7 @@ def _run_dask(kind, plan, arm, cell, finished, is_cancelled, n_workers, schedule
                                        dashboard_address=None, silence_logs=logging.ERROR)
                 client = Client(cluster)
             else:
-                client = Client(addr, timeout="10s")
+                client = _connect(Client, addr)
         except RunError:
             raise
         except Exception as exc:
@@ -639,7 +692,7 @@ def _run_dask(kind, plan, arm, cell, finished, is_cancelled, n_workers, schedule
                 cluster.close()
             raise RunError(f"--scheduler {addr}: cannot connect ({str(exc).splitlines()[0]})") from None
     try:
-        ctx = client.scatter([kind.name, plan, arm, cell], broadcast=True)
+        ctx = client.scatter([_kind_ref(kind), plan, arm, cell], broadcast=True)
         n_slots = max(1, sum(client.nthreads().values())) if hasattr(client, "nthreads") else n_workers
         chunks = iter(plan.chunks)
         pending = set()
