@@ -192,8 +192,8 @@ def cell_warnings(arm, cell, settings_mount=None, uses_region=False) -> list[str
     limit = FAR_FACTOR * reach
     if uses_region and getattr(cell, "mount", None) is not None:
         reg = cell.mount
-        lo = np.array([np.min(reg.x), np.min(reg.y), np.min(reg.heights)])
-        hi = np.array([np.max(reg.x), np.max(reg.y), np.max(reg.heights)])
+        lo = np.array([np.min(reg.xs), np.min(reg.ys), np.min(reg.heights)])
+        hi = np.array([np.max(reg.xs), np.max(reg.ys), np.max(reg.heights)])
         gap = np.linalg.norm(np.maximum(0.0, np.maximum(lo - P, P - hi)), axis=1)  # point to the region's box
         nearest = float(gap.min())
         if nearest > limit:
