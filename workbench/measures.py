@@ -29,7 +29,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from .errors import WorkbenchError
-from .kinematics import kernels
+from .kinematics import kernels, lanes
 from .kinematics.rows import parse_rows, row_scale
 
 __all__ = ["measures", "measures_from_sv", "pose_measures", "MEASURE_NAMES", "MEASURE_INFO",
@@ -50,21 +50,11 @@ MEASURE_INFO = {
 
 
 def measures_from_sv(sv) -> dict:
-    """Measures from singular values ``sv`` (..., m) sorted descending (zero-padded when m > n)."""
-    sv = np.asarray(sv, dtype=float)
-    s1 = sv[..., 0]
-    sm = sv[..., -1]
-    w = np.prod(sv, axis=-1)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        inv = np.where(s1 > 0, sm / np.where(s1 > 0, s1, 1.0), 0.0)
-        cond = np.where(sm > 0, s1 / np.where(sm > 0, sm, 1.0), np.inf)
-    return {
-        "manipulability": w,
-        "condition": cond,
-        "inverse_condition": inv,
-        "min_sv": sm.copy(),
-        "sv": sv,
-    }
+    """Measures from singular values ``sv`` (..., m) sorted descending (zero-padded when m > n).
+
+    manipulability = prod(sv); inverse_condition = sm / s1 (0 where s1 = 0); condition = s1 / sm
+    (inf where sm = 0); min_sv = sm. The compiled lane kernels write the same values."""
+    return lanes.measures_from_sv(sv)
 
 
 def measures(J, rows="full", length=1.0) -> dict:
@@ -92,9 +82,15 @@ def measures(J, rows="full", length=1.0) -> dict:
     scale = row_scale(tuple(r), length)
     lead = J.shape[:-2]
     A = np.ascontiguousarray(J.reshape((-1,) + J.shape[-2:]))
+    if lanes.covers(A.shape[2]):
+        kernels.dynamic_schedule()
+        kernels.announce_compile("lanes")
+        sv, w, cond, inv = lanes.sv_measures(A, r, scale)
+        return lanes.measures_dict(sv, w, cond, inv, lead, len(r))
     out = np.empty((A.shape[0], len(r)))
     if A.shape[0]:
         kernels.dynamic_schedule()
+        kernels.announce_compile("kernels")
         kernels.sv_batch(A, r, scale, out)
     return measures_from_sv(out.reshape(lead + (len(r),)))
 
@@ -107,8 +103,7 @@ def pose_measures(arm, q, frame="tcp", rows="full", length=None, world=False) ->
     """
     if length is None:
         length = arm.nominal_reach()
-    sv = arm.singular_values(q, frame=frame, rows=rows, length=length, world=world)
-    return measures_from_sv(sv)
+    return arm.pose_measures(q, frame=frame, rows=rows, length=length, world=world)
 
 
 # ==============================================================================================

@@ -278,6 +278,9 @@ def solve_ik(arm, T_goal, seeds=8, orientation="fixed", q_seed=None, pos_tol=1e-
     out_iter = np.empty((N, slots), dtype=np.int32)
     m = arm.model
     if N:
+        from .kernels import announce_compile
+
+        announce_compile("ik")
         _k.ik_batch(goals, np.ascontiguousarray(common), user, *pool, n_near, NEAR_CANDIDATES, NEAR_SPREAD, m.origins, m.axes, m.kinds,
                     np.ascontiguousarray(m.tcp_offset), lower, upper, mode, 1.0 / L, cap, center, reach,
                     float(pos_tol), float(rot_tol), int(max_iter), W0, LAMBDA0, MAX_STEP, wrap, bool(all_solutions),
@@ -326,6 +329,9 @@ def target_seeds(arm, T_goal, seeds=8, orientation="fixed", rng=0) -> np.ndarray
     n_near = min(NEAR, common.shape[0] - 1)
     pool = seed_pool(arm, rng)
     idx = np.empty((goals.shape[0], n_near), dtype=np.int64)
+    from .kernels import announce_compile
+
+    announce_compile("ik")
     _k.near_seeds_batch(goals, *pool[:6], n_near, NEAR_CANDIDATES, NEAR_SPREAD, arm.model.kinds, mode, 1.0 / float(arm.nominal_reach()), idx)
     rest = np.concatenate([common[:1], common[1 + n_near:]])
     out = np.concatenate([pool[0][idx], np.broadcast_to(rest, (goals.shape[0],) + rest.shape)], axis=1)
