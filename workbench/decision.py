@@ -1292,8 +1292,25 @@ def decision_for(results, progress=None) -> Decision:
     ctx = _Ctx(results, progress)
     builder = BUILDERS.get(results.kind, _generic_decision)
     out = builder(ctx)
+    out = _with_plausibility(results, out)
     ctx.progress(1.0, "decision ready")
     return out
+
+
+def _with_plausibility(results, dec: Decision) -> Decision:
+    """The decision with the study's plausibility warnings (nothing or almost nothing reachable,
+    :mod:`workbench.studies.plausibility`) added to its notes, so the report and the window say it."""
+    from dataclasses import replace
+
+    from .studies.plausibility import result_warnings
+
+    try:
+        warns = result_warnings(results.kind, results.arrays)
+    except Exception:  # noqa: BLE001 - a warning must never stop a decision
+        return dec
+    if not warns:
+        return dec
+    return replace(dec, notes=tuple(dec.notes) + tuple(f"Warning: {w[0].upper()}{w[1:]}." for w in warns))
 
 
 # ----------------------------------------------------------------------------------------------

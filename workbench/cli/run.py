@@ -113,6 +113,10 @@ def run(args) -> int:
     note = unused_note(prep.kind, prep.plan.spec.settings)
     if note:
         sys.stderr.write(f"note: {prep.plan.spec.where}: [settings] not used, ignored: {note}\n")
+    from ..studies.plausibility import result_warnings, study_warnings
+
+    for w in study_warnings(prep):  # units, angles, a placement out of reach: the run goes on
+        sys.stderr.write(f"warning: {w}\n")
     if args.scheduler:
         executor = "dask"
     elif args.in_process:
@@ -161,6 +165,8 @@ def run(args) -> int:
         bar.end()
         sys.stderr.write(f"cancelled: {done} of {res.finished.size} chunks kept in {out} (marked incomplete)\n")
         return 128 + int(why.get("signal", signal.SIGINT))
+    for w in result_warnings(prep.kind.name, res.arrays, prep.plan.spec.where):
+        sys.stderr.write(f"warning: {w}\n")
     if not args.quiet:
         sys.stderr.write(f"wrote {out} ({res.attrs.get('elapsed_s', 0):.1f} s, {res.attrs.get('executor')})\n")
     return 0
