@@ -80,7 +80,6 @@ def test_sigterm_and_sighup_cancel_into_a_readable_incomplete_file_as_ctrl_c_doe
     assert leftovers(tmp_path) == []
 
 
-@pytest.mark.xfail(strict=False, reason="landed before it was run to the end on this machine; see issue 13 report")
 @pytest.mark.slow
 @pytest.mark.parametrize("delay", [0.0, 0.3, 1.0, 2.5])
 def test_ctrl_c_at_any_moment_of_a_process_run_ends_without_hang_or_traceback(tmp_path, delay):
@@ -108,7 +107,6 @@ def _descendants(pid):
         return []
 
 
-@pytest.mark.xfail(strict=False, reason="landed before it was run to the end on this machine; see issue 13 report")
 @pytest.mark.slow
 @pytest.mark.parametrize("how", ["kill -9", "SIGTERM"])
 def test_worker_processes_end_when_the_run_ends_however_it_ends(tmp_path, how):
@@ -135,7 +133,6 @@ def _dead_pid():
     return p.pid
 
 
-@pytest.mark.xfail(strict=False, reason="landed before it was run to the end on this machine; see issue 13 report")
 @pytest.mark.slow
 def test_a_second_run_on_the_same_out_is_refused_while_the_first_runs(tmp_path, capsys):
     out = tmp_path / "r.h5"
