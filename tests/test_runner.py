@@ -105,12 +105,24 @@ def test_cancel_from_another_thread_stops_processes_promptly(tmp_path):
     assert read_results(tmp_path / "c.h5").incomplete
 
 
-def test_runs_that_cannot_fit_are_refused(tmp_path):
-    huge = spec(steps=[100000, 90000])  # 9e9 cells: hundreds of GB of results
-    with pytest.raises(RunError, match="of memory but only .* is free; stream them to a file with --out"):
+def test_runs_that_cannot_fit_are_refused(tmp_path, monkeypatch):
+    import collections
+
+    import workbench.runner as runner_mod
+    from workbench.limits import MAX_CELLS
+
+    huge = spec(steps=[100000, 90000])  # 9e9 cells: refused by the cell limit before any plan exists
+    with pytest.raises(WorkbenchError, match=f"9,000,000,000 cells .*at most {MAX_CELLS:,}"):
         run_study(huge)
+    big = spec(steps=[3000, 3000])  # 9e6 cells, a few hundred MB: refused on a small machine
+    monkeypatch.setattr(runner_mod, "_available_memory", lambda: 64 << 20)
+    with pytest.raises(RunError, match="of memory but only .* is free; stream them to a file with --out"):
+        run_study(big)
+    usage = collections.namedtuple("usage", "total used free")
+    monkeypatch.setattr(runner_mod.shutil, "disk_usage", lambda p: usage(1 << 30, 1 << 30, 32 << 20))
     with pytest.raises(RunError, match="on disk but"):
-        run_study(huge, out=tmp_path / "big.h5")
+        run_study(big, out=tmp_path / "big.h5")
+    monkeypatch.undo()
     assert list(tmp_path.iterdir()) == []
     with pytest.raises(WorkbenchError, match="executor: expected one of"):
         run_study(spec(), executor="threads")
