@@ -79,7 +79,10 @@ class Shape:
             return "box " + " x ".join(f"{s * 1e3:.0f}" for s in self.size) + " mm"
         if self.kind == "cylinder":
             return f"cylinder r {self.radius * 1e3:.0f} mm, {self.length * 1e3:.0f} mm long"
-        return (f"mesh {self.mesh} (enclosure {self.volume_ratio:.2f}x the convex hull's volume)")
+        import os
+
+        return (f"mesh {self.name or os.path.basename(self.mesh)} (checked as a capsule and a box around its "
+                f"convex hull, at most {self.volume_ratio:.2f}x the hull's volume)")
 
 
 def check_shape(s: Shape, where: str) -> Shape:
