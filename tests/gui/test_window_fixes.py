@@ -259,3 +259,69 @@ def test_csv_names_each_joint_once(window, sweep_file, tmp_path):
     c = rows[:, 0].astype(int)
     j, i = np.divmod(c, d.shape[1])
     assert np.allclose(rows[:, k2], d.y[j])          # the j2 column holds the grid's j2 values
+
+
+# ---- results are kept: the project folder ---------------------------------------------------
+def _run_small(window, qtbot, steps="[9, 7]"):
+    window.study_panel.edits["steps"].setText(steps)
+    assert window.study_panel.check()
+    window.study_panel.run_btn.click()
+    qtbot.waitUntil(lambda: not window.running, timeout=60000)
+    return window.results_file
+
+
+def test_runs_are_kept_in_the_project_folder_and_listed(window, qtbot, qsettings):
+    folder = qsettings.value("project_dir")
+    a = _run_small(window, qtbot, "[9, 7]")
+    b = _run_small(window, qtbot, "[5, 5]")
+    assert a != b and os.path.dirname(a) == folder and os.path.dirname(b) == folder
+    listed = [window.runs_list.item(i).data(QtCore.Qt.UserRole) for i in range(window.runs_list.count())]
+    assert sorted(listed) == sorted([a, b])
+    # double-clicking (activating) an entry opens that run
+    item = window.runs_list.item(listed.index(a))
+    window.runs_list.itemActivated.emit(item)
+    assert window.results_file == a and window.result.shape == (9, 7)
+    window.close()
+    assert os.path.exists(a) and os.path.exists(b)      # Quit deletes nothing
+
+
+def test_the_last_results_reopen_on_start(qtbot, qsettings, window):
+    from workbench.gui.main_window import MainWindow
+
+    path = _run_small(window, qtbot)
+    window.close()
+    w2 = MainWindow(settings=qsettings)
+    w2.show()
+    try:
+        assert w2.results_file == path and w2.result is not None and w2.result.shape == (9, 7)
+        assert w2.runs_list.count() == 1
+    finally:
+        from conftest import dispose
+
+        dispose(w2)
+
+
+def test_runs_go_beside_the_study_file_when_no_folder_was_chosen(window, qtbot, qsettings, tmp_path):
+    qsettings.remove("project_dir")
+    study = tmp_path / "cellwork" / "my_sweep.toml"
+    study.parent.mkdir()
+    text = open(STUDY, encoding="utf-8").read().replace("../demo_s6.toml", os.path.join(ROOT, "arms", "demo_s6.toml"))
+    text = text.replace('"tray_cell.toml"', repr(os.path.join(ROOT, "arms", "cells", "tray_cell.toml")).replace("'", '"'))
+    study.write_text(text)
+    assert window.open_file(str(study)), window.last_error
+    path = _run_small(window, qtbot)
+    assert os.path.dirname(path) == str(tmp_path / "cellwork" / "my_sweep_runs")
+
+
+def test_a_report_is_written_in_the_background(window, qtbot, sweep_file, tmp_path):
+    assert window.open_file(sweep_file), window.last_error
+    seen = []
+    out = str(tmp_path / "report.html")
+    window.start_report(out)
+    window.report_worker.progress.connect(lambda f, t: seen.append(f))
+    assert window.report_thread is not None          # the call returned while the report is written
+    qtbot.waitUntil(lambda: window.report_thread is None, timeout=120000)
+    assert os.path.exists(out) and not window.last_error
+    html = open(out, encoding="utf-8").read()
+    assert os.path.basename(sweep_file) in html          # it names a results file that exists
+    assert os.path.exists(sweep_file)

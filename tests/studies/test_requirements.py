@@ -171,3 +171,28 @@ def test_requirement_check_torques_worked_by_hand():
     # 100 N down overloads both joints: fails, joint 2 worst
     chk = requirement_check(arm, np.zeros(2), Requirements(force=np.array([0, 0, -100.0]), frame="world"))
     assert not bool(chk.ok) and chk.torque_margin < 0 and chk.torque_joint == 1
+
+
+def test_requirement_check_per_mount_equals_the_mounted_arm():
+    # requirement_check(mounts=M) works in the base frame with gravity R^T g per pose; it must give
+    # the holding torques of workbench.measures on an arm mounted at each M (tilted, turned mounts,
+    # a payload with an offset, a tool force in the tool frame and a moment in the cell frame)
+    from dataclasses import replace as dreplace
+    from pathlib import Path
+
+    from workbench import load_arm
+    from workbench.arm.transforms import make_transform
+    from workbench.measures import Payload, holding_torques
+
+    arm = load_arm(Path(__file__).resolve().parents[2] / "arms" / "demo_s6.toml")
+    rng = np.random.default_rng(8)
+    Q = arm.random_q(6, rng)
+    M = np.array([make_transform(rng.normal(size=3), rng.uniform(-np.pi, np.pi, 3)) for _ in range(6)])
+    pay = Payload(7.0, [0.02, -0.01, 0.12])
+    for frame in ("tool", "world"):
+        r = Requirements(force=np.array([10.0, -20, 150]), moment=np.array([1.0, 2, -3]), frame=frame, payload=pay)
+        chk = requirement_check(arm, Q, r, mounts=M)
+        for k in range(6):
+            marm = Arm(dreplace(arm.model, mount=M[k]))
+            tau = holding_torques(marm, Q[k], force=r.force, moment=r.moment, payload=pay, frame=frame)
+            np.testing.assert_allclose(chk.tau[k], tau, rtol=1e-10, atol=1e-9)

@@ -16,12 +16,13 @@ from workbench.studies.path_audit import PathAudit
 from workbench.studies.spec import StudySpec
 
 
-def gantry(masses=True):
+def gantry(masses=True, efforts=(500, 400, 200)):
     """Invented 3-axis gantry: x, y, z slides (TCP = (q1, q2, q3)); speed and acceleration limits
     x 0.9 m/s, 2 m/s^2; y 0.4 m/s, 1 m/s^2; z 0.5 m/s, 3 m/s^2; z carries 5 kg, limit 200 N."""
     j = []
-    for name, ax, v, a, f, m in (("x", [1, 0, 0], 0.9, 2.0, 500, 20.0), ("y", [0, 1, 0], 0.4, 1.0, 400, 10.0),
-                                 ("z", [0, 0, 1], 0.5, 3.0, 200, 5.0)):
+    for name, ax, v, a, f, m in (("x", [1, 0, 0], 0.9, 2.0, efforts[0], 20.0),
+                                 ("y", [0, 1, 0], 0.4, 1.0, efforts[1], 10.0),
+                                 ("z", [0, 0, 1], 0.5, 3.0, efforts[2], 5.0)):
         jd = {"name": name, "type": "prismatic", "xyz": [0, 0, 0], "axis": ax, "limits": [-0.5, 2.0],
               "max_speed": v, "max_acceleration": a, "max_effort": f}
         if masses:
@@ -167,3 +168,64 @@ xyz = [1, 0, 1]
     a = kind.compute_chunk(plan, arm, cell, Chunk(0, 0, plan.cells))
     assert a["payload"][1] == pytest.approx((15 - 3.924) / 9.81, rel=1e-12)
     assert kind.summarise(plan, a)["requirements"].columns["payload"][0] == 0.5
+
+
+MOUNT_CELL = """
+[cell]
+name = "gantry press"
+[requirements]
+force = [100, 0, 0]
+wrench_frame = "cell"
+[[point]]
+name = "press"
+xyz = [0.5, 0.5, 0.3]
+[[point]]
+name = "free"
+xyz = [0.4, 0.3, 0.3]
+requirements = {force = [0, 0, 0]}
+[mount]
+x = [0, 0]
+y = [0, 0]
+yaws = [90, 0]
+"""
+
+
+def test_mount_search_serves_a_point_only_where_its_requirements_hold():
+    # The gantry's y slide holds at most 60 N. Pressing 100 N along the cell's x axis: with the base
+    # at yaw 0 the x slide takes it (margin (500 - 100) / 500), the z slide still holds its own 5 kg
+    # (margin (200 - 49.05) / 200 = 0.75475, the smallest); at yaw 90 the base y axis is the cell's
+    # -x, so the y slide must supply 100 N > 60 N: the point is reached but not served there.
+    from workbench.studies.mount_search import MountSearch, MountSettings, evaluate_mounts
+    from workbench.studies.cell import mount_transforms
+    from workbench.studies.requirements import Requirements
+
+    arm = gantry(efforts=(500, 60, 200))
+    cell = parse_cell_text(MOUNT_CELL, "press.toml")
+    pts = cell.points[:1]
+    s = MountSettings(measure="min_sv", rows="translation", seeds=4,
+                      requirements=(cell.requirements_for(point="press"),))
+    M = mount_transforms(np.zeros(2), np.zeros(2), 0.0, np.radians([0.0, 90.0]), 0.0)
+    ev = evaluate_mounts(arm, M, pts, s)
+    assert ev["reached"][:, 0].tolist() == [True, False]
+    assert ev["unmet"][:, 0].tolist() == [False, True]
+    assert ev["torque_margin"][0, 0] == pytest.approx((200 - 5 * 9.81) / 200, rel=1e-9)
+    assert ev["torque_margin"][1, 0] == pytest.approx((60 - 100) / 60, rel=1e-9)
+    # without requirements both mounts serve it
+    ev0 = evaluate_mounts(arm, M, pts, MountSettings(measure="min_sv", rows="translation", seeds=4))
+    assert ev0["reached"][:, 0].tolist() == [True, True]
+    # the whole study: yaw 0 ranks first, the ranking and the per-point table report the margin
+    kind = MountSearch()
+    spec = StudySpec(kind="mount_search", arm="gantry", cell="press.toml",
+                     settings={"measure": "min_sv", "rows": "translation", "seeds": 4, "refine": 1,
+                               "sensitivity": False})
+    plan = kind.plan(spec, arm, cell)
+    arrays = kind.compute_chunk(plan, arm, cell, Chunk(0, 0, plan.cells))
+    t = kind.summarise(plan, arrays)
+    r = t["ranking"].columns
+    assert r["yaw"][0] == pytest.approx(0.0) and r["reached"][0] == 100.0 and r["reached"][1] == 50.0
+    assert r["torque_margin"][0] == pytest.approx((200 - 5 * 9.81) / 200, rel=1e-9)
+    # yaw 90 serves only 'free'; its smallest margin is the unmet press point's, which says why
+    assert r["torque_margin"][1] == pytest.approx((60 - 100) / 60, rel=1e-9)
+    bp = t["best_points"].columns
+    assert list(bp["requirements_met"]) == [1, 1] and list(bp["reached"]) == [1, 1]
+    np.testing.assert_allclose(bp["torque_margin"], (200 - 5 * 9.81) / 200, rtol=1e-9)

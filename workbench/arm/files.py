@@ -77,15 +77,16 @@ from dataclasses import replace
 
 import numpy as np
 
+from ..limits import MAX_MAGNITUDE, check_toml_text
 from .model import PRISMATIC, REVOLUTE, ArmError, ArmModel, Joint
 from .transforms import make_transform, matrix_to_rpy, rot_x, rot_z, translation
 
 __all__ = ["ArmFileError", "read_arm_file", "parse_arm_dict", "parse_arm_text", "arm_to_dict",
-           "write_arm_file", "dumps_arm", "same_arm", "MAX_JOINTS", "MAX_FILE_BYTES"]
+           "write_arm_file", "dumps_arm", "same_arm", "arm_joint_name", "MAX_JOINTS", "MAX_FILE_BYTES"]
 
 MAX_JOINTS = 32
 MAX_FILE_BYTES = 4 * 1024 * 1024
-_MAX_MAGNITUDE = 1e9          # any number in a file; larger values are typos, not arms
+_MAX_MAGNITUDE = MAX_MAGNITUDE  # any number in a file; larger values are typos, not arms
 _ROT_TOL = 1e-6
 _DEG = math.pi / 180.0
 _UNITS = {"m": 1.0, "mm": 1e-3}
@@ -102,6 +103,23 @@ _SHAPE_KEYS = {"capsule": {"a", "b", "radius"}, "sphere": {"center", "radius"},
 _PLACE_KEYS = {"xyz", "rpy", "rot"}
 _RESERVED_NAMES = {"tcp", "flange", "base"}
 _NAME_RE = re.compile(r"^[^\s:,\x00-\x1f\x7f]([^:,\x00-\x1f\x7f]{0,62}[^\s:,\x00-\x1f\x7f])?$")
+
+
+def arm_joint_name(name: str, taken=()) -> str:
+    """A joint name an arm file accepts, made from ``name`` (e.g. a URDF joint name): ':' ',' and
+    control characters become '_', surrounding spaces go, a name of digits only or a reserved name
+    (tcp, flange, base) gets a ``joint_`` prefix, at most 64 characters, and a ``_2``, ``_3`` ...
+    suffix when the result is already in ``taken``. A valid name not in ``taken`` comes back as it is."""
+    out = re.sub(r"[:,\x00-\x1f\x7f]", "_", str(name)).strip() or "joint"
+    if out.isdigit() or out.lower() in _RESERVED_NAMES:
+        out = f"joint_{out}"
+    out = out[:64].strip()
+    base, k = out, 2
+    while out in taken or not _NAME_RE.match(out):
+        tail = f"_{k}"
+        out = base[:64 - len(tail)].strip() + tail
+        k += 1
+    return out
 
 
 class ArmFileError(ArmError):
@@ -401,6 +419,7 @@ def parse_arm_text(raw, source_name: str = "<arm>") -> ArmModel:
         text = str(raw)
     if "\x00" in text:
         raise ArmFileError(f"{source_name}: contains NUL characters; expected a TOML arm file (text)")
+    check_toml_text(text, source_name, ArmFileError)
     try:
         data = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:

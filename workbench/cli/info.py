@@ -9,6 +9,7 @@ from __future__ import annotations
 import json
 import math
 import os
+import sys
 
 import numpy as np
 
@@ -135,6 +136,8 @@ def run(args) -> int:
         raise WorkbenchError(f"--seed: expected a whole number >= 0, got {args.seed}")
     arm = load(args)
     info = summarise(arm, samples=args.samples, seed=args.seed)
+    for w in info.get("plausibility", []):
+        sys.stderr.write(f"warning: {w}\n")
     if args.json:
         print(json.dumps(json_value(info), indent=2))
     else:
@@ -244,7 +247,7 @@ def summarise(arm, samples=REACH_SAMPLES, seed=0) -> dict:
         })
     home = [_clean(v * joint_unit(j)[0], 6) for v, j in zip(arm.home_q, m.joints)]
     total_mass = float(np.nansum(m.masses)) if np.any(np.isfinite(m.masses)) else None
-    return {
+    out = {
         "file": m.path and os.fspath(m.path),
         "name": m.name,
         "description": m.description,
@@ -263,6 +266,12 @@ def summarise(arm, samples=REACH_SAMPLES, seed=0) -> dict:
         "collision": collision_summary(arm),
         "warnings": warnings_for(arm) + collision_warnings(arm),
     }
+    from ..studies.plausibility import arm_warnings
+
+    plaus = arm_warnings(arm)  # units and angles that look wrong: also "warning:" lines on stderr
+    out["plausibility"] = plaus
+    out["warnings"] = plaus + out["warnings"]
+    return out
 
 
 def collision_summary(arm) -> dict:

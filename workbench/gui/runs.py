@@ -10,7 +10,6 @@ the chunks already finished (the file is closed and marked incomplete).
 from __future__ import annotations
 
 import os
-import threading
 import tomllib
 
 import numpy as np
@@ -19,6 +18,7 @@ from PySide6 import QtCore
 from ..errors import WorkbenchError
 from ..studies import calibrate, get_kind, load_context
 from .resultdata import ResultData
+from .workers import Worker
 
 __all__ = ["StudySession", "StudyWorker", "session_from_spec", "session_from_results",
            "GUI_CHUNK_SECONDS"]
@@ -250,22 +250,22 @@ def session_from_results(res) -> StudySession:
     return s
 
 
-class StudyWorker(QtCore.QObject):
-    """Runs a study with :func:`workbench.runner.run_study` in a worker thread; signals only.
+class StudyWorker(Worker):
+    """Runs a study with :func:`workbench.runner.run_study` in a worker thread; signals only
+    (the :class:`~workbench.gui.workers.Worker` ones, and two of its own).
 
     Signals
     -------
     chunk_finished(int, int, object)
         start, stop, ``{field: array}`` of a finished chunk.
-    progress(int, int, float)
+    cells(int, int, float)
         cells done, cells total, seconds left (NaN while unknown).
     finished(str, object)
         "done", "cancelled" or "failed: <message>", and the results file path (or None).
     """
 
     chunk_finished = QtCore.Signal(int, int, object)
-    progress = QtCore.Signal(int, int, float)
-    finished = QtCore.Signal(str, object)
+    cells = QtCore.Signal(int, int, float)
 
     def __init__(self, spec, out_path, executor="inprocess", chunk_seconds=GUI_CHUNK_SECONDS):
         super().__init__()
@@ -273,37 +273,27 @@ class StudyWorker(QtCore.QObject):
         self.out_path = out_path
         self.executor = executor
         self.chunk_seconds = chunk_seconds
-        self._cancel = threading.Event()
+        self._incomplete = False
 
-    def cancel(self):
-        """Ask the runner to stop after the current chunk (thread-safe)."""
-        self._cancel.set()
+    def status_of(self, result) -> str:
+        return "cancelled" if (self.cancelled and self._incomplete) else "done"
 
-    @property
-    def cancelled(self) -> bool:
-        return self._cancel.is_set()
-
-    @QtCore.Slot()
-    def run(self):
+    def work(self):
         from ..runner import prepare, run_study
 
         def on_chunk(chunk, arrays):
             self.chunk_finished.emit(chunk.start, chunk.stop, {k: np.array(v) for k, v in arrays.items()})
 
         def progress(done, total, eta):
-            self.progress.emit(int(done), int(total), float(eta))
+            self.cells.emit(int(done), int(total), float(eta))
+            self.progress.emit(done / max(total, 1), "")
 
-        try:
-            study = prepare(self.spec)
-            if study.plan.n_chunks > 1:
-                study = self.spec    # let the runner size the chunks (about chunk_seconds each)
-            # else: the kind wants the whole grid in one chunk (a path audit tracks each path from
-            # its start), so run its own plan as it is
-            res = run_study(study, out=self.out_path, executor=self.executor, progress=progress,
-                            cancel=self._cancel, on_chunk=on_chunk, chunk_seconds=self.chunk_seconds)
-            status = "cancelled" if (self._cancel.is_set() and res.incomplete) else "done"
-            self.finished.emit(status, self.out_path if os.path.exists(self.out_path) else None)
-        except WorkbenchError as exc:
-            self.finished.emit(f"failed: {exc}", None)
-        except Exception as exc:  # a bug in a kind: report it, never take the window down
-            self.finished.emit(f"failed: {exc.__class__.__name__}: {exc}", None)
+        study = prepare(self.spec)
+        if study.plan.n_chunks > 1:
+            study = self.spec    # let the runner size the chunks (about chunk_seconds each)
+        # else: the kind wants the whole grid in one chunk (a path audit tracks each path from
+        # its start), so run its own plan as it is
+        res = run_study(study, out=self.out_path, executor=self.executor, progress=progress,
+                        cancel=self._cancel, on_chunk=on_chunk, chunk_seconds=self.chunk_seconds)
+        self._incomplete = bool(res.incomplete)
+        return self.out_path if os.path.exists(self.out_path) else None

@@ -87,6 +87,7 @@ import numpy as np
 
 from ..arm.transforms import inverse_transform, make_transform, rot_y, rot_z, translation
 from ..errors import WorkbenchError
+from ..limits import MAX_CELL_COORD, MAX_MAGNITUDE, MAX_TEXT_BYTES, check_toml_text
 
 __all__ = ["CellFileError", "Cell", "WorkPoint", "Path", "Segment", "Box", "Cylinder", "MountRegion",
            "read_cell_file", "parse_cell_text", "mount_transforms", "style_tilt", "PathSamples",
@@ -98,10 +99,13 @@ STYLE_TILTS = {"floor": 0.0, "wall": 90.0, "ceiling": 180.0}
 MAX_MOUNT_CANDIDATES = 2_000_000
 _DEG = math.pi / 180.0
 _UNITS = {"m": 1.0, "mm": 1e-3}
-_TOP = {"cell", "point", "path", "box", "mount", "placement", "requirements", "cylinder", "keep_out"}
+_TOP = {"cell", "point", "path", "box", "mount", "placement", "requirements", "cylinder", "keep_out",
+        "trajectory", "embedded_csv"}
 _CELL_KEYS = {"name", "description", "length_unit", "floor"}
 _POINT_KEYS = {"name", "xyz", "orientation", "rpy", "axis", "tolerance", "angle_tolerance", "requirements"}
-_PATH_KEYS = {"name", "speed", "through", "start", "segments", "orientation", "requirements"}
+_PATH_KEYS = {"name", "speed", "through", "start", "segments", "orientation", "requirements", "csv", "columns",
+              "rotation", "csv_unit"}
+_TRAJ_KEYS = {"name", "csv", "time", "joints", "angle_unit", "csv_unit", "time_unit", "requirements"}
 _BOX_KEYS = {"name", "center", "size", "yaw", "collide"}
 _KEEP_KEYS = {"name", "center", "size", "yaw"}
 _CYL_KEYS = {"name", "center", "radius", "height", "axis", "collide"}
@@ -162,8 +166,12 @@ class Path:
     segments: tuple[Segment, ...]
     speed: float
     rule: str
+    poses: np.ndarray | None = field(default=None, compare=False)   # a path from a CSV file: its rows (cell frame)
+    csv: str | None = None                                           # that file
 
     def point_names(self) -> list[str]:
+        if self.poses is not None:
+            return []
         out = [self.start]
         for s in self.segments:
             if s.via:
@@ -253,6 +261,8 @@ class Cell:
     cylinders: tuple = ()
     keep_outs: tuple = ()
     floor: bool = True
+    trajectories: tuple = ()             # joint trajectories from CSV (workbench.studies.taskdata.Trajectory)
+    csv_texts: dict = field(default_factory=dict)   # CSV file name (as written) -> the text read
 
     def obstacles(self) -> list:
         """What the clearance checks test against: [("floor", None)] when the floor is on, then
@@ -309,6 +319,8 @@ class Cell:
             s += f", {len(self.cylinders)} cylinders"
         if self.keep_outs:
             s += f", {len(self.keep_outs)} keep-out zones"
+        if self.trajectories:
+            s += f", {len(self.trajectories)} joint trajectories"
         if self.mount is not None:
             s += f", {self.mount.count} mount candidates"
         return s
@@ -370,9 +382,15 @@ class _Ctx:
 def _num(ctx, v, table, index, key, positive=False, nonneg=False):
     if isinstance(v, bool) or not isinstance(v, (int, float)):
         raise ctx.err(f"expected a number, got {v!r}", table, index, key)
-    v = float(v)
+    try:
+        v = float(v)
+    except OverflowError:  # a TOML integer beyond a float
+        raise ctx.err(f"expected a number of magnitude at most {MAX_MAGNITUDE:g}, got {v!r}", table, index,
+                      key) from None
     if not math.isfinite(v):
         raise ctx.err(f"expected a finite number, got {v!r}", table, index, key)
+    if abs(v) > MAX_MAGNITUDE:
+        raise ctx.err(f"expected a number of magnitude at most {MAX_MAGNITUDE:g}, got {v:g}", table, index, key)
     if positive and v <= 0:
         raise ctx.err(f"expected a number > 0, got {v:g}", table, index, key)
     if nonneg and v < 0:
@@ -384,6 +402,17 @@ def _vec(ctx, v, table, index, key, size=3):
     if not isinstance(v, (list, tuple)) or len(v) != size:
         raise ctx.err(f"expected a list of {size} numbers, got {v!r}", table, index, key)
     return np.array([_num(ctx, x, table, index, key) for x in v], dtype=float)
+
+
+def _coord(ctx, values, table, index, key, unit):
+    """``values`` (metres, any shape) unchanged when every one is within :data:`MAX_CELL_COORD`."""
+    a = np.asarray(values, dtype=float)
+    if a.size and float(np.max(np.abs(a))) > MAX_CELL_COORD:
+        bad = float(a.reshape(-1)[int(np.argmax(np.abs(a)))])
+        shown = f"{bad * 1e3:g} mm ({bad:g} m)" if unit == "mm" else f"{bad:g} m"
+        raise ctx.err(f"value {shown} is beyond the limit of {MAX_CELL_COORD:g} m from the cell origin "
+                      f"(is the length unit right?)", table, index, key)
+    return values
 
 
 def _numlist(ctx, v, table, key, nonempty=True):
@@ -425,13 +454,15 @@ def read_cell_file(path) -> Cell:
     path = os.fspath(path)
     try:
         with open(path, "rb") as fh:
-            raw = fh.read()
+            raw = fh.read(MAX_TEXT_BYTES + 1)
     except IsADirectoryError:
         raise CellFileError(f"{path}: is a directory, expected a cell file (.toml)") from None
     except FileNotFoundError:
         raise CellFileError(f"{path}: no such file") from None
     except OSError as exc:
         raise CellFileError(f"{path}: cannot be read ({exc.strerror})") from None
+    if len(raw) > MAX_TEXT_BYTES:
+        raise CellFileError(f"{path}: larger than {MAX_TEXT_BYTES >> 20} MB; a cell file is a few kB of TOML")
     try:
         text = raw.decode("utf-8")
     except UnicodeDecodeError:
@@ -441,6 +472,7 @@ def read_cell_file(path) -> Cell:
 
 def parse_cell_text(text: str, source_name: str = "<cell>") -> Cell:
     """Parse and validate cell-file text (see the module docstring for the schema)."""
+    check_toml_text(text, source_name, CellFileError)
     ctx = _Ctx(source_name, text)
     try:
         data = tomllib.loads(text)
@@ -448,7 +480,8 @@ def parse_cell_text(text: str, source_name: str = "<cell>") -> Cell:
         raise CellFileError(f"{source_name}: malformed TOML: {exc}") from None
     unknown = sorted(set(data) - _TOP)
     if unknown:  # a top-level name is a table (or a stray key): say so, not "unknown key"
-        tables = ", ".join(f"[{t}]" if t in ("cell", "mount", "placement") else f"[[{t}]]" for t in sorted(_TOP))
+        tables = ", ".join(f"[{t}]" if t in ("cell", "mount", "placement", "requirements") else f"[[{t}]]"
+                           for t in sorted(_TOP - {"embedded_csv"}))  # embedded_csv: written by the workbench
         raise CellFileError(f"{source_name}: unknown table or key '{unknown[0]}'; allowed tables: {tables}")
     if "cell" not in data:
         raise CellFileError(f"{source_name}: missing table [cell] (with at least 'name')")
@@ -482,7 +515,7 @@ def parse_cell_text(text: str, source_name: str = "<cell>") -> Cell:
             raise ctx.err(f"duplicate work point name {pname!r}", "point", i, "name")
         if "xyz" not in p:
             raise ctx.err("missing key 'xyz' (the TCP position)", "point", i)
-        xyz = _vec(ctx, p["xyz"], "point", i, "xyz") * L
+        xyz = _coord(ctx, _vec(ctx, p["xyz"], "point", i, "xyz") * L, "point", i, "xyz", unit)
         rule = p.get("orientation", "fixed" if "rpy" in p else ("axis" if "axis" in p else "free"))
         if rule not in ORIENTATION_RULES:
             raise ctx.err(f"expected one of fixed, axis, free, got {rule!r}", "point", i, "orientation")
@@ -504,6 +537,17 @@ def parse_cell_text(text: str, source_name: str = "<cell>") -> Cell:
         points.append(WorkPoint(pname.strip(), T, rule, tol, atol))
     names = {p.name for p in points}
 
+    # ---- CSV files embedded in the text (results files keep the files a cell names)
+    embedded, csv_texts = {}, {}
+    raw_emb = data.get("embedded_csv", [])
+    if not isinstance(raw_emb, list):
+        raise CellFileError(f"{source_name}: 'embedded_csv' must be an array of tables ([[embedded_csv]])")
+    for i, e in enumerate(raw_emb):
+        _keys(ctx, e, {"file", "text"}, "embedded_csv", i)
+        if not isinstance(e.get("file"), str) or not isinstance(e.get("text"), str):
+            raise ctx.err("expected file = NAME and text = CSV content (strings)", "embedded_csv", i)
+        embedded[e["file"]] = e["text"]
+
     # ---- paths
     raw_paths = data.get("path", [])
     if not isinstance(raw_paths, list):
@@ -521,8 +565,15 @@ def parse_cell_text(text: str, source_name: str = "<cell>") -> Cell:
         speed = _num(ctx, p["speed"], "path", i, "speed")
         if speed <= 0:
             raise ctx.err(f"tool speed must be > 0 mm/s, got {speed:g}", "path", i, "speed")
+        if "csv" in p:
+            paths.append(_csv_path(ctx, p, i, pname.strip(), speed, source_name, embedded, csv_texts))
+            continue
+        stray = sorted(set(p) & {"columns", "rotation", "csv_unit"})
+        if stray:
+            raise ctx.err("only a path from a CSV file ('csv') takes this key", "path", i, stray[0])
         if ("through" in p) == ("start" in p):
-            raise ctx.err("give either 'through' (a polyline) or 'start' with 'segments'", "path", i)
+            raise ctx.err("give either 'through' (a polyline), 'start' with 'segments', or 'csv' (a file of TCP "
+                          "poses)", "path", i)
         segs = []
         if "through" in p:
             thr = p["through"]
@@ -594,10 +645,11 @@ def parse_cell_text(text: str, source_name: str = "<cell>") -> Cell:
             for k in ("center", "size"):
                 if k not in b:
                     raise ctx.err(f"missing key '{k}'", table, i)
-            size = _vec(ctx, b["size"], table, i, "size") * L
+            size = _coord(ctx, _vec(ctx, b["size"], table, i, "size") * L, table, i, "size", unit)
             if np.any(size <= 0):
                 raise ctx.err("every size must be > 0", table, i, "size")
-            out.append(Box(bname, _vec(ctx, b["center"], table, i, "center") * L, size,
+            out.append(Box(bname, _coord(ctx, _vec(ctx, b["center"], table, i, "center") * L, table, i, "center",
+                                         unit), size,
                            _num(ctx, b.get("yaw", 0.0), table, i, "yaw") * _DEG,
                            True if keep_out else _collide(b, table, i), keep_out))
         return out
@@ -619,9 +671,12 @@ def parse_cell_text(text: str, source_name: str = "<cell>") -> Cell:
         ax = _vec(ctx, cy.get("axis", [0, 0, 1]), "cylinder", i, "axis")
         if np.linalg.norm(ax) < 1e-9:
             raise ctx.err("zero-length axis; expected a direction", "cylinder", i, "axis")
-        cylinders.append(Cylinder(cname, _vec(ctx, cy["center"], "cylinder", i, "center") * L,
-                                  _num(ctx, cy["radius"], "cylinder", i, "radius", positive=True) * L,
-                                  _num(ctx, cy["height"], "cylinder", i, "height", positive=True) * L,
+        cylinders.append(Cylinder(cname, _coord(ctx, _vec(ctx, cy["center"], "cylinder", i, "center") * L,
+                                                "cylinder", i, "center", unit),
+                                  _coord(ctx, _num(ctx, cy["radius"], "cylinder", i, "radius", positive=True) * L,
+                                         "cylinder", i, "radius", unit),
+                                  _coord(ctx, _num(ctx, cy["height"], "cylinder", i, "height", positive=True) * L,
+                                         "cylinder", i, "height", unit),
                                   ax / np.linalg.norm(ax), _collide(cy, "cylinder", i)))
 
     # ---- mount region
@@ -633,7 +688,7 @@ def parse_cell_text(text: str, source_name: str = "<cell>") -> Cell:
         for ax in ("x", "y"):
             if ax not in m:
                 raise ctx.err(f"missing key '{ax}' ([min, max] or a single value)", "mount")
-            r = _numlist(ctx, m[ax], "mount", ax)
+            r = _coord(ctx, _numlist(ctx, m[ax], "mount", ax) * L, "mount", None, ax, unit) / L
             if len(r) == 1:
                 r = np.array([r[0], r[0]])
             if len(r) != 2:
@@ -653,7 +708,8 @@ def parse_cell_text(text: str, source_name: str = "<cell>") -> Cell:
             else:
                 vals = r[:1]
             axes[ax] = vals * L
-        heights = _numlist(ctx, m.get("heights", [0.0]), "mount", "heights") * L
+        heights = _coord(ctx, _numlist(ctx, m.get("heights", [0.0]), "mount", "heights") * L, "mount", None,
+                         "heights", unit)
         yaws = _numlist(ctx, m.get("yaws", [0.0]), "mount", "yaws") * _DEG
         st = m.get("style", "floor")
         st_list = st if isinstance(st, list) else [st]
@@ -678,8 +734,28 @@ def parse_cell_text(text: str, source_name: str = "<cell>") -> Cell:
     if "placement" in data:
         pl = data["placement"]
         _keys(ctx, pl, _PLACE_KEYS, "placement")
-        placement = make_transform(_vec(ctx, pl.get("xyz", [0, 0, 0]), "placement", None, "xyz") * L,
+        placement = make_transform(_coord(ctx, _vec(ctx, pl.get("xyz", [0, 0, 0]), "placement", None, "xyz") * L,
+                                          "placement", None, "xyz", unit),
                                    _vec(ctx, pl.get("rpy", [0, 0, 0]), "placement", None, "rpy") * _DEG)
+
+    # ---- joint trajectories from CSV files
+    raw_tr = data.get("trajectory", [])
+    if not isinstance(raw_tr, list):
+        raise CellFileError(f"{source_name}: 'trajectory' must be an array of tables ([[trajectory]])")
+    trajectories = []
+    for i, t in enumerate(raw_tr):
+        _keys(ctx, t, _TRAJ_KEYS, "trajectory", i)
+        tname = t.get("name")
+        if not isinstance(tname, str) or not tname.strip():
+            raise ctx.err(f"expected a non-empty string, got {tname!r}", "trajectory", i, "name")
+        if any(x.name == tname.strip() for x in trajectories) or any(x.name == tname.strip() for x in paths):
+            raise ctx.err(f"duplicate name {tname!r} (paths and trajectories need distinct names)", "trajectory", i,
+                          "name")
+        from .taskdata import parse_layout, read_trajectory_csv, with_text
+
+        layout = with_text(parse_layout(ctx, t, "trajectory", i, _base_dir(source_name), "trajectory", embedded))
+        csv_texts[layout.name] = layout.text
+        trajectories.append(read_trajectory_csv(layout, tname.strip()))
 
     # ---- requirements: cell-wide defaults, then per point / per path
     from .requirements import Requirements, parse_requirements
@@ -694,10 +770,43 @@ def parse_cell_text(text: str, source_name: str = "<cell>") -> Cell:
     for i, p in enumerate(raw_paths):
         if "requirements" in p:
             path_reqs[paths[i].name] = parse_requirements(ctx, p["requirements"], ("path", i), L, base, "path")
+    for i, t in enumerate(raw_tr):
+        if "requirements" in t:
+            path_reqs[trajectories[i].name] = parse_requirements(ctx, t["requirements"], ("trajectory", i), L, base,
+                                                                 "path")
 
     return Cell(name.strip(), tuple(points), tuple(paths), tuple(boxes), mount, placement, desc, unit,
                 text, source_name, requirements=base, point_requirements=point_reqs, path_requirements=path_reqs,
-                cylinders=tuple(cylinders), keep_outs=tuple(keep_outs), floor=floor)
+                cylinders=tuple(cylinders), keep_outs=tuple(keep_outs), floor=floor, trajectories=tuple(trajectories),
+                csv_texts=csv_texts)
+
+
+def _base_dir(source_name: str) -> str:
+    """Folder that CSV file names in a cell file are relative to (the cell file's own)."""
+    if source_name and not source_name.startswith("<"):
+        return os.path.dirname(os.path.abspath(source_name))
+    return os.getcwd()
+
+
+def _csv_path(ctx, p, i, name, speed, source_name, embedded=None, csv_texts=None) -> Path:
+    """A [[path]] with 'csv': the file's TCP poses as the path's samples."""
+    from .taskdata import parse_layout, read_pose_csv, with_text
+
+    for k in ("through", "start", "segments"):
+        if k in p:
+            raise ctx.err("a path from a CSV file takes no points ('through', 'start', 'segments')", "path", i, k)
+    layout = parse_layout(ctx, p, "path", i, _base_dir(source_name), "path", embedded)
+    rule = p.get("orientation", "fixed" if layout.rotation != "none" else "free")
+    if rule not in ORIENTATION_RULES:
+        raise ctx.err(f"expected one of fixed, axis, free, got {rule!r}", "path", i, "orientation")
+    if rule != "free" and layout.rotation == "none":
+        raise ctx.err(f"orientation {rule!r} needs rotation columns (rotation = 'rpy' or 'quaternion')", "path", i,
+                      "orientation")
+    layout = with_text(layout)
+    if csv_texts is not None:
+        csv_texts[layout.name] = layout.text
+    poses = read_pose_csv(layout)
+    return Path(name, "", (), speed * 1e-3, rule, poses, layout.file)
 
 
 # ----------------------------------------------------------------------------------------------
@@ -811,6 +920,10 @@ def sample_path(cell: Cell, path: Path, spacing: float) -> PathSamples:
     """
     if not (isinstance(spacing, (int, float)) and math.isfinite(spacing) and spacing > 0):
         raise WorkbenchError(f"path audit 'spacing': expected a positive length in metres, got {spacing!r}")
+    if path.poses is not None:  # a path from a CSV file: its rows, as they are
+        from .taskdata import samples_from_poses
+
+        return samples_from_poses(path.poses, path.rule, path.speed, path.name)
     by = {p.name: p for p in cell.points}
     s_all, P_all, R_all, t_all, w_all, seg_all = [], [], [], [], [], []
     corners = [0.0]

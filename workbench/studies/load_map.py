@@ -51,6 +51,7 @@ from typing import Mapping
 import numpy as np
 
 from ..arm.transforms import inverse_transform, make_transform
+from ..limits import grid_count
 from .base import MAX_SEEDS, Axis, Field, Plan, StudyError, StudyKind, Table
 
 __all__ = ["LoadMap", "LoadSettings", "payload_of_poses", "check_masses"]
@@ -199,9 +200,11 @@ def _validate(settings: Mapping, arm, cell, where: str) -> LoadSettings:
         if isinstance(at, bool) or not isinstance(at, (int, float)) or not math.isfinite(at):
             raise StudyError(f"{where} at: expected a finite number (m), got {at!r}")
         step = settings.get("step", 0.05)
-        if isinstance(step, bool) or not isinstance(step, (int, float)) or not step > 0:
-            raise StudyError(f"{where} step: expected a positive number (m), got {step!r}")
-        cells = (int((u[1] - u[0]) / step + 1e-9) + 1) * (int((v[1] - v[0]) / step + 1e-9) + 1)
+        if (isinstance(step, bool) or not isinstance(step, (int, float)) or not math.isfinite(step)
+                or not step > 0):
+            raise StudyError(f"{where} step: expected a finite positive number (m), got {step!r}")
+        cells = (grid_count(u[0], u[1], step, f"{where} step", error=StudyError)
+                 * grid_count(v[0], v[1], step, f"{where} step", error=StudyError))
         if cells > 4_000_000:
             raise StudyError(f"{where} step: {cells} grid points; at most 4 000 000 (use a larger step)")
         rule = settings.get("orientation", "fixed")

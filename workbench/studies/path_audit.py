@@ -39,6 +39,7 @@ import numpy as np
 from ..arm.transforms import inverse_transform, make_transform
 from ..measures import NEAR_SINGULAR as _NEAR_DEFAULT
 from .base import MAX_SEEDS, Axis, Field, Plan, StudyError, StudyKind, Table, check_rows
+from ..limits import MAX_PATH_SAMPLES
 from .cell import sample_path
 
 __all__ = ["PathAudit", "PathSettings", "track_path", "joint_speeds", "task_rows_matrix", "audit_samples",
@@ -73,9 +74,11 @@ class PathSettings:
     jump: float = 10 * _DEG
     seeds: int = 16
     mount: np.ndarray | None = None
+    trajectories: tuple = ()
 
 
-_KEYS = {"paths", "spacing", "rows", "length", "near_singular", "jump", "seeds", "mount_xyz", "mount_rpy"}
+_KEYS = {"paths", "spacing", "rows", "length", "near_singular", "jump", "seeds", "mount_xyz", "mount_rpy",
+         "trajectories"}
 
 
 def _validate(settings: Mapping, arm, cell, where: str) -> PathSettings:
@@ -83,8 +86,20 @@ def _validate(settings: Mapping, arm, cell, where: str) -> PathSettings:
     if unknown:
         raise StudyError(f"{where}: unknown key '{unknown[0]}'; allowed keys: {', '.join(sorted(_KEYS))}")
     out = {}
-    if not cell.paths:
-        raise StudyError(f"{cell.path}: the cell has no [[path]] tables; a path audit needs at least one")
+    trajs = getattr(cell, "trajectories", ())
+    if not cell.paths and not trajs:
+        raise StudyError(f"{cell.path}: the cell has no [[path]] or [[trajectory]] tables; a path audit needs at "
+                         f"least one")
+    tn = settings.get("trajectories", [])
+    if isinstance(tn, str):
+        tn = [tn]
+    if not isinstance(tn, list) or not all(isinstance(x, str) for x in tn):
+        raise StudyError(f"{where} trajectories: expected a list of trajectory names, got {tn!r}")
+    for x in tn:
+        if x not in [t.name for t in trajs]:
+            raise StudyError(f"{where} trajectories: no trajectory named {x!r} in {cell.path}; trajectories are "
+                             f"{', '.join(t.name for t in trajs) or 'none'}")
+    out["trajectories"] = tuple(tn)
     names = [p.name for p in cell.paths]
     paths = settings.get("paths", [])
     if isinstance(paths, str):
@@ -205,7 +220,9 @@ def _track(arm, T, rule, seeds, jump, prev, q, flags, perr):
             qk, stat, pe = res.q, int(res.status), float(res.pos_err)
         if stat == CONVERGED:
             flags[k] |= REACHED
-        if prev is not None and _joint_step(arm, qk, prev) > jump:
+        # a flip is between two reached samples: an unreached sample's joint values are only the
+        # solver's closest miss, and a jump to or from it says nothing about the arm's branch
+        if stat == CONVERGED and prev is not None and _joint_step(arm, qk, prev) > jump:
             flags[k] |= JUMP
         q[k] = qk
         perr[k] = pe
@@ -257,6 +274,16 @@ def joint_speeds(J, twist, rule: str = "fixed", tool_z=None) -> np.ndarray:
     A = S @ J
     b = np.einsum("...ij,...j->...i", S, twist)
     return np.einsum("...ij,...j->...i", np.linalg.pinv(A), b)
+
+
+def expected_samples(cell, path, spacing: float) -> int:
+    """Samples :func:`~workbench.studies.cell.sample_path` makes for ``path`` at ``spacing`` (m), worked
+    out from the segment lengths without making them (at most one more per segment)."""
+    if getattr(path, "poses", None) is not None:  # a path from a CSV file: its rows
+        return len(path.poses)
+    corners = sample_path(cell, path, 1e12).corners  # two samples per segment: cheap
+    seg = np.diff(corners)
+    return int(1 + np.sum(np.maximum(1, np.ceil(seg / spacing - 1e-9))))
 
 
 def audit_samples(arm, q, samples_twist, rule, s: PathSettings, R_base):
@@ -341,11 +368,22 @@ class PathAudit(StudyKind):
     def plan(self, spec, arm, cell, chunk_cells=None) -> Plan:
         s = self.validate(spec.settings, arm, cell, f"{spec.where}: [settings]")
         paths = [cell.get_path(nm) for nm in s.paths] if s.paths else list(cell.paths)
+        N = sum(expected_samples(cell, p, s.spacing) for p in paths)  # before any sample is made
+        if N > MAX_PATH_SAMPLES:
+            raise StudyError(f"{spec.where}: [settings] spacing: {s.spacing:g} m gives {N:,} samples along "
+                             f"{', '.join(p.name for p in paths)}; at most {MAX_PATH_SAMPLES:,} (use a larger spacing)")
         parts = [sample_path(cell, p, s.spacing) for p in paths]
-        N = sum(len(p.s) for p in parts)
-        if N > 2_000_000:
-            raise StudyError(f"{spec.where}: [settings] spacing: {N} samples; at most 2 000 000 (use a larger spacing)")
         mount = _mount_of(s, arm, cell)
+        given = {}
+        for tr in getattr(cell, "trajectories", ()):
+            if s.trajectories and tr.name not in s.trajectories:
+                continue
+            given[len(parts)] = (tr.t, tr.joint_values(arm))
+            parts.append(_trajectory_samples(arm, mount, tr, given[len(parts)][1]))
+        N = sum(len(p.s) for p in parts)
+        if N > MAX_PATH_SAMPLES:
+            raise StudyError(f"{spec.where}: {N:,} samples in the paths and trajectories; at most "
+                             f"{MAX_PATH_SAMPLES:,}")
         inv = inverse_transform(mount)
         poses = np.concatenate([p.poses for p in parts])
         data = {
@@ -359,7 +397,8 @@ class PathAudit(StudyKind):
             "speeds": [p.speed for p in parts], "lengths": [p.length for p in parts],
             "corners": [p.corners for p in parts],
             "mount": mount, "arm_model": arm.model,
-            "requirements": [cell.requirements_for(path=p.name) for p in paths],
+            "requirements": [cell.requirements_for(path=p.name) for p in parts],
+            "given": given,
         }
         n = arm.n
         fields = (
@@ -379,6 +418,9 @@ class PathAudit(StudyKind):
             Field("xyz", (3,), "float64", "m", "sample position in the cell frame", kind="point"),
         )
         m = arm.model
+        if given:
+            fields += (Field("accel_ratio", (), "float64", "",
+                             "largest |joint acceleration| / limit (joint trajectories: from their times)"),)
         if np.all(np.isfinite(m.max_speed)):
             fields += (Field("tool_speed_max", (), "float64", "m/s",
                              "largest tool speed along the path within the joint speed limits"),)
@@ -413,6 +455,37 @@ def _rows_text(rows):
     return rows if isinstance(rows, str) else ",".join(map(str, rows))
 
 
+def _trajectory_samples(arm, mount, tr, q):
+    """PathSamples of a recorded trajectory: the TCP poses of its joint values (cell frame), the
+    distance along the tool path; no tangent or tool speed (the times say how it moves)."""
+    from .cell import PathSamples
+
+    T = _mounted(arm, mount).fk(q, world=True)
+    P = T[:, :3, 3]
+    dist = np.concatenate([[0.0], np.cumsum(np.linalg.norm(np.diff(P, axis=0), axis=1))])
+    N = len(dist)
+    return PathSamples(dist, T, np.zeros((N, 3)), np.zeros((N, 3)), np.zeros(N, int), np.array([0.0, dist[-1]]),
+                       "fixed", float("nan"), tr.name)
+
+
+def _rates_from_times(arm, given, sl, a, out, o):
+    """Joint speeds and accelerations of a recorded trajectory from its times, against the limits."""
+    from .taskdata import trajectory_rates
+
+    t, q = given
+    qd, qdd = trajectory_rates(t, q)
+    qd, qdd = qd[sl], qdd[sl]
+    m = arm.model
+    with np.errstate(invalid="ignore", divide="ignore"):
+        r = np.where(np.isfinite(m.max_speed), np.abs(qd) / m.max_speed, -np.inf)
+        ra = np.where(np.isfinite(m.max_acceleration), np.abs(qdd) / m.max_acceleration, -np.inf)
+    a["qdot"] = qd
+    a["speed_ratio"] = np.where(np.isfinite(r.max(axis=1)), r.max(axis=1), np.nan)
+    a["speed_joint"] = np.argmax(r, axis=1)
+    if "accel_ratio" in out:
+        out["accel_ratio"][o] = np.where(np.isfinite(ra.max(axis=1)), ra.max(axis=1), np.nan)
+
+
 def _mounted(arm, M):
     from dataclasses import replace
 
@@ -433,11 +506,20 @@ def compute_audit_chunk(plan, arm, start, stop) -> dict:
         p0 = idx[0]
         hi = min(stop, idx[-1] + 1)
         rule = d["rules"][p]
-        q, flags, perr = track_path(arm, d["targets"][p0:hi], rule, seeds=s.seeds, jump=s.jump)
+        given = d.get("given", {}).get(int(p))
+        if given is None:
+            q, flags, perr = track_path(arm, d["targets"][p0:hi], rule, seeds=s.seeds, jump=s.jump)
+        else:  # a recorded joint trajectory: its own joint values, audited as they are
+            q = given[1][: hi - p0]
+            step = np.concatenate([[0.0], np.max(np.abs(np.diff(q, axis=0)), axis=1)]) if len(q) else np.zeros(0)
+            flags = (REACHED | np.where(step > s.jump, JUMP, 0)).astype(np.uint8)
+            perr = np.zeros(len(q))
         lo = max(start, p0)
         sl = slice(lo - p0, hi - p0)
         qq, ff = q[sl], flags[sl]
         a = audit_samples(arm, qq, d["twist"][lo:hi], rule, s, R_base)
+        if given is not None:
+            _rates_from_times(arm, given, sl, a, out, slice(lo - start, hi - start))
         miss = (ff & REACHED) == 0  # no pose there: no measures either
         for key in ("inverse_condition", "min_sv", "manipulability", "qdot", "speed_ratio", "margin"):
             a[key] = np.where(miss.reshape((-1,) + (1,) * (a[key].ndim - 1)), np.nan, a[key])
@@ -532,7 +614,13 @@ def summarise_audit(plan, arrays) -> dict:
     tables["cycle_time"] = cycle_time_table(plan, arrays)
     fl = np.flatnonzero(done & ((flags & JUMP) > 0))
     if len(fl):
-        steps = [np.abs(q[k] - q[k - 1]) if k > 0 else np.zeros(arm.n) for k in fl]
+        def before(k):  # the reached sample of the same path the flip came from
+            j = k - 1
+            while j >= 0 and pidx[j] == pidx[k] and not reached[j]:
+                j -= 1
+            return j if j >= 0 and pidx[j] == pidx[k] else None
+
+        steps = [np.abs(q[k] - q[before(k)]) if before(k) is not None else np.zeros(arm.n) for k in fl]
         tables["branch_flips"] = Table(
             "Branch flips (large joint steps between samples)",
             {"path": np.array([names[pidx[k]] for k in fl], dtype=object), "at": dist[fl] * 1000,
@@ -568,7 +656,18 @@ def cycle_time_table(plan, arrays) -> Table:
         rows["length"].append(d["lengths"][p] * 1000)
         rows["tool_speed"].append(d["speeds"][p] * 1000)
         est, frac, lim, note = np.nan, np.nan, "-", ""
-        if np.any((flags[sel] & REACHED) == 0):
+        given = d.get("given", {}).get(p)
+        if given is not None:
+            est, lim = float(given[0][-1] - given[0][0]), "recorded times"
+            note = "a recorded joint trajectory: its own duration"
+            if "accel_ratio" in arrays:
+                ar = np.asarray(arrays["accel_ratio"], float)[sel]
+                if np.isfinite(ar).any() and np.nanmax(ar) > 1:
+                    note += f"; joint accelerations up to {np.nanmax(ar):.2f}x the limits"
+            sr = np.asarray(arrays["speed_ratio"], float)[sel]
+            if np.isfinite(sr).any() and np.nanmax(sr) > 1:
+                note += f"; joint speeds up to {np.nanmax(sr):.2f}x the limits"
+        elif np.any((flags[sel] & REACHED) == 0):
             note = f"not estimated: {int(np.sum((flags[sel] & REACHED) == 0))} samples unreached"
         elif not np.any(np.isfinite(m.max_speed)):
             note = "not estimated: the arm file gives no joint speed limits"

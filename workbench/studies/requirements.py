@@ -39,7 +39,7 @@ from dataclasses import dataclass, replace
 import numpy as np
 
 from ..errors import WorkbenchError
-from ..measures import Payload, holding_parts
+from ..measures import Payload
 
 __all__ = ["Requirements", "RequirementCheck", "requirement_check", "parse_requirements", "REQUIREMENT_KEYS",
            "largest_tool_speed"]
@@ -272,27 +272,67 @@ class RequirementCheck:
         return bool(np.isfinite(self.torque_margin).any())
 
 
+def _holding_in_base(arm, Q, reqs, gb, R, links):
+    """Holding-torque parts (..., n) in the arm's base frame with a per-pose gravity ``gb`` (..., 3)
+    and base rotation ``R`` (..., 3, 3) in the cell (the same sums as measures.holding_parts)."""
+    m = arm.model
+    shape = Q.shape[:-1] + (m.n,)
+    out = {"links": np.zeros(shape), "payload": np.zeros(shape), "wrench": np.zeros(shape)}
+
+    def grav(Jc, mass):
+        return -mass * np.einsum("...ij,...i->...j", Jc[..., :3, :], gb)
+
+    if links:
+        for k in range(m.n):
+            if m.masses[k]:
+                out["links"] += grav(arm.jacobian(Q, frame=k, point=m.coms[k]), m.masses[k])
+        if m.tool_mass:
+            out["links"] += grav(arm.jacobian(Q, frame="flange", point=m.tool_com), m.tool_mass)
+    if reqs.payload is not None and reqs.payload.mass:
+        out["payload"] = grav(arm.jacobian(Q, frame="tcp", point=reqs.payload.com), reqs.payload.mass)
+    if reqs.force is not None or reqs.moment is not None:
+        W = np.zeros(Q.shape[:-1] + (6,))
+        Rt = arm.fk(Q)[..., :3, :3] if reqs.frame == "tool" else np.swapaxes(R, -1, -2)
+        if reqs.force is not None:
+            W[..., :3] = np.einsum("...ij,j->...i", Rt, reqs.force)
+        if reqs.moment is not None:
+            W[..., 3:] = np.einsum("...ij,j->...i", Rt, reqs.moment)
+        out["wrench"] = np.einsum("...ij,...i->...j", arm.jacobian(Q, frame="tcp"), W)
+    out["total"] = out["links"] + out["payload"] + out["wrench"]
+    return out
+
+
 def requirement_check(arm, q, reqs: Requirements | None, g=9.81, world=True, speed_rows="translation",
-                      directions=None) -> RequirementCheck:
-    """Check ``reqs`` at poses ``q`` (..., n) of ``arm`` (mounted: its mount puts it in the cell).
+                      directions=None, mounts=None) -> RequirementCheck:
+    """Check ``reqs`` at poses ``q`` (..., n) of ``arm`` in the cell.
+
+    The arm stands at its own mount (``world=True``), or at ``mounts`` (..., 4, 4) per pose (the
+    base-in-cell transforms of a mount search's candidates); ``world=False`` takes the cell frame
+    as the base frame. ``g`` is a magnitude along the cell's -z or a cell-frame vector.
 
     Torques: the holding torques (the arm's own weight when the arm file gives masses, the payload,
     the tool wrench) against ``max_effort``; checked whenever the arm gives torque limits for every
     joint, since the arm's own weight matters even without a payload. Speed: when ``reqs.speed`` is
-    set, the largest tool speed along ``reqs.direction`` (or ``directions`` (..., 3), default the
-    tool z axis at each pose) within ``max_speed`` (:func:`largest_tool_speed`).
+    set, the largest tool speed along ``reqs.direction`` (cell frame) or ``directions`` (..., 3),
+    default the tool z axis at each pose, within ``max_speed`` (:func:`largest_tool_speed`).
     """
+    from ..measures import _g_vector
+
     reqs = reqs if reqs is not None else Requirements()
     m = arm.model
     Q = np.asarray(q, dtype=float)
     lead = Q.shape[:-1]
+    if mounts is not None:
+        R = np.broadcast_to(np.asarray(mounts, float)[..., :3, :3], lead + (3, 3))
+    else:
+        R = np.broadcast_to(m.mount[:3, :3] if world else np.eye(3), lead + (3, 3))
+    gb = np.einsum("...ji,j->...i", R, _g_vector(g))  # R^T g: gravity in the base frame
     notes = []
     links = m.has_masses
     limits_ok = bool(np.all(np.isfinite(m.max_effort) & (m.max_effort > 0)))
     if not links:
         notes.append("the arm file gives no link masses: the arm's own weight is left out of the holding torques")
-    parts = holding_parts(arm, Q, reqs.force, reqs.moment, reqs.payload, g=g, frame=reqs.frame, links=links,
-                          world=world)
+    parts = _holding_in_base(arm, Q, reqs, gb, R, links)
     nan = np.full(lead, np.nan)
     if limits_ok and (links or reqs.loads):
         lim = m.max_effort
@@ -309,12 +349,12 @@ def requirement_check(arm, q, reqs: Requirements | None, g=9.81, world=True, spe
     if reqs.speed is not None:
         if np.all(np.isfinite(m.max_speed)):
             if reqs.direction is not None:
-                d = reqs.direction
+                d = np.einsum("...ji,j->...i", R, reqs.direction)
             elif directions is not None:
-                d = np.asarray(directions, dtype=float)
+                d = np.einsum("...ji,...j->...i", R, np.asarray(directions, dtype=float))
             else:
-                d = arm.fk(Q, world=world)[..., :3, 2]
-            sp, sj = largest_tool_speed(arm, Q, d, rows=speed_rows, world=world)
+                d = arm.fk(Q)[..., :3, 2]
+            sp, sj = largest_tool_speed(arm, Q, d, rows=speed_rows, world=False)
             with np.errstate(divide="ignore"):
                 sr = np.where(sp > 0, reqs.speed / np.where(sp > 0, sp, 1.0), np.inf)
         else:
