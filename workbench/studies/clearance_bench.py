@@ -1,4 +1,4 @@
-"""``workbench bench`` entry of the clearance kernel (listed in :mod:`workbench.bench`)."""
+"""``workbench bench`` entry of the clearance kernel (listed in :mod:`workbench.bench`; here because it reads a cell)."""
 from __future__ import annotations
 
 import numpy as np
@@ -82,8 +82,8 @@ def bench_clearance(quick: bool = False) -> dict:
     """Clearance of demo_s6 (5 link capsules and a tool capsule) against 5 boxes, and with the
     floor and self-collision on; a plain numpy reference on the same poses."""
     from ..kinematics import load_arm
-    from ..studies.cell import parse_cell_text
-    from . import clearance, geometry
+    from .cell import parse_cell_text
+    from ..collision import clearance, geometry
 
     arm = load_arm(demo_arm_path())
     cell = parse_cell_text(FIVE_BOXES, "<bench>")
