@@ -611,7 +611,8 @@ class MountSearch(StudyKind):
         )
         if s.requirements:
             fields += (Field("min_torque_margin", (), "float64", "",
-                             "smallest holding-torque margin (limit - |tau|) / limit over the served work points"),)
+                             "smallest holding-torque margin (limit - |tau|) / limit over the reached work points "
+                             "(the unmet ones included)"),)
         data = {"point_names": [p.name for p in pts], "tilts": reg.tilts, "styles": list(reg.styles),
                 "formula": formula, "arm_model": arm.model, "points": pts,
                 "step_x": float(reg.xs[1] - reg.xs[0]) if len(reg.xs) > 1 else 0.05,
@@ -643,7 +644,12 @@ class MountSearch(StudyKind):
 def _torque_columns(plan, ev) -> dict:
     if not any(f.name == "min_torque_margin" for f in plan.fields):
         return {}
-    return {"min_torque_margin": _worst_over_served(ev["torque_margin"], ev["reached"])}
+    # over every reached point, the unmet ones included (they say why a point is not served); the
+    # quality's torque factor takes the served points only
+    t = ev["torque_margin"]
+    with np.errstate(invalid="ignore"):
+        worst = np.where(np.isfinite(t).any(axis=-1), np.nanmin(np.where(np.isfinite(t), t, np.inf), axis=-1), np.nan)
+    return {"min_torque_margin": worst}
 
 
 #: the recommended mount is rounded to this placement resolution (m, rad) before it is scored again
