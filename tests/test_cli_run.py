@@ -58,7 +58,7 @@ def bad_cases(tmp_path):
         ([str(study(tmp_path, 'joints = ["j2"]\nsteps = [0]\n', name="z.toml"))],
          "[settings] steps: joint j2: expected at least 1 point, got 0"),
         ([str(study(tmp_path, 'joints = ["j2", "j3"]\nsteps = [1000000, 1000000]\n', name="t.toml"))],
-         "[settings] steps: 1e+12 cells is more than"),
+         "[settings] steps: 1,000,000,000,000 cells is more than"),
         ([str(study(tmp_path, arm="no_arm_here.toml", name="a.toml"))], "[study] arm: arm file"),
         ([str(tmp_path / "missing.toml")], "study file: "),
         ([str(s_ok), "--out", str(tmp_path)], "--out"),

@@ -105,12 +105,24 @@ def test_cancel_from_another_thread_stops_processes_promptly(tmp_path):
     assert read_results(tmp_path / "c.h5").incomplete
 
 
-def test_runs_that_cannot_fit_are_refused(tmp_path):
-    huge = spec(steps=[100000, 90000])  # 9e9 cells: hundreds of GB of results
-    with pytest.raises(RunError, match="of memory but only .* is free; stream them to a file with --out"):
+def test_runs_that_cannot_fit_are_refused(tmp_path, monkeypatch):
+    import collections
+
+    import workbench.runner as runner_mod
+    from workbench.limits import MAX_CELLS
+
+    huge = spec(steps=[100000, 90000])  # 9e9 cells: refused by the cell limit before any plan exists
+    with pytest.raises(WorkbenchError, match=f"9,000,000,000 cells .*at most {MAX_CELLS:,}"):
         run_study(huge)
+    big = spec(steps=[3000, 3000])  # 9e6 cells, a few hundred MB: refused on a small machine
+    monkeypatch.setattr(runner_mod, "_available_memory", lambda: 64 << 20)
+    with pytest.raises(RunError, match="of memory but only .* is free; stream them to a file with --out"):
+        run_study(big)
+    usage = collections.namedtuple("usage", "total used free")
+    monkeypatch.setattr(runner_mod.shutil, "disk_usage", lambda p: usage(1 << 30, 1 << 30, 32 << 20))
     with pytest.raises(RunError, match="on disk but"):
-        run_study(huge, out=tmp_path / "big.h5")
+        run_study(big, out=tmp_path / "big.h5")
+    monkeypatch.undo()
     assert list(tmp_path.iterdir()) == []
     with pytest.raises(WorkbenchError, match="executor: expected one of"):
         run_study(spec(), executor="threads")
@@ -176,9 +188,23 @@ class _CountingSweep(__import__("workbench.studies.joint_sweep", fromlist=["Join
     name = "counting_sweep_test"
     log: list = []
 
+    clock = None  # a _SimClock while calibrating in a test (no real timing decides anything)
+
     def compute_chunk(self, plan, arm, cell, chunk):
         self.log.append((chunk.start, chunk.stop))
+        if _CountingSweep.clock is not None:
+            _CountingSweep.clock.t += 1e-4 * chunk.size  # 100 us per cell of simulated time
         return super().compute_chunk(plan, arm, cell, chunk)
+
+
+class _SimClock:
+    """A clock that only moves when the simulated work (or a simulated pause) moves it."""
+
+    def __init__(self):
+        self.t = 0.0
+
+    def __call__(self):
+        return self.t
 
 
 def test_in_process_runs_reuse_the_calibration_cells_without_changing_a_value(tmp_path):
@@ -193,8 +219,14 @@ def test_in_process_runs_reuse_the_calibration_cells_without_changing_a_value(tm
     try:
         s = replace(spec(), kind=_CountingSweep.name)
         prep = prepare(s, chunk_cells=300)
-        prep.estimate = base.calibrate(prep.kind, prep.plan, prep.arm, prep.cell, sample_cells=500)
-        assert prep.estimate.sample[0].stop == 500  # 8 -> 64 -> 500 cells, each far under 20 ms
+        _CountingSweep.clock = _SimClock()
+        prep.estimate = base.calibrate(prep.kind, prep.plan, prep.arm, prep.cell, sample_cells=500,
+                                       clock=_CountingSweep.clock)
+        _CountingSweep.clock = None
+        # simulated 100 us per cell: 8 cells (0.8 ms) -> x8 -> 64 (6.4 ms) -> x8, capped -> 500
+        # cells (50 ms, over the 30 ms needed), timed three times
+        assert prep.estimate.sample[0].stop == 500
+        assert prep.estimate.seconds_per_cell == pytest.approx(1e-4)
         _CountingSweep.log.clear()
         reused = run_study(prep, out=tmp_path / "r.h5", chunk_cells=300)
         assert _CountingSweep.log[:2] == [(500, 600), (600, 900)]  # chunk 0 and part of chunk 1 reused
@@ -207,5 +239,80 @@ def test_in_process_runs_reuse_the_calibration_cells_without_changing_a_value(tm
         assert_same(full, reused)
         assert_same(full, read_results(tmp_path / "r.h5"))
     finally:
+        _CountingSweep.clock = None
         base.KINDS.pop(_CountingSweep.name, None)
         base._INSTANCES.pop(_CountingSweep.name, None)
+
+
+class _PausedKind:
+    """compute_chunk costs ``per_cell`` simulated seconds per cell; the calls listed in ``pauses``
+    (0 = the warm-up call) take ``pause`` seconds more, as when the machine stops the process."""
+
+    name = "paused"
+
+    def __init__(self, clock, per_cell, pauses, pause=0.05):
+        self.clock, self.per_cell, self.pauses, self.pause = clock, per_cell, set(pauses), pause
+        self.calls = []
+
+    def compute_chunk(self, plan, arm, cell, chunk):
+        i = len(self.calls)
+        self.calls.append(chunk.size)
+        self.clock.t += self.per_cell * chunk.size + (self.pause if i in self.pauses else 0.0)
+        return {"x": np.zeros(chunk.size)}
+
+
+def _fake_plan(cells):
+    from types import SimpleNamespace
+
+    return SimpleNamespace(cells=cells, cell_bytes=8, result_bytes=8 * cells, chunk_cells=cells)
+
+
+@pytest.mark.parametrize("pauses", [(), (1,), (2,), (4,), (5,), (8,), (1, 5), (1, 8)])
+def test_calibration_is_not_fooled_by_one_pause(pauses):
+    # a 50 ms pause on any one timed call (1 = the first timing, on 8 cells; one pause in each of
+    # two stages too) must not change the
+    # estimate: 3 us per cell of simulated work, whatever call the pause hits. The old rule (stop at
+    # the first call over 20 ms) estimated 6.25 ms per cell from a pause on the 8-cell call, 2000x
+    # too slow, and cut the grid into chunks of 40 cells.
+    from workbench.studies.base import calibrate
+
+    clock = _SimClock()
+    kind = _PausedKind(clock, 3e-6, pauses)
+    est = calibrate(kind, _fake_plan(1_000_000), None, None, clock=clock)
+    assert est.seconds_per_cell == pytest.approx(3e-6, rel=1e-9)
+    assert est.seconds == pytest.approx(3.0, rel=1e-9)
+    # and the sample stays a sensible size: one call of at least 30 ms of work (10 000 cells)
+    assert est.sample[0].stop >= 10_000
+
+
+def test_calibration_of_a_slow_kind_stays_short():
+    # 2 ms per cell: 8 cells are 16 ms (under 30 ms), so the sample grows by 2 * 30 / 16 = 3.75 to
+    # 30 cells (60 ms), timed three times; the whole calibration is a quarter second of (simulated) work
+    from workbench.studies.base import calibrate
+
+    clock = _SimClock()
+    kind = _PausedKind(clock, 2e-3, ())
+    est = calibrate(kind, _fake_plan(100_000), None, None, clock=clock)
+    assert est.seconds_per_cell == pytest.approx(2e-3)
+    assert kind.calls == [8, 8, 30, 30, 30]
+    assert clock.t == pytest.approx(0.016 * 2 + 0.06 * 3)
+
+
+def test_chunk_sizes_have_a_floor_and_a_ceiling():
+    from workbench.runner import (MAX_CHUNK_BYTES, MAX_CHUNK_CELLS, MAX_CHUNKS, MIN_CHUNK_CELLS,
+                                  MIN_SLOW_CHUNK_CELLS, chunk_cells_for)
+
+    # about 0.25 s of work per chunk when the estimate is sane
+    assert chunk_cells_for(1e-5, 10**7, 40) == pytest.approx(25_000)
+    # an estimate fooled 1000x too slow cannot make chunks smaller than one kernel block ...
+    assert chunk_cells_for(6e-3, 10**6, 40) == pytest.approx(2.0 / 6e-3)  # floor for a "slow" kind
+    assert chunk_cells_for(1e-3, 10**6, 40) == MIN_CHUNK_CELLS  # 250 cells asked, 512 given
+    # ... nor cut a grid into more than MAX_CHUNKS chunks (the issue's 12M cells in 35-cell chunks)
+    assert chunk_cells_for(6e-3, 12_000_000, 40) == pytest.approx(12_000_000 / MAX_CHUNKS)
+    # a really slow kind (1 s per cell) keeps chunks short enough to cancel
+    assert chunk_cells_for(1.0, 1000, 40) == MIN_SLOW_CHUNK_CELLS
+    # ceilings: cells, and bytes of result arrays held at once; the memory ceiling wins over the floor
+    assert chunk_cells_for(1e-9, 10**9, 8) == MAX_CHUNK_CELLS
+    assert chunk_cells_for(1e-9, 10**9, 1000) == pytest.approx(MAX_CHUNK_BYTES / 1000)
+    assert chunk_cells_for(1e-4, 10**6, MAX_CHUNK_BYTES // 100) == pytest.approx(100)
+    assert chunk_cells_for(1e-6, 300, 40) == 300  # never more than the grid

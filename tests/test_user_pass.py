@@ -266,18 +266,22 @@ def test_an_html_report_never_replaces_a_folder_of_other_files(results_file, tmp
 
 
 def test_a_huge_mount_region_is_refused_before_allocating_it():
-    text = TRAY.read_text().replace("x = [0.0, 1.0]", "x = [0, 1e9]", 1)
+    text = TRAY.read_text().replace("x = [0.0, 1.0]", "x = [0, 1000]", 1).replace("step = 0.05", "step = 5e-8", 1)
     # before: MemoryError (numpy tried to allocate a 2e10-value axis)
     with pytest.raises(CellFileError, match=r"\[mount\] 'step' \(line \d+\): 20000000001 grid values along x; "
                                             r"at most 2000000"):
         parse_cell_text(text, "tray_cell.toml")
+    # an x of 1e9 m is refused as a position before any step is worked out (workbench.limits)
+    with pytest.raises(CellFileError, match=r"\[mount\] 'x' \(line \d+\): value 1e\+09 m is beyond the limit"):
+        parse_cell_text(TRAY.read_text().replace("x = [0.0, 1.0]", "x = [0, 1e9]", 1), "tray_cell.toml")
 
 
 def test_an_unknown_table_in_a_cell_file_is_called_a_table():
     text = TRAY.read_text().replace("[placement]", "[placements]", 1)
     # before: "tray_cell.toml 'placements': unknown key; allowed keys: box, cell, ..."
     with pytest.raises(CellFileError, match=r"^tray_cell\.toml: unknown table or key 'placements'; allowed tables: "
-                                            r"\[\[box\]\], \[cell\], \[mount\], \[\[path\]\], \[placement\]"):
+                                            r"\[\[box\]\], \[cell\], \[\[cylinder\]\], \[\[keep_out\]\], \[mount\], \[\[path\]\], "
+                                            r"\[placement\]"):
         parse_cell_text(text, "tray_cell.toml")
 
 

@@ -631,7 +631,10 @@ def _mount_decision(ctx: _Ctx) -> Decision:
 
     # verdicts
     missing = [nm for nm, ok in zip(names, reached) if not ok]
-    verdicts = [Verdict("points_served", "Work points served (reached, inside the joint limits)", f"all {P}",
+    served_what = ("Work points served (reached, inside the joint limits, the cell's requirements met)"
+                   if bp is not None and "requirements_met" in bp.columns else
+                   "Work points served (reached, inside the joint limits)")
+    verdicts = [Verdict("points_served", served_what, f"all {P}",
                         f"{int(reached.sum())} of {P}", ", ".join(missing) if missing else "-",
                         PASS if not missing else FAIL, "", float(reached.sum()), float(P), "", "higher")]
     verdicts.append(_verdict_from_values("inverse_condition", f"Inverse condition ({_rows_words(s.rows)})",
@@ -1289,8 +1292,25 @@ def decision_for(results, progress=None) -> Decision:
     ctx = _Ctx(results, progress)
     builder = BUILDERS.get(results.kind, _generic_decision)
     out = builder(ctx)
+    out = _with_plausibility(results, out)
     ctx.progress(1.0, "decision ready")
     return out
+
+
+def _with_plausibility(results, dec: Decision) -> Decision:
+    """The decision with the study's plausibility warnings (nothing or almost nothing reachable,
+    :mod:`workbench.studies.plausibility`) added to its notes, so the report and the window say it."""
+    from dataclasses import replace
+
+    from .studies.plausibility import result_warnings
+
+    try:
+        warns = result_warnings(results.kind, results.arrays)
+    except Exception:  # noqa: BLE001 - a warning must never stop a decision
+        return dec
+    if not warns:
+        return dec
+    return replace(dec, notes=tuple(dec.notes) + tuple(f"Warning: {w[0].upper()}{w[1:]}." for w in warns))
 
 
 # ----------------------------------------------------------------------------------------------

@@ -29,7 +29,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from .errors import WorkbenchError
-from .kinematics import kernels
+from .kinematics import kernels, lanes
 from .kinematics.rows import parse_rows, row_scale
 
 __all__ = ["measures", "measures_from_sv", "pose_measures", "MEASURE_NAMES", "MEASURE_INFO",
@@ -50,21 +50,11 @@ MEASURE_INFO = {
 
 
 def measures_from_sv(sv) -> dict:
-    """Measures from singular values ``sv`` (..., m) sorted descending (zero-padded when m > n)."""
-    sv = np.asarray(sv, dtype=float)
-    s1 = sv[..., 0]
-    sm = sv[..., -1]
-    w = np.prod(sv, axis=-1)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        inv = np.where(s1 > 0, sm / np.where(s1 > 0, s1, 1.0), 0.0)
-        cond = np.where(sm > 0, s1 / np.where(sm > 0, sm, 1.0), np.inf)
-    return {
-        "manipulability": w,
-        "condition": cond,
-        "inverse_condition": inv,
-        "min_sv": sm.copy(),
-        "sv": sv,
-    }
+    """Measures from singular values ``sv`` (..., m) sorted descending (zero-padded when m > n).
+
+    manipulability = prod(sv); inverse_condition = sm / s1 (0 where s1 = 0); condition = s1 / sm
+    (inf where sm = 0); min_sv = sm. The compiled lane kernels write the same values."""
+    return lanes.measures_from_sv(sv)
 
 
 def measures(J, rows="full", length=1.0) -> dict:
@@ -92,9 +82,15 @@ def measures(J, rows="full", length=1.0) -> dict:
     scale = row_scale(tuple(r), length)
     lead = J.shape[:-2]
     A = np.ascontiguousarray(J.reshape((-1,) + J.shape[-2:]))
+    if lanes.covers(A.shape[2]):
+        kernels.dynamic_schedule()
+        kernels.announce_compile("lanes")
+        sv, w, cond, inv = lanes.sv_measures(A, r, scale)
+        return lanes.measures_dict(sv, w, cond, inv, lead, len(r))
     out = np.empty((A.shape[0], len(r)))
     if A.shape[0]:
         kernels.dynamic_schedule()
+        kernels.announce_compile("kernels")
         kernels.sv_batch(A, r, scale, out)
     return measures_from_sv(out.reshape(lead + (len(r),)))
 
@@ -107,8 +103,7 @@ def pose_measures(arm, q, frame="tcp", rows="full", length=None, world=False) ->
     """
     if length is None:
         length = arm.nominal_reach()
-    sv = arm.singular_values(q, frame=frame, rows=rows, length=length, world=world)
-    return measures_from_sv(sv)
+    return arm.pose_measures(q, frame=frame, rows=rows, length=length, world=world)
 
 
 # ==============================================================================================
@@ -227,11 +222,26 @@ class Ellipsoid:
             raise WorkbenchError("d: expected non-zero, finite direction(s), got a zero-length or non-finite one")
         d = d / norm
         c = np.einsum("...ij,...i->...j", self.directions, d)
-        with np.errstate(divide="ignore"):
-            inv = np.where(np.isinf(self.radii), 0.0, 1.0 / self.radii)
+        r = np.broadcast_to(self.radii, c.shape)
+        # a flat ellipsoid (radius 0: more task rows than joints, or an exact singularity) has no
+        # extent off its span: a direction with a real component along a zero axis gets 0; one in
+        # the span (component at rounding level) ignores that axis instead of dividing 0 by 0
+        finite = np.where(np.isfinite(r), r, 0.0)
+        scale = np.max(finite, axis=-1, keepdims=True)
+        flat = finite <= FLAT_RADIUS * scale
+        off_span = np.any(flat & np.isfinite(r) & (np.abs(c) > FLAT_COMPONENT), axis=-1)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            inv = np.where(np.isinf(r) | flat, 0.0, 1.0 / np.where(flat, 1.0, r))
         quad = np.sum((c * inv) ** 2, axis=-1)
         with np.errstate(divide="ignore"):
-            return np.where(quad > 0, 1.0 / np.sqrt(np.where(quad > 0, quad, 1.0)), np.inf)
+            out = np.where(quad > 0, 1.0 / np.sqrt(np.where(quad > 0, quad, 1.0)), np.inf)
+        return np.where(off_span, 0.0, out)
+
+
+#: radii at most this fraction of an ellipsoid's largest finite radius count as 0 (a flat axis)
+FLAT_RADIUS = 1e-12
+#: a unit direction whose component along a flat axis is at most this lies in the ellipsoid's span
+FLAT_COMPONENT = 1e-9
 
 
 _ROWN = ("vx", "vy", "vz", "wx", "wy", "wz")
@@ -972,7 +982,11 @@ class Payload:
         object.__setattr__(self, "mass", m)
         object.__setattr__(self, "com", c)
         if self.inertia is not None:
-            I = np.asarray(self.inertia, dtype=float)
+            shown = np.asarray(self.inertia).tolist() if isinstance(self.inertia, np.ndarray) else self.inertia
+            try:
+                I = np.asarray(self.inertia, dtype=float)
+            except (TypeError, ValueError):
+                raise WorkbenchError(f"payload inertia: expected numbers (kg m^2), got {shown!r}") from None
             if I.shape == (3,):
                 I = np.diag(I)
             if I.shape == (6,):  # ixx iyy izz ixy ixz iyz
@@ -980,9 +994,9 @@ class Payload:
                 I = np.array([[xx, xy, xz], [xy, yy, yz], [xz, yz, zz]])
             if I.shape != (3, 3) or not np.all(np.isfinite(I)) or not np.allclose(I, I.T, atol=1e-12):
                 raise WorkbenchError(f"payload inertia: expected a symmetric 3x3 matrix, 3 principal values or "
-                                     f"[ixx, iyy, izz, ixy, ixz, iyz] in kg m^2, got {self.inertia!r}")
+                                     f"[ixx, iyy, izz, ixy, ixz, iyz] in kg m^2, got {shown!r}")
             if np.linalg.eigvalsh(I).min() < -1e-12 * max(1.0, float(np.abs(I).max())):
-                raise WorkbenchError(f"payload inertia: not positive semi-definite: {self.inertia!r}")
+                raise WorkbenchError(f"payload inertia: not positive semi-definite: {shown!r}")
             object.__setattr__(self, "inertia", I)
 
 
@@ -1044,8 +1058,9 @@ def holding_parts(arm, q, force=None, moment=None, payload=None, g=9.81, frame="
         Include the arm's own link and tool masses (refused with a clear message when the arm file
         gives no masses).
     world : bool
-        Gravity and world-frame vectors are in the world frame (the mount respected); false: the
-        arm's base frame.
+        Work in the world frame (the arm's mount respected; default) or in its base frame. ``g`` and
+        world-frame vectors are always given in the world frame, so the torques are the same either
+        way (joint torques do not depend on the frame the sums are made in).
 
     Returns
     -------

@@ -38,7 +38,7 @@ import numpy as np
 from .errors import WorkbenchError
 from .studies.base import Axis, Field, Plan, Table
 
-__all__ = ["SCHEMA_VERSION", "Results", "ResultsWriter", "MemoryWriter", "read_results",
+__all__ = ["SCHEMA_VERSION", "Results", "ResultsWriter", "MemoryWriter", "OutputLock", "read_results",
            "check_output_path", "check_folder_takes_files", "export_csv", "export_png", "ResultsError"]
 
 SCHEMA_VERSION = 1
@@ -371,17 +371,32 @@ class ResultsWriter(_WriterBase):
         folder, base = os.path.split(self.path)
         _remove_stale_partials(folder, base)
         self.tmp = os.path.join(folder, f".{base}.{os.getpid()}.partial")
+        self.h5 = None
+        self.chunks_written = 0
         try:
             # no chunk cache: every finished chunk is compressed and written at once by the writer
             # thread (overlapping compute) instead of piling up for a long flush at close
             self.h5 = h5py.File(self.tmp, "w", rdcc_nbytes=0)
         except OSError as exc:
-            raise ResultsError(f"--out {path}: cannot create a file in {folder} ({exc})") from None
+            self.abort()  # HDF5 may have created the file before failing
+            raise ResultsError(f"--out {path}: cannot create a file in {folder or '.'} ({_os_reason(exc)})") from None
         try:
             self._layout(compression)
+        except OSError as exc:
+            self.abort()
+            raise self._write_error(exc, "creating the file") from None
         except BaseException:
             self.abort()
             raise
+
+    def _write_error(self, exc, when) -> ResultsError:
+        """One line for a failed write: the disk filling up mid-run is the usual cause."""
+        folder = os.path.dirname(self.path) or "."
+        reason = _os_reason(exc)
+        if _is_disk_full(exc):
+            return ResultsError(f"--out {self.path}: the disk is full ({reason} in {folder}) while {when}; "
+                                f"nothing was kept; free some space or choose another folder, then run again")
+        return ResultsError(f"--out {self.path}: writing failed ({reason}) while {when}; nothing was kept")
 
     def _layout(self, compression):
         p, h = self.plan, self.h5
@@ -417,12 +432,17 @@ class ResultsWriter(_WriterBase):
 
     def write_chunk(self, chunk, arrays) -> None:
         """Write one chunk's arrays ``{field: (chunk.size, *shape)}`` and mark it finished."""
-        for f in self.plan.fields:
-            self.ds[f.name][chunk.start:chunk.stop] = arrays[f.name]
-            if self.mirror is not None:
-                self.mirror[f.name][chunk.start:chunk.stop] = arrays[f.name]
+        try:
+            for f in self.plan.fields:
+                self.ds[f.name][chunk.start:chunk.stop] = arrays[f.name]
+                if self.mirror is not None:
+                    self.mirror[f.name][chunk.start:chunk.stop] = arrays[f.name]
+            self.fin[chunk.index] = True
+        except OSError as exc:
+            raise self._write_error(exc, f"writing chunk {chunk.index + 1} of {self.plan.n_chunks} "
+                                         f"({self.chunks_written} written)") from None
         self.finished[chunk.index] = True
-        self.fin[chunk.index] = True
+        self.chunks_written += 1
 
     def full_arrays(self):
         """The arrays written so far (flattened) when they are kept in memory; None otherwise.
@@ -457,25 +477,187 @@ class ResultsWriter(_WriterBase):
             for k, v in root.items():
                 h.attrs[k] = v
             h.close()
+        except OSError as exc:
+            self.abort()
+            raise self._write_error(exc, "closing the file (summary tables and attributes)") from None
         except BaseException:
             self.abort()
             raise
-        os.replace(self.tmp, self.path)
+        try:
+            os.replace(self.tmp, self.path)
+        except OSError as exc:
+            self.abort()
+            raise self._write_error(exc, f"renaming {os.path.basename(self.tmp)} onto the final name") from None
         if self.mirror is None:
             return self.path
         _fill_unfinished(self.plan, self.finished, self.mirror)
         return self._results(self.mirror, incomplete, tables, root, path=self.path)
 
     def abort(self) -> None:
-        """Close and delete the temporary file (nothing appears under the final name)."""
-        try:
-            self.h5.close()
-        except Exception:
-            pass
+        """Delete the temporary file and close it (nothing appears under the final name).
+
+        Safe when the disk is full: the name goes first, then the open file's descriptor is pointed
+        at an in-memory file, so whatever HDF5 still flushes on close lands there and the close
+        succeeds (a close that fails leaves HDF5 objects open, and h5py's clean-up of them at exit
+        has ended the process with a segmentation fault)."""
         try:
             os.unlink(self.tmp)
         except OSError:
             pass
+        h5, self.h5 = getattr(self, "h5", None), None
+        if h5 is None:
+            return
+        _discard_writes(h5)
+        try:
+            h5.close()
+        except Exception:
+            pass
+
+
+_HELD_LOCKS: dict = {}
+
+
+class OutputLock:
+    """One run at a time per results file: ``.NAME.lock`` beside it holds the owner's pid, start
+    time, host and start of the run (JSON). A second run on the same file is refused with one
+    line while the owner runs; a lock whose owner is gone (killed, crashed) is stale and taken
+    over. Re-entrant within a process (the command line takes it before calibrating, the runner
+    again around the run). Use as a context manager or :meth:`acquire` / :meth:`release`."""
+
+    def __init__(self, path):
+        self.path = os.path.abspath(os.fspath(path))
+        folder, base = os.path.split(self.path)
+        self.lock = os.path.join(folder, f".{base}.lock")
+
+    def __enter__(self):
+        return self.acquire()
+
+    def __exit__(self, *exc):
+        self.release()
+        return False
+
+    def acquire(self) -> "OutputLock":
+        from .procs import is_alive, process_identity
+
+        if self.lock in _HELD_LOCKS:
+            _HELD_LOCKS[self.lock] += 1
+            return self
+        pid, started = process_identity()
+        me = {"pid": pid, "started": started, "host": _hostname(), "since": _now()}
+        for _ in range(5):
+            try:
+                fd = os.open(self.lock, os.O_CREAT | os.O_EXCL | os.O_WRONLY, 0o644)
+            except FileExistsError:
+                other = _read_lock(self.lock)
+                if other is None:  # being written by its owner right now, or unreadable
+                    time.sleep(0.05)
+                    other = _read_lock(self.lock)
+                if other is not None and other.get("host") not in (None, me["host"]):
+                    raise ResultsError(f"--out {self.path}: another run on host {other.get('host')} "
+                                       f"(pid {other.get('pid')}, since {other.get('since')}) writes this file; "
+                                       f"wait for it or choose another --out (if that run is gone, "
+                                       f"delete {self.lock})") from None
+                if other is not None and is_alive(other.get("pid", -1), other.get("started")):
+                    raise ResultsError(f"--out {self.path}: another run (pid {other.get('pid')}, since "
+                                       f"{other.get('since')}) is writing this file; wait for it to finish "
+                                       f"or choose another --out") from None
+                try:  # stale: its owner is gone
+                    os.unlink(self.lock)
+                except FileNotFoundError:
+                    pass
+                except OSError as exc:
+                    raise ResultsError(f"--out {self.path}: cannot remove the stale lock {self.lock} "
+                                       f"({_os_reason(exc)})") from None
+                continue
+            except OSError as exc:
+                if _is_disk_full(exc):
+                    raise ResultsError(f"--out {self.path}: the disk is full ({_os_reason(exc)} in "
+                                       f"{os.path.dirname(self.path)}); nothing was written") from None
+                raise ResultsError(f"--out {self.path}: cannot create a file in {os.path.dirname(self.path)} "
+                                   f"({_os_reason(exc)})") from None
+            try:
+                os.write(fd, json.dumps(me).encode("utf-8"))
+            except OSError as exc:
+                os.close(fd)
+                try:
+                    os.unlink(self.lock)
+                except OSError:
+                    pass
+                raise ResultsError(f"--out {self.path}: cannot write the lock file {self.lock} "
+                                   f"({_os_reason(exc)})") from None
+            os.close(fd)
+            _HELD_LOCKS[self.lock] = 1
+            return self
+        raise ResultsError(f"--out {self.path}: the lock file {self.lock} keeps changing; another run "
+                           f"is starting on this file")
+
+    def release(self) -> None:
+        n = _HELD_LOCKS.get(self.lock, 0)
+        if n > 1:
+            _HELD_LOCKS[self.lock] = n - 1
+            return
+        _HELD_LOCKS.pop(self.lock, None)
+        if n == 1:
+            info = _read_lock(self.lock)
+            if info is not None and info.get("pid") == os.getpid():
+                try:
+                    os.unlink(self.lock)
+                except OSError:
+                    pass
+
+
+def _hostname() -> str:
+    import socket
+
+    try:
+        return socket.gethostname()
+    except OSError:  # pragma: no cover
+        return ""
+
+
+def _read_lock(path):
+    try:
+        with open(path, encoding="utf-8") as fh:
+            info = json.loads(fh.read())
+        return info if isinstance(info, dict) else None
+    except (OSError, ValueError):
+        return None
+
+
+def _os_reason(exc: BaseException) -> str:
+    """The system's one-line reason for an OSError (HDF5's messages span several lines)."""
+    no = getattr(exc, "errno", None)
+    if isinstance(no, int) and no > 0:
+        return os.strerror(no)
+    text = " ".join(str(exc).split())
+    return text[:200] if text else type(exc).__name__
+
+
+def _is_disk_full(exc: BaseException) -> bool:
+    import errno
+
+    no = getattr(exc, "errno", None)
+    return no in (errno.ENOSPC, errno.EDQUOT) or "No space left" in str(exc)
+
+
+def _discard_writes(h5) -> None:
+    """Point an open HDF5 file's descriptor at an anonymous in-memory file (Linux ``memfd``; a
+    temporary file elsewhere) so that closing it writes nowhere on the full disk."""
+    try:
+        fd = h5.id.get_vfd_handle()
+        if not isinstance(fd, int) or fd < 0:
+            return
+        if hasattr(os, "memfd_create"):
+            spare = os.memfd_create("workbench-discard")
+        else:  # pragma: no cover - not Linux
+            spare, name = tempfile.mkstemp()
+            os.unlink(name)
+        try:
+            os.dup2(spare, fd)
+        finally:
+            os.close(spare)
+    except Exception:
+        pass
 
 
 # ----------------------------------------------------------------------------------------------

@@ -20,7 +20,9 @@ def _refcount_guard(qapp):
 def qsettings(tmp_path):
     from PySide6 import QtCore
 
-    return QtCore.QSettings(str(tmp_path / "settings.ini"), QtCore.QSettings.IniFormat)
+    s = QtCore.QSettings(str(tmp_path / "settings.ini"), QtCore.QSettings.IniFormat)
+    s.setValue("project_dir", str(tmp_path / "runs"))     # runs kept here, not in the user's folders
+    return s
 
 
 def dispose(w):

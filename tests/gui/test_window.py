@@ -263,14 +263,22 @@ def test_closing_during_a_run_stops_the_worker_cleanly(qtbot, qsettings):
     # the runner closed its file under the final name, marked incomplete; no temporary file left
     assert os.listdir(run_dir) == [os.path.basename(out)]
     assert read_results(out).incomplete
-    # and closing the window mid-run: the same, then its run folder is removed
+    # closing the window mid-run asks first; "no" keeps it running
     _start_long_run(w)
     qtbot.waitUntil(lambda: w.result.done.any(), timeout=30000)
+    asked = []
+    w.confirm_quit = lambda: asked.append(1) or False
+    w.close()
+    assert asked == [1] and w.running and w.isVisible()
+    # "yes": the run stops the same way, and its results file stays (nothing is deleted)
     ended = []
     w.thread.finished.connect(lambda: ended.append("thread"))
+    out2 = w.worker.out_path
+    w.confirm_quit = lambda: True
     w.close()
     assert ended == ["thread"] and w.thread is None
-    assert not os.path.exists(run_dir)
+    assert os.path.exists(out) and os.path.exists(out2) and read_results(out2).incomplete
+    assert sorted(os.listdir(run_dir)) == sorted([os.path.basename(out), os.path.basename(out2)])
     w.deleteLater()
 
 

@@ -254,3 +254,26 @@ def test_bad_inputs_say_what_is_wrong():
     with pytest.raises(WorkbenchError, match="max_effort"):
         largest_force(no_lim, np.zeros(2), [0, 0, 1], links=False)
     assert Payload(2.0, [0, 0, 0.1], [0.1, 0.2, 0.3]).inertia.shape == (3, 3)
+
+
+def test_torques_do_not_depend_on_the_frame_of_the_sums():
+    # joint torques are scalars: summing in the world frame or the base frame of a tilted mount
+    # gives the same holding torques, largest force and payload (the inputs stay in the world frame)
+    from dataclasses import replace
+
+    from workbench.arm.transforms import make_transform
+
+    arm0 = load_arm(ROOT / "arms" / "demo_s6.toml")
+    arm = Arm(replace(arm0.model, mount=make_transform([0.3, -0.2, 1.1], np.radians([150, 20, -40]))))
+    rng = np.random.default_rng(9)
+    Q = arm.random_q(20, rng)
+    pay = Payload(4.0, [0.0, 0.05, 0.1])
+    kw = dict(force=[0, 0, 80.0], moment=[1.0, 0, 0], payload=pay, frame="world")
+    np.testing.assert_allclose(holding_torques(arm, Q, world=False, **kw), holding_torques(arm, Q, **kw),
+                               rtol=1e-10, atol=1e-9)
+    f1, j1 = largest_force(arm, Q, [0, 0, 1], payload=pay)
+    f2, j2 = largest_force(arm, Q, [0, 0, 1], payload=pay, world=False)
+    np.testing.assert_allclose(f1, f2, rtol=1e-10)
+    m1, _ = largest_payload(arm, Q, com=[0, 0, 0.1])
+    m2, _ = largest_payload(arm, Q, com=[0, 0, 0.1], world=False)
+    np.testing.assert_allclose(m1, m2, rtol=1e-10)

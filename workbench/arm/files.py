@@ -20,6 +20,7 @@ Schema (angles in degrees, lengths in the file's ``length_unit``: "m" or "mm")::
     limits = [-170, 170]         # optional (default unlimited); lower < upper
     max_speed = 180              # optional: deg/s or length-unit/s
     max_effort = 800             # optional: N m (revolute) or N (prismatic)
+    max_acceleration = 600       # optional: deg/s^2 or length-unit/s^2 (cycle-time estimates)
     mass = 12.5                  # optional: kg of the link this joint moves
     com = [0, 0, 0.1]            # optional: centre of mass in that link's frame (length unit)
 
@@ -36,6 +37,26 @@ Schema (angles in degrees, lengths in the file's ``length_unit``: "m" or "mm")::
     [mount]                      # optional: arm base in the world (cell) frame
     xyz = [0, 0, 0]
     rpy = [0, 0, 0]
+
+Collision shapes (lengths in ``length_unit``; in the link frame, where ``com`` is given)::
+
+    [arm]
+    skip = [["shoulder", "wrist_2"]]   # optional: more pairs of bodies not checked against each
+                                       # other (joint names for their links, "base", "tool");
+                                       # neighbours along the chain are never checked
+    [[joint]]
+    radius = 0.06                # short form: a capsule from this joint's frame origin to the next
+                                 # joint's (the flange for the last joint) of this radius
+    [[joint.shape]]              # or explicit shapes (any number; both forms may be combined)
+    type = "capsule"             # a = [..], b = [..], radius
+    # type = "sphere"            # center, radius
+    # type = "box"               # center, size (full edges), rpy or rot
+    # type = "cylinder"          # a, b (centres of the end faces), radius
+    # type = "mesh"              # file (STL; relative to the arm file), scale = [1, 1, 1], xyz, rpy
+    [tool]
+    radius = 0.03                # a capsule from the flange to the TCP ...
+    [[tool.shape]]               # ... and/or explicit shapes, in the flange frame
+    [[base.shape]]               # shapes of the fixed base, in the base frame (mount feasibility)
 
 ``rpy`` is roll, pitch, yaw in degrees about fixed x, y, z (R = Rz(yaw) Ry(pitch) Rx(roll), the
 URDF convention). Wherever ``rpy`` is allowed a rotation matrix ``rot`` (three rows of three
@@ -54,30 +75,53 @@ import math
 import os
 import re
 import tomllib
+from dataclasses import replace
 
 import numpy as np
 
+from ..limits import MAX_MAGNITUDE, check_toml_text
 from .model import PRISMATIC, REVOLUTE, ArmError, ArmModel, Joint
 from .transforms import make_transform, matrix_to_rpy, rot_x, rot_z, translation
 
 __all__ = ["ArmFileError", "read_arm_file", "parse_arm_dict", "parse_arm_text", "arm_to_dict",
-           "write_arm_file", "dumps_arm", "same_arm", "MAX_JOINTS", "MAX_FILE_BYTES"]
+           "write_arm_file", "dumps_arm", "same_arm", "arm_joint_name", "MAX_JOINTS", "MAX_FILE_BYTES"]
 
 MAX_JOINTS = 32
 MAX_FILE_BYTES = 4 * 1024 * 1024
-_MAX_MAGNITUDE = 1e9          # any number in a file; larger values are typos, not arms
+_MAX_MAGNITUDE = MAX_MAGNITUDE  # any number in a file; larger values are typos, not arms
 _ROT_TOL = 1e-6
 _DEG = math.pi / 180.0
 _UNITS = {"m": 1.0, "mm": 1e-3}
-_TOP_KEYS = {"arm", "joint", "tool", "mount", "flange"}
-_ARM_KEYS = {"name", "description", "geometry", "length_unit", "home", "characteristic_length"}
-_JOINT_COMMON = {"name", "type", "limits", "max_speed", "max_effort", "mass", "com"}
+_TOP_KEYS = {"arm", "joint", "tool", "mount", "flange", "base"}
+_ARM_KEYS = {"name", "description", "geometry", "length_unit", "home", "skip", "characteristic_length"}
+_JOINT_COMMON = {"name", "type", "limits", "max_speed", "max_effort", "max_acceleration", "mass", "com", "radius",
+                 "shape"}
 _JOINT_GEOM = {"dh": {"a", "alpha", "d", "theta"}, "mdh": {"a", "alpha", "d", "theta"},
                "origins": {"xyz", "rpy", "rot", "axis"}}
-_TOOL_KEYS = {"xyz", "rpy", "rot", "mass", "com"}
+_TOOL_KEYS = {"xyz", "rpy", "rot", "mass", "com", "radius", "shape"}
+_SHAPE_KEYS = {"capsule": {"a", "b", "radius"}, "sphere": {"center", "radius"},
+               "box": {"center", "size", "rpy", "rot"}, "cylinder": {"a", "b", "radius"},
+               "mesh": {"file", "scale", "xyz", "rpy", "rot"}}
 _PLACE_KEYS = {"xyz", "rpy", "rot"}
 _RESERVED_NAMES = {"tcp", "flange", "base"}
 _NAME_RE = re.compile(r"^[^\s:,\x00-\x1f\x7f]([^:,\x00-\x1f\x7f]{0,62}[^\s:,\x00-\x1f\x7f])?$")
+
+
+def arm_joint_name(name: str, taken=()) -> str:
+    """A joint name an arm file accepts, made from ``name`` (e.g. a URDF joint name): ':' ',' and
+    control characters become '_', surrounding spaces go, a name of digits only or a reserved name
+    (tcp, flange, base) gets a ``joint_`` prefix, at most 64 characters, and a ``_2``, ``_3`` ...
+    suffix when the result is already in ``taken``. A valid name not in ``taken`` comes back as it is."""
+    out = re.sub(r"[:,\x00-\x1f\x7f]", "_", str(name)).strip() or "joint"
+    if out.isdigit() or out.lower() in _RESERVED_NAMES:
+        out = f"joint_{out}"
+    out = out[:64].strip()
+    base, k = out, 2
+    while out in taken or not _NAME_RE.match(out):
+        tail = f"_{k}"
+        out = base[:64 - len(tail)].strip() + tail
+        k += 1
+    return out
 
 
 class ArmFileError(ArmError):
@@ -242,6 +286,91 @@ def _show(v) -> str:
 
 
 # ---------------------------------------------------------------------------------------------
+# collision shapes
+
+def _parse_shapes(ctx: "_Ctx", raw, table: str, index, label: str, L: float, frame: np.ndarray,
+                  base_dir: str | None) -> list:
+    """The explicit ``shape`` list of one table -> Shapes in the body frame (``frame`` maps the
+    file's link frame to it)."""
+    from .shapes import MAX_SHAPES, box, capsule, check_shape, cylinder, sphere
+
+    sc = _Scope(ctx, table, index, label)
+    if isinstance(raw, dict):
+        raw = [raw]
+    if not isinstance(raw, list) or not all(isinstance(x, dict) for x in raw):
+        raise sc.fail(f"expected shape tables ([[{table}.shape]]), got {_show(raw)}", "shape")
+    if len(raw) > MAX_SHAPES:
+        raise sc.fail(f"{len(raw)} shapes; at most {MAX_SHAPES} per link", "shape")
+    out = []
+    for k, sh in enumerate(raw):
+        ss = _Scope(ctx, table, index, f"{label} shape {k + 1}")
+        kind = sh.get("type")
+        if kind not in _SHAPE_KEYS:
+            raise ss.fail(f"expected 'type' = one of {', '.join(_SHAPE_KEYS)}, got {_show(kind)}", "type")
+        ss.keys(sh, _SHAPE_KEYS[kind] | {"type"})
+        need = [x for x in sorted(_SHAPE_KEYS[kind] - {"rpy", "rot", "scale", "xyz"}) if x not in sh]
+        if need:
+            raise ss.fail(f"missing key '{need[0]}' (a {kind} needs {', '.join(sorted(_SHAPE_KEYS[kind] - {'rpy', 'rot', 'scale', 'xyz'}))})")
+        where = f"{ctx.name}: {label} shape {k + 1} ({kind})"
+        if "radius" in sh:
+            r = ss.num(sh["radius"], "radius")
+            if r <= 0:
+                raise ss.fail(f"radius must be > 0, got {_show(sh['radius'])}", "radius")
+            r *= L
+        if kind in ("capsule", "cylinder"):
+            a = ss.vec(sh["a"], "a") * L
+            b = ss.vec(sh["b"], "b") * L
+            if kind == "capsule":
+                shp = capsule(a, b, r)
+            else:
+                ln = float(np.linalg.norm(b - a))
+                if ln <= 0:
+                    raise ss.fail("a and b are the same point; a cylinder needs two distinct end centres", "b")
+                T = np.eye(4)
+                T[:3, :3] = _frame_z((b - a) / ln)
+                T[:3, 3] = (a + b) / 2
+                shp = cylinder(T, r, ln)
+        elif kind == "sphere":
+            shp = sphere(ss.vec(sh["center"], "center") * L, r)
+        elif kind == "box":
+            size = ss.vec(sh["size"], "size") * L
+            if np.any(size <= 0):
+                raise ss.fail(f"every size must be > 0, got {_show(sh['size'])}", "size")
+            T = np.eye(4)
+            T[:3, :3] = ss.rotation(sh)
+            T[:3, 3] = ss.vec(sh["center"], "center") * L
+            shp = box(T, size)
+        else:
+            from .meshes import mesh_shape
+
+            f = ss.text(sh["file"], "file", allow_empty=False)
+            scale = ss.vec(sh.get("scale", [1, 1, 1]), "scale")
+            if np.any(scale == 0):
+                raise ss.fail(f"a zero scale flattens the mesh, got {_show(sh['scale'])}", "scale")
+            T = np.eye(4)
+            T[:3, :3] = ss.rotation(sh)
+            T[:3, 3] = ss.vec(sh.get("xyz", [0, 0, 0]), "xyz") * L
+            path = f if os.path.isabs(f) or base_dir is None else os.path.join(base_dir, f)
+            try:
+                shp = mesh_shape(path, scale * L, T, where=where, file_name=f)
+            except ArmError as exc:
+                raise ArmFileError(str(exc)) from None
+        try:
+            out.append(check_shape(shp.transformed(frame) if frame is not None else shp, where))
+        except ArmError as exc:
+            raise ArmFileError(str(exc)) from None
+    return out
+
+
+def _frame_z(z: np.ndarray) -> np.ndarray:
+    """A rotation whose z column is the unit vector ``z``."""
+    ref = np.array([1.0, 0, 0]) if abs(z[0]) < 0.9 else np.array([0, 1.0, 0])
+    x = ref - z * (ref @ z)
+    x /= np.linalg.norm(x)
+    return np.stack([x, np.cross(z, x), z], axis=1)
+
+
+# ---------------------------------------------------------------------------------------------
 # reading
 
 def read_arm_file(path) -> ArmModel:
@@ -292,6 +421,7 @@ def parse_arm_text(raw, source_name: str = "<arm>") -> ArmModel:
         text = str(raw)
     if "\x00" in text:
         raise ArmFileError(f"{source_name}: contains NUL characters; expected a TOML arm file (text)")
+    check_toml_text(text, source_name, ArmFileError)
     try:
         data = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
@@ -332,7 +462,7 @@ def parse_arm_dict(data: dict, source_name: str = "<arm>", text: str | None = No
         looks = ("; this looks like a study file" if {"study", "settings"} & set(data) else
                  "; this looks like a cell file" if {"cell", "point", "path", "box"} & set(data) else "")
         raise ArmFileError(f"{head}: unknown {kind} {k!r}{looks}; allowed in an arm file: [arm], [[joint]], "
-                           f"[flange], [tool], [mount]")
+                           f"[flange], [tool], [mount], [base]")
     if "arm" not in data:
         raise top.fail("missing table [arm] (with at least 'name')")
     arm = data["arm"]
@@ -364,6 +494,9 @@ def parse_arm_dict(data: dict, source_name: str = "<arm>", text: str | None = No
         raise top.fail(f"{len(joints_raw)} joints; at most {MAX_JOINTS} are supported")
 
     allowed = _JOINT_COMMON | _JOINT_GEOM[geometry]
+    base_dir = os.path.dirname(os.path.abspath(source_name)) if source_name and not source_name.startswith("<") else None
+    shape_lists: list[list] = []
+    short_radius: dict[int, float] = {}
     joints = []
     names: dict[str, int] = {}
     post_prev = np.eye(4)  # standard DH: the part of the previous link transform after its joint
@@ -430,6 +563,8 @@ def parse_arm_dict(data: dict, source_name: str = "<arm>", text: str | None = No
             lower, upper = lo * qscale, hi * qscale
         max_speed = sj.num(jr["max_speed"], "max_speed", positive=True) * qscale if "max_speed" in jr else None
         max_effort = sj.num(jr["max_effort"], "max_effort", positive=True) if "max_effort" in jr else None
+        max_acc = (sj.num(jr["max_acceleration"], "max_acceleration", positive=True) * qscale
+                   if "max_acceleration" in jr else None)
         mass = sj.num(jr["mass"], "mass", nonneg=True) if "mass" in jr else None
         com = None
         if "com" in jr:
@@ -437,8 +572,17 @@ def parse_arm_dict(data: dict, source_name: str = "<arm>", text: str | None = No
             com = (posts[-1] @ np.append(com, 1.0))[:3]  # DH link frame -> joint frame
         elif mass is not None:
             com = np.zeros(3)
+        shapes = []
+        if "shape" in jr:
+            shapes = _parse_shapes(ctx, jr["shape"], "joint", i, sj.label, L, posts[-1], base_dir)
+        if "radius" in jr:
+            rr = sj.num(jr["radius"], "radius")
+            if rr <= 0:
+                raise sj.fail(f"radius must be > 0, got {_show(jr['radius'])} (the link's capsule)", "radius")
+            short_radius[i] = rr * L
+        shape_lists.append(shapes)
         joints.append(Joint(jname, kind, np.ascontiguousarray(origin), axis, lower, upper,
-                            max_speed, max_effort, mass, com))
+                            max_speed, max_effort, mass, com, max_acc))
 
     end = posts[-1] if geometry == "dh" else np.eye(4)
     if "flange" in data:
@@ -455,6 +599,44 @@ def parse_arm_dict(data: dict, source_name: str = "<arm>", text: str | None = No
         tool = st.place(t, L)
         tool_mass = st.num(t.get("mass", 0.0), "mass", nonneg=True)
         tool_com = st.vec(t.get("com", [0, 0, 0]), "com") * L
+    tool_shapes = []
+    if "tool" in data:
+        from .shapes import capsule as _capsule
+
+        if "shape" in t:
+            tool_shapes += _parse_shapes(ctx, t["shape"], "tool", None, "[tool]", L, None, base_dir)
+        if "radius" in t:
+            rr = st.num(t["radius"], "radius")
+            if rr <= 0:
+                raise st.fail(f"radius must be > 0, got {_show(t['radius'])} (the tool's capsule)", "radius")
+            tool_shapes.append(_capsule(np.zeros(3), tool[:3, 3], rr * L))
+    base_shapes = []
+    if "base" in data:
+        sb = _Scope(ctx, "base")
+        sb.keys(data["base"], {"shape"})
+        if "shape" in data["base"]:
+            base_shapes = _parse_shapes(ctx, data["base"]["shape"], "base", None, "[base]", L, None, base_dir)
+    for i, rr in short_radius.items():
+        from .shapes import capsule as _capsule
+
+        tip = joints[i + 1].origin[:3, 3] if i + 1 < len(joints) else end[:3, 3]
+        shape_lists[i].insert(0, _capsule(np.zeros(3), tip, rr))
+    joints = [replace(j, shapes=tuple(sl)) if sl else j for j, sl in zip(joints, shape_lists)]
+    skip = []
+    if "skip" in arm:
+        bodies = {"base": 0, "tool": len(joints) + 1, **{j.name: k + 1 for k, j in enumerate(joints)}}
+        sk = arm["skip"]
+        if not isinstance(sk, list) or not all(isinstance(p, list) and len(p) == 2 for p in sk):
+            raise sa.fail(f"expected a list of pairs like [[\"shoulder\", \"wrist\"]], got {_show(sk)}", "skip")
+        for p in sk:
+            for nm in p:
+                if nm not in bodies:
+                    raise sa.fail(f"{_show(nm)} is not a joint name, 'base' or 'tool'; joints are "
+                                  f"{', '.join(j.name for j in joints)}", "skip")
+            a_, b_ = sorted((bodies[p[0]], bodies[p[1]]))
+            if a_ == b_:
+                raise sa.fail(f"pair {_show(p)} names one body twice", "skip")
+            skip.append((a_, b_))
     mount = np.eye(4)
     if "mount" in data:
         sm = _Scope(ctx, "mount")
@@ -473,7 +655,8 @@ def parse_arm_dict(data: dict, source_name: str = "<arm>", text: str | None = No
 
     return ArmModel(name=name.strip(), joints=tuple(joints), end=end, tool=tool, mount=mount,
                     home=home, description=description, tool_mass=tool_mass, tool_com=tool_com,
-                    source=data, path=source_name, stated_length=stated_length)
+                    source=data, path=source_name, stated_length=stated_length, tool_shapes=tuple(tool_shapes),
+                    base_shapes=tuple(base_shapes), skip_pairs=tuple(sorted(set(skip))))
 
 
 # ---------------------------------------------------------------------------------------------
@@ -491,13 +674,18 @@ def same_arm(a: ArmModel, b: ArmModel, atol: float = 1e-9) -> bool:
     if (a.name, a.description, a.names, tuple(a.kinds)) != (b.name, b.description, b.names, tuple(b.kinds)):
         return False
     for x, y in ((a.lower, b.lower), (a.upper, b.upper), (a.max_speed, b.max_speed),
-                 (a.max_effort, b.max_effort), (a.masses, b.masses)):
+                 (a.max_effort, b.max_effort), (a.masses, b.masses), (a.max_acceleration, b.max_acceleration)):
         if not np.allclose(x, y, rtol=1e-12, atol=atol, equal_nan=True):
             return False
     for ja, jb in zip(a.joints, b.joints):
         if not (_same_opt(ja.origin, jb.origin, atol) and _same_opt(ja.axis, jb.axis, atol)
                 and _same_opt(ja.com, jb.com, atol)):
             return False
+    for sa_, sb_ in zip(a.body_shapes(), b.body_shapes()):
+        if len(sa_) != len(sb_) or not all(x.same(y, max(atol, 1e-12)) for x, y in zip(sa_, sb_)):
+            return False
+    if tuple(a.skip_pairs) != tuple(b.skip_pairs):
+        return False
     return (_same_opt(a.end, b.end, atol) and _same_opt(a.tool, b.tool, atol) and _same_opt(a.mount, b.mount, atol)
             and _same_opt(a.home, b.home, atol) and abs(a.tool_mass - b.tool_mass) <= atol
             and _same_opt(a.tool_com, b.tool_com, atol)
@@ -538,10 +726,14 @@ def _model_to_dict(model: ArmModel) -> dict:
             jd["max_speed"] = _tidy(j.max_speed / s)
         if j.max_effort is not None:
             jd["max_effort"] = float(j.max_effort)
+        if j.max_acceleration is not None:
+            jd["max_acceleration"] = _tidy(j.max_acceleration / s)
         if j.mass is not None:
             jd["mass"] = float(j.mass)
         if j.com is not None:
             jd["com"] = [_tidy(x) for x in j.com]
+        if j.shapes:
+            jd["shape"] = [_shape_dict(sh) for sh in j.shapes]
         joints.append(jd)
     out["joint"] = joints
     if not np.array_equal(model.end, np.eye(4)):
@@ -551,9 +743,33 @@ def _model_to_dict(model: ArmModel) -> dict:
         if model.tool_mass or np.any(model.tool_com):
             out["tool"]["mass"] = float(model.tool_mass)
             out["tool"]["com"] = [_tidy(x) for x in model.tool_com]
+    if model.tool_shapes:
+        out.setdefault("tool", _place_dict(model.tool))["shape"] = [_shape_dict(sh) for sh in model.tool_shapes]
     if not np.array_equal(model.mount, np.eye(4)):
         out["mount"] = _place_dict(model.mount)
+    if model.base_shapes:
+        out["base"] = {"shape": [_shape_dict(sh) for sh in model.base_shapes]}
+    if model.skip_pairs:
+        names = ["base"] + list(model.names) + ["tool"]
+        out["arm"]["skip"] = [[names[a], names[b]] for a, b in model.skip_pairs]
     return out
+
+
+def _shape_dict(sh) -> dict:
+    """An explicit shape table (metres, degrees) of a Shape."""
+    v = lambda x: [_tidy(c) for c in x]  # noqa: E731
+    if sh.kind == "capsule":
+        return {"type": "capsule", "a": v(sh.a), "b": v(sh.b), "radius": _tidy(sh.radius)}
+    if sh.kind == "sphere":
+        return {"type": "sphere", "center": v(sh.a), "radius": _tidy(sh.radius)}
+    if sh.kind == "box":
+        return {"type": "box", "center": v(sh.pose[:3, 3]), "size": v(sh.size),
+                "rot": [v(r) for r in sh.pose[:3, :3]]}
+    if sh.kind == "cylinder":
+        z = sh.pose[:3, 2] * sh.length / 2
+        return {"type": "cylinder", "a": v(sh.pose[:3, 3] - z), "b": v(sh.pose[:3, 3] + z), "radius": _tidy(sh.radius)}
+    return {"type": "mesh", "file": os.path.abspath(sh.mesh), "scale": v(sh.mesh_scale),
+            "xyz": v(sh.mesh_origin[:3, 3]), "rot": [v(r) for r in sh.mesh_origin[:3, :3]]}
 
 
 def arm_to_dict(model: ArmModel) -> dict:
@@ -626,8 +842,8 @@ def dumps_arm(model: ArmModel) -> str:
     [arm], [[joint]]..., [flange], [tool], [mount]."""
     d = arm_to_dict(model)
     chunks: list[list[str]] = []
-    order = [k for k in ("arm", "joint", "flange", "tool", "mount") if k in d] + \
-        [k for k in d if k not in ("arm", "joint", "flange", "tool", "mount")]
+    order = [k for k in ("arm", "joint", "flange", "tool", "mount", "base") if k in d] + \
+        [k for k in d if k not in ("arm", "joint", "flange", "tool", "mount", "base")]
     plain = {k: v for k, v in d.items() if not isinstance(v, (dict, list)) or
              (isinstance(v, list) and not all(isinstance(x, dict) for x in v)) or v == []}
     if plain:

@@ -61,6 +61,10 @@ class Joint:
         Mass (kg) of the link moved by this joint.
     com : (3,) ndarray or None
         Centre of mass of that link in this joint's frame (m).
+    max_acceleration : float or None
+        Largest joint acceleration, rad/s^2 or m/s^2 (cycle-time estimates).
+    shapes : tuple of workbench.arm.shapes.Shape
+        Collision shapes of that link in this joint's frame (m); empty when none are given.
     """
 
     name: str
@@ -73,6 +77,8 @@ class Joint:
     max_effort: float | None = None
     mass: float | None = None
     com: np.ndarray | None = None
+    max_acceleration: float | None = None
+    shapes: tuple = ()
 
     @property
     def revolute(self) -> bool:
@@ -98,7 +104,25 @@ class ArmModel:
     tool_com: np.ndarray = field(default_factory=lambda: np.zeros(3))
     source: dict | None = None
     path: str | None = None
+    tool_shapes: tuple = ()
+    base_shapes: tuple = ()
+    skip_pairs: tuple = ()
     stated_length: float | None = None   # characteristic length (m) stated in the arm file
+
+    # collision bodies: 0 the base (base frame), 1..n the link of joint 1..n (its joint frame),
+    # n + 1 the tool (flange frame); ``skip_pairs`` holds extra (body, body) pairs not checked
+    @property
+    def has_shapes(self) -> bool:
+        """True when any link or the tool has a collision shape."""
+        return bool(self.tool_shapes) or any(j.shapes for j in self.joints)
+
+    def body_shapes(self) -> list:
+        """Shapes per body: [base, link 1, ..., link n, tool] (n + 2 tuples)."""
+        return [tuple(self.base_shapes)] + [tuple(j.shapes) for j in self.joints] + [tuple(self.tool_shapes)]
+
+    def body_names(self) -> list:
+        """Readable body names: 'base', 'link 1', ..., 'link n', 'tool'."""
+        return ["base"] + [f"link {k + 1}" for k in range(self.n)] + ["tool"]
 
     # ---- array views used by the kernels (computed once) -------------------------------
     @property
@@ -137,6 +161,12 @@ class ArmModel:
     def max_speed(self) -> np.ndarray:
         """(n,) joint speed limits; NaN where not given."""
         return np.array([np.nan if j.max_speed is None else j.max_speed for j in self.joints], dtype=float)
+
+    @cached_property
+    def max_acceleration(self) -> np.ndarray:
+        """(n,) joint acceleration limits; NaN where not given."""
+        return np.array([np.nan if j.max_acceleration is None else j.max_acceleration for j in self.joints],
+                        dtype=float)
 
     @cached_property
     def max_effort(self) -> np.ndarray:

@@ -22,10 +22,12 @@ from __future__ import annotations
 
 import math
 import os
+from dataclasses import replace
 
 import numpy as np
 
-from .files import MAX_FILE_BYTES, MAX_JOINTS, ArmFileError
+from ..limits import MAX_MAGNITUDE
+from .files import MAX_FILE_BYTES, MAX_JOINTS, ArmFileError, arm_joint_name
 from .model import PRISMATIC, REVOLUTE, ArmModel, Joint
 from .transforms import make_transform
 
@@ -108,6 +110,9 @@ def parse_urdf_text(raw, source_name: str = "<urdf>", base_link: str | None = No
         raise ArmFileError(f"{src}: unsafe XML refused ({type(exc).__name__})") from None
     except DET.ParseError as exc:
         raise ArmFileError(f"{src}: malformed XML: {str(exc).splitlines()[0]}") from None
+    except LookupError as exc:  # <?xml ... encoding="..."?> that Python does not know
+        raise ArmFileError(f"{src}: {str(exc).splitlines()[0] if str(exc) else 'unknown encoding'} in the XML "
+                           f"declaration; expected UTF-8 (or another encoding Python knows)") from None
     except (ValueError, RecursionError) as exc:
         raise ArmFileError(f"{src}: malformed XML: {str(exc).splitlines()[0] if str(exc) else 'nested too deeply'}"
                            ) from None
@@ -256,10 +261,21 @@ def parse_urdf_text(raw, source_name: str = "<urdf>", base_link: str | None = No
     names = [j.name for j in out]
     if len(set(names)) != len(names):  # pragma: no cover - joint names are unique above
         raise ArmFileError(f"{src}: duplicate joint names on the chain")
+    # names an arm file cannot hold ('arm:j1', '2', 'base') are renamed, so the arm written from
+    # this model reads back; the description says which
+    renamed, taken = [], set()
+    for k, j in enumerate(out):
+        new = arm_joint_name(j.name, taken | set(names[k + 1:]))
+        taken.add(new)
+        if new != j.name:
+            renamed.append(f"{j.name!r} -> {new!r}")
+            out[k] = replace(j, name=new)
     home = np.clip(np.zeros(len(out)), [j.lower for j in out], [j.upper for j in out])
+    description = f"imported from URDF {os.path.basename(src)} ({base} -> {tip})"
+    if renamed:
+        description += f"; joints renamed for arm files: {', '.join(renamed)}"
     return ArmModel(name=robot_name, joints=tuple(out), end=np.ascontiguousarray(end), home=home,
-                    description=f"imported from URDF {os.path.basename(src)} ({base} -> {tip})",
-                    source=None, path=src)
+                    description=description, source=None, path=src)
 
 
 def _subtree(base, children):
@@ -278,6 +294,8 @@ def _float(s, where, what) -> float:
         raise ArmFileError(f"{where}: {what}: expected a number, got {s!r}") from None
     if not math.isfinite(v):
         raise ArmFileError(f"{where}: {what}: expected a finite number, got {s!r}")
+    if abs(v) > MAX_MAGNITUDE:  # the same bound as the arm-file reader's
+        raise ArmFileError(f"{where}: {what}: expected a number of magnitude at most {MAX_MAGNITUDE:g}, got {s!r}")
     return v
 
 

@@ -1,4 +1,4 @@
-"""``workbench bench [--json] [--quick] [--only NAME ...]``"""
+"""``workbench bench [--json] [--quick] [--only NAME ...]``: exit status 1 when any bar fails."""
 from __future__ import annotations
 
 import json
@@ -30,7 +30,17 @@ def run(args) -> int:
         print(json.dumps(results, indent=2, default=_jsonable))
     else:
         print(format_results(results))
+    failed = failed_bars(results)
+    if failed:  # a failed bar is a failed run: scripts and CI see it in the exit status
+        print(f"bench: {len(failed)} bar(s) failed: {'; '.join(failed)}", file=sys.stderr)
+        return 1
     return 0
+
+
+def failed_bars(results) -> list[str]:
+    """``"entry: bar"`` for every bar that did not pass, in the order printed."""
+    return [f"{r.get('name', '?')}: {k}" for r in results if "skipped" not in r
+            for k, (_v, _t, ok) in r.get("bars", {}).items() if not ok]
 
 
 def _jsonable(o):

@@ -9,6 +9,7 @@ from __future__ import annotations
 import json
 import math
 import os
+import sys
 
 import numpy as np
 
@@ -111,6 +112,8 @@ def run(args) -> int:
         raise WorkbenchError(f"--seed: expected a whole number >= 0, got {args.seed}")
     arm = load(args)
     info = summarise(arm, samples=args.samples, seed=args.seed)
+    for w in info.get("plausibility", []):
+        sys.stderr.write(f"warning: {w}\n")
     if args.json:
         print(json.dumps(json_value(info), indent=2))
     else:
@@ -217,12 +220,14 @@ def summarise(arm, samples=REACH_SAMPLES, seed=0) -> dict:
             "max_speed": None if j.max_speed is None else _clean(j.max_speed * f, 6),
             "speed_unit": f"{unit}/s",
             "max_effort": j.max_effort, "effort_unit": "N m" if j.revolute else "N",
+            "max_acceleration": None if j.max_acceleration is None else _clean(j.max_acceleration * f, 6),
+            "acceleration_unit": f"{unit}/s^2",
             "mass_kg": j.mass,
             "com_mm": None if j.com is None else [_clean(x * 1000.0, 6) for x in j.com],
         })
     home = [_clean(v * joint_unit(j)[0], 6) for v, j in zip(arm.home_q, m.joints)]
     total_mass = float(np.nansum(m.masses)) if np.any(np.isfinite(m.masses)) else None
-    return {
+    out = {
         "file": m.path and os.fspath(m.path),
         "name": m.name,
         "description": m.description,
@@ -240,6 +245,12 @@ def summarise(arm, samples=REACH_SAMPLES, seed=0) -> dict:
         "reach": reach_estimate(arm, samples=samples, seed=seed),
         "warnings": warnings_for(arm),
     }
+    from ..studies.plausibility import arm_warnings
+
+    plaus = arm_warnings(arm)  # units and angles that look wrong: also "warning:" lines on stderr
+    out["plausibility"] = plaus
+    out["warnings"] = plaus + out["warnings"]
+    return out
 
 
 def _described_as(m) -> str:
@@ -259,6 +270,9 @@ def format_info(info: dict) -> str:
                  f"{info['prismatic']} prismatic; described as {info['described_as']}")
     lines.append("")
     rows = [("#", "joint", "type", "limits", "max speed", "max effort", "mass kg", "COM mm (joint frame)")]
+    acc = any(j.get("max_acceleration") is not None for j in info["joints"])
+    if acc:
+        rows[0] = rows[0][:5] + ("max accel",) + rows[0][5:]
     for j in info["joints"]:
         lim = "unlimited" if j["limits"] is None else \
             f"{fmt_num(j['limits'][0], 6)} .. {fmt_num(j['limits'][1], 6)} {j['unit']}"
@@ -266,7 +280,11 @@ def format_info(info: dict) -> str:
         eff = "-" if j["max_effort"] is None else f"{fmt_num(j['max_effort'])} {j['effort_unit']}"
         mass = "-" if j["mass_kg"] is None else fmt_num(j["mass_kg"])
         com = "-" if j["com_mm"] is None else fmt_vec(j["com_mm"])
-        rows.append((str(j["index"]), j["name"], j["type"], lim, spd, eff, mass, com))
+        row = (str(j["index"]), j["name"], j["type"], lim, spd, eff, mass, com)
+        if acc:
+            a = "-" if j.get("max_acceleration") is None else f"{fmt_num(j['max_acceleration'])} {j['acceleration_unit']}"
+            row = row[:5] + (a,) + row[5:]
+        rows.append(row)
     widths = [max(len(r[c]) for r in rows) for c in range(len(rows[0]))]
     for r in rows:
         lines.append("  " + "  ".join(s.ljust(w) for s, w in zip(r, widths)).rstrip())

@@ -88,7 +88,11 @@ def run(args) -> int:
     tcp = arm.fk(q, frame="tcp", world=args.world)
     frame_T = arm.fk(q, frame=args.frame, world=args.world)
     outside = [k for k in range(m.n) if not (m.lower[k] - 1e-12 <= q[k] <= m.upper[k] + 1e-12)]
-    note = _note(arm, q, args.frame, rows, length, args.world)
+    note = None
+    if not res["inverse_condition"] > 1e-12:
+        note = _structural_note(arm, args.frame, rows, length, args.world)
+    if note is None:
+        note = _note(arm, q, args.frame, rows, length, args.world)
     mixed = any(r < 3 for r in rows) and any(r >= 3 for r in rows)
     data = {
         "arm": m.name,
@@ -118,6 +122,33 @@ def run(args) -> int:
     else:
         print(format_jacobian(data, J, arm))
     return 0
+
+
+def _structural_note(arm, frame, rows, length, world):
+    """The sentence for rows the arm lacks at every pose (not a singularity), with rows it can serve;
+    None when some pose gives the rows their full rank."""
+    from ..kinematics.task_rank import generic_rank
+
+    rr = generic_rank(arm, rows, frame=frame, world=world, length=length)
+    if not rr.structural:
+        return None
+    where = "world" if world else "base"
+    text = (f"Not a singularity: the arm cannot serve the {where}-frame rows [{rr.names(rr.rows)}] at any pose "
+            f"(rank at most {rr.rank} of {rr.full} over random poses in the joint limits)")
+    if rr.dead_rows:
+        text += f"; it never moves along or about {rr.names(rr.dead_rows)} in the {where} frame"
+    text += "."
+    if world and not generic_rank(arm, rows, frame=frame, world=False, length=length).structural:
+        text += (" In the arm's own base frame these rows are served: drop --world (for a planar arm that is "
+                 "its own plane).")
+    else:
+        live = generic_rank(arm, "full", frame=frame, world=world, length=length).live_rows
+        if live and len(live) <= arm.n and tuple(live) != tuple(rr.rows):
+            alt = generic_rank(arm, list(live), frame=frame, world=world, length=length)
+            if not alt.structural:
+                text += (f" The rows it does serve here: --rows {','.join(alt.names(live).split(', '))}"
+                         f"{' --world' if world else ''}.")
+    return text
 
 
 def _note(arm, q, frame, rows, length, world):

@@ -1,8 +1,9 @@
 """``workbench run STUDY``: run a study headless and write a results file.
 
-Progress goes to stderr (a bar on a terminal, a line every 10 % otherwise). Ctrl-C cancels
-cooperatively: finished chunks are kept and the results file is closed, readable and marked
-incomplete (exit status 130). Bad study files and settings print one ``error:`` line (exit 2) and
+Progress goes to stderr (a bar on a terminal, a line every 10 % otherwise). Ctrl-C, SIGTERM and
+SIGHUP cancel cooperatively: finished chunks are kept and the results file is closed, readable and
+marked incomplete (exit status 130, 143, 129); a second one stops at once and keeps nothing. A
+second run on the same ``--out`` is refused while the first runs (``.NAME.lock`` beside the file). Bad study files and settings print one ``error:`` line (exit 2) and
 write nothing.
 """
 from __future__ import annotations
@@ -13,6 +14,8 @@ import sys
 import threading
 import time
 
+#: signals that cancel a run as Ctrl-C does (exit status 128 + the signal's number: 130, 143, 129)
+CANCEL_SIGNALS = tuple(getattr(signal, n) for n in ("SIGINT", "SIGTERM", "SIGHUP") if hasattr(signal, n))
 # results file names ``workbench run --out`` accepts (anything else is refused before running)
 RESULTS_EXTENSIONS = (".h5", ".hdf5", ".hdf")
 
@@ -110,6 +113,10 @@ def run(args) -> int:
     note = unused_note(prep.kind, prep.plan.spec.settings)
     if note:
         sys.stderr.write(f"note: {prep.plan.spec.where}: [settings] not used, ignored: {note}\n")
+    from ..studies.plausibility import result_warnings, study_warnings
+
+    for w in study_warnings(prep):  # units, angles, a placement out of reach: the run goes on
+        sys.stderr.write(f"warning: {w}\n")
     if args.scheduler:
         executor = "dask"
     elif args.in_process:
@@ -120,31 +127,46 @@ def run(args) -> int:
         executor = "auto"
 
     cancel = threading.Event()
+    why = {}
 
-    def on_sigint(signum, frame):
-        if cancel.is_set():  # a second Ctrl-C: stop hard (the temporary file is left, never the final name)
+    def on_signal(signum, frame):
+        if cancel.is_set():  # a second signal: stop hard (the temporary file is deleted, never the final name)
             raise KeyboardInterrupt
+        why["signal"] = signum
         cancel.set()
-        sys.stderr.write("\ncancelling: keeping the finished chunks ...\n")
+        name = "Ctrl-C" if signum == signal.SIGINT else signal.Signals(signum).name
+        sys.stderr.write(f"\ncancelling ({name}): keeping the finished chunks ...\n")
 
-    old = signal.signal(signal.SIGINT, on_sigint) if threading.current_thread() is threading.main_thread() else None
-    bar = _Progress(quiet=args.quiet)
-    if not args.quiet:
-        from ..studies.base import calibrate
+    from ..results import OutputLock
 
-        est = prep.estimate = calibrate(prep.kind, prep.plan, prep.arm, prep.cell)
-        sys.stderr.write(f"study {prep.plan.spec.name!r} ({prep.kind.title}): {est.describe()}\n")
+    lock = OutputLock(out)
+    lock.acquire()  # a second run on the same --out stops here, before calibrating
+    old = {}
     try:
+        if threading.current_thread() is threading.main_thread():
+            # SIGTERM (kill, a shutdown) and SIGHUP (the terminal closed) end the run as Ctrl-C does:
+            # the finished chunks are kept in a readable file marked incomplete
+            for sig in CANCEL_SIGNALS:
+                old[sig] = signal.signal(sig, on_signal)
+        bar = _Progress(quiet=args.quiet)
+        if not args.quiet:
+            from ..studies.base import calibrate
+
+            est = prep.estimate = calibrate(prep.kind, prep.plan, prep.arm, prep.cell)
+            sys.stderr.write(f"study {prep.plan.spec.name!r} ({prep.kind.title}): {est.describe()}\n")
         res = run_study(prep, out=out, executor=executor, workers=args.workers, scheduler=args.scheduler,
                         progress=bar, cancel=cancel, compression=None if args.compression == "none" else args.compression)
     finally:
-        if old is not None:
-            signal.signal(signal.SIGINT, old)
+        for sig, handler in old.items():
+            signal.signal(sig, handler)
+        lock.release()
     done = int(res.finished.sum())
     if res.incomplete:
         bar.end()
         sys.stderr.write(f"cancelled: {done} of {res.finished.size} chunks kept in {out} (marked incomplete)\n")
-        return 130
+        return 128 + int(why.get("signal", signal.SIGINT))
+    for w in result_warnings(prep.kind.name, res.arrays, prep.plan.spec.where):
+        sys.stderr.write(f"warning: {w}\n")
     if not args.quiet:
         sys.stderr.write(f"wrote {out} ({res.attrs.get('elapsed_s', 0):.1f} s, {res.attrs.get('executor')})\n")
     return 0

@@ -13,7 +13,10 @@ def make_app(argv=None):
     from PySide6 import QtWidgets
     import pyqtgraph as pg
 
+    from .style import apply_plot_style
+
     pg.setConfigOptions(imageAxisOrder="row-major", antialias=True)
+    apply_plot_style()
     app = QtWidgets.QApplication.instance()
     if app is None:
         app = QtWidgets.QApplication(list(argv) if argv else [sys.argv[0]])

@@ -60,6 +60,7 @@ def bench_gui(quick: bool = False) -> dict:
     app = make_app()
     tmp = tempfile.mkdtemp(prefix="wb-gui-bench-")
     settings = QtCore.QSettings(os.path.join(tmp, "s.ini"), QtCore.QSettings.IniFormat)
+    settings.setValue("project_dir", os.path.join(tmp, "runs"))
     win = MainWindow(settings=settings)
     win.resize(1500, 950)
     win.show()

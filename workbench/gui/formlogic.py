@@ -122,6 +122,10 @@ def check_fields(kind, texts: dict, defaults: dict, arm, cell=None) -> tuple[dic
             named = _key_of(msg, keys)
             if named is None or named == k:
                 errors[k] = _reason(msg, k)
+    if "ranges" in values and "ranges" not in errors and "joints" not in errors and arm is not None:
+        why = range_outside_limits(values.get("joints", defaults.get("joints")), values["ranges"], arm)
+        if why:
+            errors["ranges"] = why
     if not errors:
         try:
             kind.validate(values, arm, cell, where=where)
@@ -133,6 +137,40 @@ def check_fields(kind, texts: dict, defaults: dict, arm, cell=None) -> tuple[dic
     return values, errors, summary
 
 
+def range_outside_limits(joints, ranges, arm) -> str:
+    """Why a swept range goes beyond its joint's limits ("" when every range lies within them).
+
+    ``joints`` are names or 1-based numbers as in a study file, ``ranges`` [[lo, hi], ...] in file
+    units (degrees for revolute joints, metres for sliding ones). Anything malformed is left to
+    the study kind's own check.
+    """
+    import numpy as np
+
+    if not isinstance(joints, (list, tuple)) or not isinstance(ranges, (list, tuple)):
+        return ""
+    names = list(arm.names)
+    for j, r in zip(joints, ranges):
+        if isinstance(j, str) and j in names:
+            k = names.index(j)
+        elif isinstance(j, int) and not isinstance(j, bool) and 1 <= j <= len(names):
+            k = j - 1
+        else:
+            return ""
+        if not (isinstance(r, (list, tuple)) and len(r) == 2
+                and all(isinstance(v, (int, float)) and not isinstance(v, bool) for v in r)):
+            return ""
+        revolute = arm.kinds[k] == 0
+        lo, hi = float(arm.lower[k]), float(arm.upper[k])
+        if revolute:
+            lo, hi = np.degrees(lo), np.degrees(hi)
+        unit = "deg" if revolute else "m"
+        tol = 1e-6 * max(1.0, abs(lo), abs(hi))
+        if np.isfinite(lo) and min(r) < lo - tol or np.isfinite(hi) and max(r) > hi + tol:
+            return (f"{names[k]} range [{format_value(float(r[0]))}, {format_value(float(r[1]))}] {unit} goes beyond "
+                    f"the joint's limits [{lo:.6g}, {hi:.6g}] {unit}")
+    return ""
+
+
 def _reason(message: str, key) -> str:
     """The reason part of a kind's error (after 'settings KEY:')."""
     m = message
@@ -141,3 +179,46 @@ def _reason(message: str, key) -> str:
         if i >= 0:
             return m[i + len(key) + 1:].strip()
     return m.split(": ", 1)[-1] if m.startswith("settings") else m
+
+
+# ---- choice settings: offered as drop-downs ----------------------------------------------
+#: (kind or "*", key) -> (values, editable). Editable lists offer the usual values and still take
+#: any other valid text (task rows as "0,1,2", frames as "joint:3" or "com:NAME").
+_CHOICES = {
+    ("joint_sweep", "mode"): (("grid", "reduce", "samples"), False),
+    ("joint_sweep", "best_by"): (("manipulability", "condition", "inverse_condition", "min_sv",
+                                  "limit_margin", "limit_aware_manipulability"), False),
+    ("mount_search", "measure"): (("inverse_condition", "min_sv", "manipulability"), False),
+    ("reach_slice", "grid"): (("plane", "box"), False),
+    ("reach_slice", "plane"): (("xy", "xz", "yz", "frame"), False),
+    ("reach_slice", "orientation"): (("fixed", "axis", "free", "sampled"), False),
+    ("reach_slice", "best"): (("inverse_condition", "manipulability", "min_sv", "condition"), False),
+    ("load_map", "grid"): (("joints", "plane"), False),
+    ("load_map", "plane"): (("xy", "xz", "yz"), False),
+    ("load_map", "orientation"): (("fixed", "axis", "free"), False),
+}
+
+
+def choices(kind_name: str, key: str, arm=None, value=None):
+    """The values offered for setting ``key`` of a study kind, or None for a free field.
+
+    Returns
+    -------
+    (values, editable) or None
+        ``values`` is a tuple of texts; the current ``value`` is added when it is a text not
+        among them (a file may hold a valid value the list does not name).
+    """
+    from ..kinematics.rows import NAMED_ROWS
+
+    hit = _CHOICES.get((kind_name, key))
+    if hit is None and key == "rows":
+        hit = (tuple(NAMED_ROWS), True)
+    if hit is None and key == "frame" and kind_name == "joint_sweep":
+        names = tuple(arm.names) if arm is not None else ()
+        hit = (("tcp", "flange", "base") + names, True)
+    if hit is None:
+        return None
+    vals, editable = hit
+    if isinstance(value, str) and value not in vals:
+        vals = vals + (value,)
+    return tuple(vals), editable

@@ -19,10 +19,12 @@ from .files import DEMO_ARM, FILE_FILTER, classify, find_demo_cell
 from .posestate import PoseState
 from .result_views import HistogramView, MapView, PoseListView
 from .resultdata import ResultData
+from .project import Project, folder_beside_study
 from .runs import StudySession, StudyWorker, session_from_results, session_from_spec
 from .scene import make_scene
 from .selection import Selection
 from .study_panel import StudyPanel
+from .workers import FunctionWorker, start_worker
 
 __all__ = ["MainWindow", "ORG_NAME", "APP_NAME", "CAUTIONS", "tables_html"]
 
@@ -70,11 +72,24 @@ def _load_arm(path):
 
 
 def _atomic_target(path):
-    """A temporary name beside ``path`` with the same extension (write there, then os.replace)."""
+    """A temporary name beside ``path`` with the same extension (write there, then :func:`_commit`)."""
     folder = os.path.dirname(os.path.abspath(path)) or "."
     fd, tmp = tempfile.mkstemp(prefix=".~wb-", suffix=os.path.splitext(path)[1], dir=folder)
     os.close(fd)
     return tmp
+
+
+def usual_mode() -> int:
+    """The mode a plain ``open`` gives a new file: 0666 less the umask (``tempfile`` makes 0600)."""
+    mask = os.umask(0)
+    os.umask(mask)
+    return 0o666 & ~mask
+
+
+def _commit(tmp, path):
+    """Give the finished temporary file the usual mode and move it to ``path``."""
+    os.chmod(tmp, usual_mode())
+    os.replace(tmp, path)
 
 
 class MainWindow(QtWidgets.QMainWindow):
@@ -86,7 +101,7 @@ class MainWindow(QtWidgets.QMainWindow):
         Where recent files, the window layout and the cautions flag live (tests pass their own).
     """
 
-    def __init__(self, settings: QtCore.QSettings | None = None, load_demo=True):
+    def __init__(self, settings: QtCore.QSettings | None = None, load_demo=True, reopen=True):
         super().__init__()
         self.settings = settings if settings is not None else QtCore.QSettings(ORG_NAME, APP_NAME)
         self.setWindowTitle("Manipulability Workbench")
@@ -101,8 +116,12 @@ class MainWindow(QtWidgets.QMainWindow):
         self.error_box = None
         self._closing = False
         self.results_file = None
-        self.run_dir = None
-        self._run_count = 0
+        self.study_file = None      # the study file the form came from (its folder holds the runs)
+        self.project = None         # the results folder of the last run (workbench.gui.project)
+        self.report_thread = None
+        self.report_worker = None
+        #: asked before the window closes while a study runs (tests put their own answer here)
+        self.confirm_quit = self._ask_quit_during_run
         # in-process, in the worker thread: the compiled kernels release the interpreter lock, so the
         # window stays live, and no worker processes have to start (seconds on a busy machine)
         self.executor = "inprocess"
@@ -119,6 +138,9 @@ class MainWindow(QtWidgets.QMainWindow):
         self.selection = Selection(0)
 
         # ---- widgets ---------------------------------------------------------------------
+        from .style import apply_plot_style
+
+        apply_plot_style()
         self.scene, gl_note = make_scene(self)
         self.map_view = MapView(self.selection)
         self.hist_view = HistogramView(self.selection)
@@ -174,6 +196,23 @@ class MainWindow(QtWidgets.QMainWindow):
             self.addDockWidget(area, dock)
             setattr(self, name, dock)
         self.resizeDocks([self.arm_dock, self.study_dock], [330, 350], QtCore.Qt.Horizontal)
+        self.runs_list = QtWidgets.QListWidget()
+        self.runs_list.setObjectName("runs_list")
+        self.runs_list.itemActivated.connect(lambda it: self.open_file(it.data(QtCore.Qt.UserRole)))
+        self.runs_label = QtWidgets.QLabel("")
+        self.runs_label.setWordWrap(True)
+        self.runs_label.setStyleSheet("color: #444")
+        runs_box = QtWidgets.QWidget()
+        rl = QtWidgets.QVBoxLayout(runs_box)
+        rl.setContentsMargins(4, 4, 4, 4)
+        rl.addWidget(self.runs_label)
+        rl.addWidget(self.runs_list, 1)
+        self.runs_dock = QtWidgets.QDockWidget("Runs", self)
+        self.runs_dock.setObjectName("runs_dock")
+        self.runs_dock.setWidget(runs_box)
+        self.addDockWidget(QtCore.Qt.RightDockWidgetArea, self.runs_dock)
+        self.tabifyDockWidget(self.study_dock, self.runs_dock)
+        self.study_dock.raise_()
 
         self._build_menus()
         self.status = self.statusBar()
@@ -212,6 +251,9 @@ class MainWindow(QtWidgets.QMainWindow):
                     self.status.showMessage(f"demo cell not loaded: {exc}", 10000)
         self._arm_changed()
         self.restore_layout()
+        self.refresh_runs()
+        if load_demo and reopen:
+            self.reopen_last()
         if gl_note:
             self.status.showMessage(gl_note, 15000)
         self.gl_note = gl_note
@@ -227,6 +269,7 @@ class MainWindow(QtWidgets.QMainWindow):
         f.addAction("Open the &demo arm", lambda: self.open_file(DEMO_ARM))
         f.addSeparator()
         f.addAction("&Save study…", self.save_study_dialog)
+        f.addAction("Results &folder…", self.choose_project_dialog)
         f.addSeparator()
         e = f.addMenu("&Export")
         e.addAction("Map image (PNG or SVG)…", self.export_map_dialog)
@@ -287,6 +330,9 @@ class MainWindow(QtWidgets.QMainWindow):
         except OSError as exc:
             self.show_error(f"{path}: {exc.strerror or exc}")
             return False
+        except Exception as exc:    # a bug behind the file: say so in one line, keep the window going
+            self.show_error(f"{path}: could not be opened ({exc.__class__.__name__}: {exc})")
+            return False
         self._add_recent(path)
         self.settings.setValue("last_dir", os.path.dirname(os.path.abspath(path)))
         self.status.showMessage(f"opened {kind} file {path}", 8000)
@@ -337,6 +383,9 @@ class MainWindow(QtWidgets.QMainWindow):
         self.arm_path = spec.arm_path
         self._set_arm(arm)
         self.study_panel.load_spec(spec)
+        self.study_file = os.path.abspath(path)
+        self.clear_result()        # the previous study's result, summary and file no longer apply
+        self.refresh_runs()
 
     def _apply_results(self, path):
         from ..results import read_results
@@ -352,9 +401,90 @@ class MainWindow(QtWidgets.QMainWindow):
             self.scene.set_cell(self.cell_content)
         self.arm_path = session.spec.arm_path
         self._set_arm(session.arm)
+        try:      # the form shows the study behind the file (its kind and settings)
+            self.study_panel.load_spec(session.spec)
+        except WorkbenchError as exc:
+            self.status.showMessage(f"the study of this file is not offered here: {exc}", 8000)
         self.show_result(session.data)
+        self.settings.setValue("last_results", self.results_file)
         self.status.showMessage(f"results of {session.spec.name}: {100 * session.data.fraction_done:.0f}% of "
                                 f"the cells computed" + (" (incomplete run)" if res.incomplete else ""), 10000)
+
+    # ---- the project folder: results of runs are kept ---------------------------------------
+    def project_folder(self) -> str:
+        """Where the next run's results go: the folder the user chose, else ``<study>_runs``
+        beside the study file the form came from, else the application's data folder."""
+        chosen = self.settings.value("project_dir", "")
+        if chosen:
+            return str(chosen)
+        if self.study_file:
+            return folder_beside_study(self.study_file)
+        base = QtCore.QStandardPaths.writableLocation(QtCore.QStandardPaths.AppDataLocation)
+        return os.path.join(base or os.path.expanduser("~"), "runs")
+
+    def current_project(self) -> Project:
+        """The :class:`Project` of :meth:`project_folder` (made if needed). A folder beside a study
+        file that takes no files falls back to the application's data folder."""
+        folder = self.project_folder()
+        try:
+            return Project(folder)
+        except WorkbenchError:
+            if self.settings.value("project_dir", "") or not self.study_file:
+                raise
+            keep, self.study_file = self.study_file, None
+            try:
+                p = Project(self.project_folder())
+            finally:
+                self.study_file = keep
+            self.status.showMessage(f"{folder} takes no files: results go to {p.folder}", 10000)
+            return p
+
+    def choose_project_dialog(self):
+        start = self.project_folder()
+        d = QtWidgets.QFileDialog.getExistingDirectory(self, "Folder for the results of runs", start)
+        if d:
+            self._guard_msg(lambda: self.set_project_folder(d))
+
+    def _guard_msg(self, fn):
+        try:
+            fn()
+        except WorkbenchError as exc:
+            self.show_error(str(exc))
+
+    def set_project_folder(self, folder):
+        """Keep the results of later runs in ``folder`` (remembered); lists its runs."""
+        p = Project(folder)             # raises before anything changes
+        self.settings.setValue("project_dir", p.folder)
+        self.project = p
+        self.refresh_runs()
+        self.status.showMessage(f"results of runs go to {p.folder}", 8000)
+
+    def refresh_runs(self):
+        """The runs list: every results file of the project folder, newest first."""
+        self.runs_list.clear()
+        folder = self.project_folder()
+        if not os.path.isdir(folder):
+            self.runs_label.setText(f"Runs are kept in {folder} (made at the first run).")
+            return
+        try:
+            entries = Project(folder).runs()
+        except WorkbenchError as exc:
+            self.runs_label.setText(str(exc))
+            return
+        self.runs_label.setText(f"{len(entries)} results file{'s' if len(entries) != 1 else ''} in {folder}; "
+                                f"double-click one to open it.")
+        for e in entries:
+            it = QtWidgets.QListWidgetItem(e.label)
+            it.setData(QtCore.Qt.UserRole, e.path)
+            it.setToolTip(e.path)
+            self.runs_list.addItem(it)
+
+    def reopen_last(self) -> bool:
+        """Open the results file that was open (or made) when the window last closed."""
+        last = self.settings.value("last_results", "")
+        if last and os.path.exists(str(last)):
+            return self.open_file(str(last))
+        return False
 
     def _add_recent(self, path):
         path = os.path.abspath(path)
@@ -375,8 +505,9 @@ class MainWindow(QtWidgets.QMainWindow):
             self.recent_menu.addAction("(none yet)").setEnabled(False)
 
     # ---- arm state -----------------------------------------------------------------------
-    def _fit_scene(self):
-        """Scene bounds: the arm's reach around its base, and the cell's content."""
+    def _fit_scene(self, extra=None):
+        """Scene bounds: the arm's reach around its base, the cell's content and ``extra`` (k, 3)
+        points (ghost arms). With ``extra`` the bounds only grow, and only when it is outside."""
         arm = self.state.arm
         base = arm.model.mount[:3, 3]
         r = arm.nominal_reach()
@@ -388,6 +519,14 @@ class MainWindow(QtWidgets.QMainWindow):
             pts = np.vstack([p for p in pts if len(p)]) if any(len(p) for p in pts) else np.zeros((0, 3))
             if len(pts):
                 lo, hi = np.minimum(lo, pts.min(0)), np.maximum(hi, pts.max(0))
+        if extra is not None:
+            e = np.asarray(extra, float).reshape(-1, 3)
+            e = e[np.all(np.isfinite(e), axis=1)]
+            blo, bhi = getattr(self.scene, "_bounds", (lo, hi))
+            lo, hi = np.minimum(lo, blo), np.maximum(hi, bhi)
+            if not len(e) or (np.all(e >= lo) and np.all(e <= hi)):
+                return
+            lo, hi = np.minimum(lo, e.min(0)), np.maximum(hi, e.max(0))
         self.scene.fit(lo, hi)
 
     def _arm_changed(self, keep_arm=False):
@@ -430,23 +569,23 @@ class MainWindow(QtWidgets.QMainWindow):
         except WorkbenchError as exc:
             self.show_error(str(exc))
             return False
+        try:
+            project = self.current_project()
+        except WorkbenchError as exc:
+            self.show_error(str(exc))
+            return False
+        self.project = project
         self.session = session
         self.results_file = None
         self.show_result(session.data)
-        if self.run_dir is None:
-            self.run_dir = tempfile.mkdtemp(prefix="workbench-runs-")
-        self._run_count += 1
-        out = os.path.join(self.run_dir, f"run{self._run_count}.h5")
-        self.thread = QtCore.QThread(self)
+        out = project.new_run_path(spec.name)
         self.worker = StudyWorker(spec, out, executor=self.executor)
-        self.worker.moveToThread(self.thread)
-        self.thread.started.connect(self.worker.run)
         self.worker.chunk_finished.connect(self._on_chunk)
-        self.worker.progress.connect(self.study_panel.show_progress)
+        self.worker.cells.connect(self.study_panel.show_progress)
         self.worker.finished.connect(self._on_finished)
         self.study_panel.set_running(True)
         self._run_t0 = time.perf_counter()
-        self.thread.start()
+        self.thread = start_worker(self.worker, self)
         self.status.showMessage(f"running {spec.name}: {session.plan.cells:,} cells", 5000)
         return True
 
@@ -493,6 +632,8 @@ class MainWindow(QtWidgets.QMainWindow):
         self.study_panel.show_finished(status)
         if path:
             self.results_file = path
+            self.settings.setValue("last_results", path)
+        self.refresh_runs()
         if status.startswith("failed"):
             self.show_error(status)
         elif not self._closing:
@@ -520,6 +661,24 @@ class MainWindow(QtWidgets.QMainWindow):
         return ok
 
     # ---- results -------------------------------------------------------------------------
+    def clear_result(self):
+        """No result behind the views (a new study was loaded): empty map, list and summary."""
+        self.session = None
+        self.result = None
+        self.results_file = None
+        self.selection.resize(0)
+        empty = ResultData(kind="", shape=(1, 1), x=np.zeros(1), y=np.zeros(1), x_label="", y_label="",
+                           measures={"inverse_condition": np.full(1, np.nan)})
+        self.map_view.set_result(empty)
+        self.map_view.data = None
+        self.hist_view.set_result(empty, "inverse_condition")
+        self.hist_view.data = None
+        self.pose_list.set_result(empty)
+        self.pose_list.model.data_ = None
+        self.summary_view.setHtml(tables_html({}))
+        self.scene.set_ghosts(None)
+        self._show_candidates()
+
     def show_result(self, data: ResultData):
         self.result = data
         self.selection.resize(data.size)
@@ -614,7 +773,10 @@ class MainWindow(QtWidgets.QMainWindow):
             ok = np.all(np.isfinite(q), axis=1)
             q = q[ok]
             mounts = mounts[ok] if mounts is not None else None
-        self.scene.set_ghosts(self.state.link_points(q, mounts) if q is not None and len(q) else None)
+        ghosts = self.state.link_points(q, mounts) if q is not None and len(q) else None
+        if ghosts is not None:
+            self._fit_scene(extra=ghosts.reshape(-1, 3))     # ghost arms stay inside the views
+        self.scene.set_ghosts(ghosts)
         self.status.showMessage(f"{sel.count} cells brushed; {0 if q is None else len(q)} shown as ghost arms", 5000)
 
     def pick_cell(self, c):
@@ -630,6 +792,7 @@ class MainWindow(QtWidgets.QMainWindow):
         if d.mount_fn is not None:
             self._place_arm(d.mount_fn(c))
         self.state.set_q(q)
+        self.map_view.mark_cell(c)
         x, y = d.cell_xy(c)
         self.status.showMessage(f"cell {c} ({d.x_label} {x:.4g}" + (f", {d.y_label} {y:.4g}" if y is not None else "")
                                 + ")", 6000)
@@ -661,7 +824,65 @@ class MainWindow(QtWidgets.QMainWindow):
             return
         p = self._ask_save("Export the layout report", "PDF (*.pdf);;HTML (*.html)", "report.pdf")
         if p:
-            self._guard(self.export_report, p)
+            try:
+                self.start_report(p)
+            except WorkbenchError as exc:
+                self.show_error(str(exc))
+
+    def start_report(self, path):
+        """Write the layout report of the results file behind the views in a worker thread; the
+        status bar shows its progress and the window stays live."""
+        from .resultfile import write_report
+
+        if self.report_thread is not None:
+            raise WorkbenchError("a report is being written: wait for it to finish")
+        if not self.results_file or not os.path.exists(self.results_file):
+            raise WorkbenchError("no results for a report: run a study or open a results file first")
+        src = self.results_file
+        self.report_worker = FunctionWorker(lambda progress: write_report(src, path, progress=progress))
+        self.report_progress = QtWidgets.QProgressBar()
+        self.report_progress.setRange(0, 100)
+        self.report_progress.setMaximumWidth(220)
+        self.report_progress.setFormat("report %p%")
+        self.status.addPermanentWidget(self.report_progress)
+        self.report_worker.progress.connect(self._report_progress)
+        self._report_path = path
+        self.report_worker.finished.connect(self._report_finished)   # a method: delivered on this thread
+        self.report_thread = start_worker(self.report_worker, self)
+        self.status.showMessage(f"writing the report {path} from {src}", 5000)
+
+    def _report_progress(self, f, text):
+        if np.isfinite(f):
+            self.report_progress.setValue(int(round(100 * f)))
+        if text:
+            self.status.showMessage(f"report: {text}", 3000)
+
+    def _report_finished(self, status, _result=None):
+        path = self._report_path
+        thread = self.report_thread
+        if thread is not None:
+            thread.quit()
+            thread.wait(10000)
+            thread.deleteLater()
+        self.report_thread = None
+        if self.report_worker is not None:
+            self.report_worker.deleteLater()
+        self.report_worker = None
+        self.status.removeWidget(self.report_progress)
+        self.report_progress.deleteLater()
+        if status.startswith("failed"):
+            self.show_error(status[len("failed: "):])
+        elif not self._closing:
+            self.status.showMessage(f"wrote {path}", 8000)
+
+    def _wait_report(self, timeout_ms=60000):
+        """Let a report being written finish (closing the window waits for it)."""
+        if self.report_thread is None:
+            return True
+        ok = self.report_thread.wait(timeout_ms)
+        QtCore.QCoreApplication.sendPostedEvents(None, 0)
+        QtWidgets.QApplication.processEvents()
+        return ok
 
     def _guard(self, fn, *a):
         try:
@@ -699,11 +920,14 @@ class MainWindow(QtWidgets.QMainWindow):
                 gen.setFileName(tmp)
                 gen.setSize(w.size())
                 gen.setViewBox(QtCore.QRect(0, 0, w.width(), w.height()))
+                # the axes and colour bar paint recorded pictures, which Qt scales by the ratio of
+                # the devices' resolutions: at the generator's default 72 dpi they came out at 0.75
+                gen.setResolution(w.logicalDpiX())
                 gen.setTitle(f"Manipulability Workbench map: {self.result.title}")
                 painter = QtGui.QPainter(gen)
                 w.render(painter)
                 painter.end()
-            os.replace(tmp, path)
+            _commit(tmp, path)
         finally:
             if os.path.exists(tmp):
                 os.unlink(tmp)
@@ -733,7 +957,7 @@ class MainWindow(QtWidgets.QMainWindow):
             with open(tmp, "w", encoding="utf-8") as fh:
                 fh.write(",".join(f'"{h}"' for h in head) + "\n")
                 np.savetxt(fh, table, delimiter=",", fmt="%.10g")
-            os.replace(tmp, path)
+            _commit(tmp, path)
         finally:
             if os.path.exists(tmp):
                 os.unlink(tmp)
@@ -748,7 +972,7 @@ class MainWindow(QtWidgets.QMainWindow):
         tmp = _atomic_target(path)
         try:
             shutil.copyfile(self.results_file, tmp)
-            os.replace(tmp, path)
+            _commit(tmp, path)
         finally:
             if os.path.exists(tmp):
                 os.unlink(tmp)
@@ -815,10 +1039,21 @@ class MainWindow(QtWidgets.QMainWindow):
         self.settings.setValue("central_splitter", self.central.saveState())
         self.settings.sync()
 
+    def _ask_quit_during_run(self) -> bool:
+        box = QtWidgets.QMessageBox(QtWidgets.QMessageBox.Question, "A study is running",
+                                    "A study is running. Stop it and quit? The chunks computed so far "
+                                    "stay in its results file.",
+                                    QtWidgets.QMessageBox.Yes | QtWidgets.QMessageBox.No, self)
+        box.setDefaultButton(QtWidgets.QMessageBox.No)
+        return box.exec() == QtWidgets.QMessageBox.Yes
+
     def closeEvent(self, ev):
+        """Quit: asks first while a study runs; never deletes a results file."""
+        if self.running and not self._closing and not self.confirm_quit():
+            ev.ignore()
+            return
         self._closing = True
         self.stop_run()
+        self._wait_report()
         self.save_layout()
-        if self.run_dir is not None:
-            shutil.rmtree(self.run_dir, ignore_errors=True)
         super().closeEvent(ev)

@@ -117,6 +117,12 @@ class MapView(QtWidgets.QWidget):
         self.roi = None
         self.lasso = None
         self._contour_stride = 1
+        # the picked cell: a ring that stays over the cell while other views change
+        self.pick_marker = pg.ScatterPlotItem(size=16, symbol="o", pen=pg.mkPen((220, 0, 0), width=3),
+                                              brush=None)
+        self.pick_marker.setZValue(30)
+        self.plot.addItem(self.pick_marker)
+        self.picked = None
         self.plot.scene().sigMouseClicked.connect(self._clicked)
         selection.subscribe(self._on_selection)
 
@@ -154,6 +160,7 @@ class MapView(QtWidgets.QWidget):
         self._toggle_lasso(False)
         self.lasso_btn.setChecked(False)
         self.overlay.clear()
+        self.mark_cell(None)
         self.refresh(final=True)
         self.image.setRect(self._rect)
         self.plot.getPlotItem().vb.autoRange(padding=0.02)
@@ -172,12 +179,26 @@ class MapView(QtWidgets.QWidget):
         self.measure_combo.blockSignals(False)
         self.image.clear()
         self.overlay.clear()
+        self.mark_cell(None)
         self.contour.setData(None)
         self.contour_shadow.setData(None)
 
     def set_threshold(self, t):
         self.threshold = float(t)
         self._update_contour()
+
+    def mark_cell(self, c):
+        """Ring the flat cell ``c`` (None: no mark) at its axis coordinates."""
+        self.picked = None if c is None else int(c)
+        d = self.data
+        if c is None or d is None:
+            self.pick_marker.setData([], [])
+            return
+        x, y = d.cell_xy(c)
+        if y is None:     # a series: the sample on its curve
+            v = display_values(d, self.measure)[int(c)] if self.measure in d.measures else np.nan
+            y = float(v) if np.isfinite(v) else 0.0
+        self.pick_marker.setData([x], [y])
 
     def refresh(self, final=True):
         """Redraw the image (new chunks or another measure); the contour when ``final``."""
@@ -189,7 +210,11 @@ class MapView(QtWidgets.QWidget):
         self.image.setImage(v, autoLevels=False, levels=(lo, hi))
         self.image.setRect(self._rect)
         self.cbar.setLevels((lo, hi))
-        self.cbar.axis.setLabel(measure_label(self.measure))
+        # the measure is named in the title: a colour-bar label stood beside the histogram's own
+        # y label and read as a second one
+        self.cbar.axis.showLabel(False)
+        self.plot.setTitle(f"{d.title or d.kind}: {measure_label(self.measure)}" if (d.title or d.kind)
+                           else measure_label(self.measure))
         if final:
             self._update_contour()
 
@@ -459,8 +484,11 @@ class PoseTableModel(QtCore.QAbstractTableModel):
         self.beginResetModel()
         self.data_ = data
         cols = [("cell", None)]
-        cols.append((data.x_label, "x"))
-        if data.is_map:
+        # an axis that is a joint is not repeated: the joint's column shows the same values
+        joint_axes = data.extras.get("axis_joints", {}) if data.has_poses and data.joint_names else {}
+        if "x" not in joint_axes:
+            cols.append((data.x_label, "x"))
+        if data.is_map and "y" not in joint_axes:
             cols.append((data.y_label, "y"))
         for m in data.measure_names:
             cols.append((MEASURE_LABELS.get(m, m), ("m", m)))

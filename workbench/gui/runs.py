@@ -10,7 +10,6 @@ the chunks already finished (the file is closed and marked incomplete).
 from __future__ import annotations
 
 import os
-import threading
 import tomllib
 
 import numpy as np
@@ -19,6 +18,7 @@ from PySide6 import QtCore
 from ..errors import WorkbenchError
 from ..studies import calibrate, get_kind, load_context
 from .resultdata import ResultData
+from .workers import Worker
 
 __all__ = ["StudySession", "StudyWorker", "session_from_spec", "session_from_results",
            "GUI_CHUNK_SECONDS"]
@@ -55,9 +55,13 @@ class StudySession:
         if arrays is None:
             arrays = {f.name: f.empty(plan.cells) for f in plan.fields}
         self.arrays = {k: np.asarray(v) for k, v in arrays.items()}   # each (cells, *field shape)
+        #: (plan.cells,) which cells of the plan's grid are computed (the views may show fewer
+        #: cells: a mount search's floor map reduces over styles, heights and yaws)
+        self.cells_done = np.zeros(plan.cells, bool) if done is None else \
+            np.asarray(done, bool).reshape(-1).copy()
         self.data = self._result_data()
-        if done is not None:
-            self.data.done[:] = np.asarray(done, bool).reshape(-1)
+        if done is not None and self.data.size == plan.cells:
+            self.data.done[:] = self.cells_done
 
     def estimate(self):
         """:class:`workbench.studies.Estimate` (times a few cells)."""
@@ -183,6 +187,12 @@ class StudySession:
                           joint_kinds=tuple(j.kind for j in arm.model.joints),
                           title=(self.spec.name if self.spec is not None else "") or self.kind.title,
                           threshold_measure=thr)
+        # which map axes are joints (their values are also the joint columns of the pose list)
+        names = list(arm.names)
+        ax_x = axes[1] if len(axes) == 2 else (axes[0] if len(axes) == 1 else None)
+        ax_y = axes[0] if len(axes) == 2 else None
+        data.extras["axis_joints"] = {k: names.index(a.name) for k, a in (("x", ax_x), ("y", ax_y))
+                                      if a is not None and a.name in names and data.has_poses}
         if "tcp" in self.arrays and self.arrays["tcp"].shape[1:] == (3,):
             data.tcp = self.arrays["tcp"]
         if len(axes) == 1 and axes[0].name == "sample" and plan.kind != "path_audit":
@@ -194,13 +204,13 @@ class StudySession:
         for name, v in arrays.items():
             if name in self.arrays:
                 self.arrays[name][start:stop] = np.asarray(v).reshape((stop - start,) + self.arrays[name].shape[1:])
-        if self.plan.kind == "mount_search":
-            return
-        self.data.done[start:stop] = True
+        self.cells_done[start:stop] = True
+        if self.data.size == self.plan.cells:
+            self.data.done[start:stop] = True
 
     @property
     def complete(self) -> bool:
-        return bool(self.data.done.all())
+        return bool(self.cells_done.all())
 
 
 def session_from_spec(spec, arm=None, cell=None) -> StudySession:
@@ -240,22 +250,22 @@ def session_from_results(res) -> StudySession:
     return s
 
 
-class StudyWorker(QtCore.QObject):
-    """Runs a study with :func:`workbench.runner.run_study` in a worker thread; signals only.
+class StudyWorker(Worker):
+    """Runs a study with :func:`workbench.runner.run_study` in a worker thread; signals only
+    (the :class:`~workbench.gui.workers.Worker` ones, and two of its own).
 
     Signals
     -------
     chunk_finished(int, int, object)
         start, stop, ``{field: array}`` of a finished chunk.
-    progress(int, int, float)
+    cells(int, int, float)
         cells done, cells total, seconds left (NaN while unknown).
     finished(str, object)
         "done", "cancelled" or "failed: <message>", and the results file path (or None).
     """
 
     chunk_finished = QtCore.Signal(int, int, object)
-    progress = QtCore.Signal(int, int, float)
-    finished = QtCore.Signal(str, object)
+    cells = QtCore.Signal(int, int, float)
 
     def __init__(self, spec, out_path, executor="inprocess", chunk_seconds=GUI_CHUNK_SECONDS):
         super().__init__()
@@ -263,37 +273,27 @@ class StudyWorker(QtCore.QObject):
         self.out_path = out_path
         self.executor = executor
         self.chunk_seconds = chunk_seconds
-        self._cancel = threading.Event()
+        self._incomplete = False
 
-    def cancel(self):
-        """Ask the runner to stop after the current chunk (thread-safe)."""
-        self._cancel.set()
+    def status_of(self, result) -> str:
+        return "cancelled" if (self.cancelled and self._incomplete) else "done"
 
-    @property
-    def cancelled(self) -> bool:
-        return self._cancel.is_set()
-
-    @QtCore.Slot()
-    def run(self):
+    def work(self):
         from ..runner import prepare, run_study
 
         def on_chunk(chunk, arrays):
             self.chunk_finished.emit(chunk.start, chunk.stop, {k: np.array(v) for k, v in arrays.items()})
 
         def progress(done, total, eta):
-            self.progress.emit(int(done), int(total), float(eta))
+            self.cells.emit(int(done), int(total), float(eta))
+            self.progress.emit(done / max(total, 1), "")
 
-        try:
-            study = prepare(self.spec)
-            if study.plan.n_chunks > 1:
-                study = self.spec    # let the runner size the chunks (about chunk_seconds each)
-            # else: the kind wants the whole grid in one chunk (a path audit tracks each path from
-            # its start), so run its own plan as it is
-            res = run_study(study, out=self.out_path, executor=self.executor, progress=progress,
-                            cancel=self._cancel, on_chunk=on_chunk, chunk_seconds=self.chunk_seconds)
-            status = "cancelled" if (self._cancel.is_set() and res.incomplete) else "done"
-            self.finished.emit(status, self.out_path if os.path.exists(self.out_path) else None)
-        except WorkbenchError as exc:
-            self.finished.emit(f"failed: {exc}", None)
-        except Exception as exc:  # a bug in a kind: report it, never take the window down
-            self.finished.emit(f"failed: {exc.__class__.__name__}: {exc}", None)
+        study = prepare(self.spec)
+        if study.plan.n_chunks > 1:
+            study = self.spec    # let the runner size the chunks (about chunk_seconds each)
+        # else: the kind wants the whole grid in one chunk (a path audit tracks each path from
+        # its start), so run its own plan as it is
+        res = run_study(study, out=self.out_path, executor=self.executor, progress=progress,
+                        cancel=self._cancel, on_chunk=on_chunk, chunk_seconds=self.chunk_seconds)
+        self._incomplete = bool(res.incomplete)
+        return self.out_path if os.path.exists(self.out_path) else None

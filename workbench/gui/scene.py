@@ -16,7 +16,7 @@ from PySide6 import QtCore, QtGui, QtWidgets
 from .cellview import CellContent, box_edges
 from .posestate import ELLIPSOID_DRAW_SCALE, PoseInfo
 
-__all__ = ["make_scene", "Scene2D", "gl_available", "VIEWS"]
+__all__ = ["make_scene", "Scene2D", "gl_available", "VIEWS", "camera_distance"]
 
 VIEWS = ("iso", "top", "front", "side")
 AXIS_LEN = 0.12         # m, TCP frame axes as drawn
@@ -332,12 +332,19 @@ class Scene3D(QtWidgets.QWidget):
         self.cands.setData(pos=pts, color=np.asarray(col, float))
 
     def fit(self, lo, hi):
-        """Aim the camera at the box [lo, hi] (3,) (m)."""
+        """Aim the camera at the box [lo, hi] (3,) (m): the whole box in view from any side."""
         lo, hi = np.asarray(lo, float), np.asarray(hi, float)
+        self._bounds = (lo, hi)
         c = (lo + hi) / 2
         self._centre = QtGui.QVector3D(float(c[0]), float(c[1]), float(c[2]))
-        self._distance = float(0.95 * np.linalg.norm(hi - lo))
+        self._distance = camera_distance(lo, hi, self.view.opts.get("fov", 60),   # the view fills this widget
+                                         max(self.width(), 1), max(self.height(), 1))
         self.set_view(getattr(self, "view_name", "iso"))
+
+    def resizeEvent(self, ev):
+        super().resizeEvent(ev)
+        if getattr(self, "_bounds", None) is not None:   # a narrower window needs the camera further off
+            self.fit(*self._bounds)
 
     def set_view(self, name):
         if name not in VIEWS:
@@ -350,6 +357,20 @@ class Scene3D(QtWidgets.QWidget):
 
     def ghost_count(self) -> int:
         return 0 if self._ghosts is None else len(self._ghosts)
+
+
+def camera_distance(lo, hi, fov_deg, width, height, margin=1.08) -> float:
+    """How far a perspective camera aimed at the centre of the box [lo, hi] must stand so the whole
+    box is in view from any direction: the box's bounding sphere (radius r) must fit in the
+    narrower of the two view angles, d = r / sin(half angle) (common practice).
+
+    ``fov_deg`` is the horizontal field of view (as pyqtgraph's GLViewWidget uses it); the
+    vertical half angle is atan(tan(fov / 2) * height / width).
+    """
+    r = 0.5 * float(np.linalg.norm(np.asarray(hi, float) - np.asarray(lo, float)))
+    th = np.tan(np.radians(fov_deg) / 2)
+    half = np.arctan(th * min(1.0, height / width))
+    return float(margin * max(r, 1e-3) / np.sin(half))
 
 
 def _c(rgb, a=1.0):

@@ -51,7 +51,9 @@ def main(argv=None):
     from .main_window import MainWindow
 
     app = make_app()
-    settings = QtCore.QSettings(os.path.join(tempfile.mkdtemp(), "s.ini"), QtCore.QSettings.IniFormat)
+    tmp = tempfile.mkdtemp()
+    settings = QtCore.QSettings(os.path.join(tmp, "s.ini"), QtCore.QSettings.IniFormat)
+    settings.setValue("project_dir", os.path.join(tmp, "runs"))
     win = MainWindow(settings=settings)
     win.resize(*SIZE)
     win.move(0, 0)

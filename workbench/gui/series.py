@@ -68,6 +68,8 @@ def show_series(view, data, threshold):
     view.legend.setText("orange: brushed; the scene shows the TCP points coloured by the measure" if unordered
                         else f"red bands: near singular (1/k < {threshold:g}); orange: brushed")
     plot.getPlotItem().vb.autoRange(padding=0.02)
+    if getattr(view, "picked", None) is not None and view.picked < data.size:
+        view.mark_cell(view.picked)     # the ring follows the measure shown
 
     def brush(lo, hi, final=True):
         sel.set_mask(range_mask(x, lo, hi), source="series", final=final)

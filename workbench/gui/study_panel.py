@@ -11,11 +11,39 @@ from PySide6 import QtCore, QtWidgets
 from ..errors import WorkbenchError
 from ..studies import StudySpec, get_kind, kind_names
 from ..studies.base import unused_note
-from .formlogic import check_fields, format_value, unit_hint
+from .formlogic import check_fields, choices, format_value, unit_hint
 
 __all__ = ["StudyPanel"]
 
-BAD_STYLE = "QLineEdit { border: 2px solid #c02020; background: #fff0f0; }"
+BAD_STYLE = "QLineEdit, QComboBox { border: 2px solid #c02020; background: #fff0f0; }"
+
+
+class ChoiceEdit(QtWidgets.QComboBox):
+    """A drop-down for a choice setting with the text interface of a line edit (``text``,
+    ``setText``, ``textChanged``), so the form treats every field alike. Editable lists also take
+    text typed in (task rows "0,1,2", frame "joint:3")."""
+
+    textChanged = QtCore.Signal(str)
+
+    def __init__(self, values, editable=False, parent=None):
+        super().__init__(parent)
+        self.setEditable(editable)
+        self.addItems(list(values))
+        self.currentTextChanged.connect(self.textChanged.emit)
+
+    def text(self) -> str:
+        return self.currentText()
+
+    def setText(self, t: str):
+        i = self.findText(t)
+        if i < 0:
+            if not self.isEditable():
+                self.addItem(t)        # a value from a file the list does not name: shown, checked
+                i = self.count() - 1
+            else:
+                self.setEditText(t)
+                return
+        self.setCurrentIndex(i)
 
 
 def _fmt_time(s):
@@ -169,7 +197,12 @@ class StudyPanel(QtWidgets.QWidget):
         self.edits, self.reasons = {}, {}
         for r, (key, value) in enumerate(settings.items()):
             lab = QtWidgets.QLabel(key.replace("_", " "))
-            edit = QtWidgets.QLineEdit(format_value(value))
+            offered = choices(self.kind.name, key, self.arm, value)
+            if offered is not None:
+                edit = ChoiceEdit(offered[0], offered[1])
+                edit.setText(format_value(value) if not isinstance(value, str) else value)
+            else:
+                edit = QtWidgets.QLineEdit(format_value(value))
             edit.setObjectName(f"setting_{key}")
             edit.setMinimumWidth(110)
             edit.textChanged.connect(lambda _t: self._check_timer.start())

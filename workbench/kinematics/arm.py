@@ -1,7 +1,10 @@
 """`Arm`: the kinematic face of an :class:`~workbench.arm.model.ArmModel`.
 
 ``fk``, ``jacobian`` and ``singular_values`` take joint values shaped (..., n) (rad / m) and run the
-compiled batch kernels of :mod:`workbench.kinematics.kernels`; one pose is a batch of one.
+compiled batch kernels; one pose is a batch of one. Jacobians, singular values and measures use
+the structure-of-arrays kernels of :mod:`workbench.kinematics.lanes` for chains of up to
+``lanes.MAX_JOINTS`` joints and the per-pose kernels of :mod:`workbench.kinematics.kernels`
+otherwise (and for ``fk`` / ``frames``).
 """
 from __future__ import annotations
 
@@ -9,7 +12,7 @@ import numpy as np
 
 from ..arm.model import ArmError, ArmModel
 from ..arm.transforms import inverse_transform
-from . import kernels
+from . import kernels, lanes
 from .reference import numeric_jacobian
 from .rows import parse_rows, row_scale
 
@@ -126,6 +129,7 @@ class Arm:
         out = np.empty((Q.shape[0], 4, 4))
         m = self.model
         kernels.dynamic_schedule()
+        kernels.announce_compile("kernels")
         kernels.fk_batch(Q, m.origins, m.axes, m.kinds, k, off, np.ascontiguousarray(pre), out)
         return out.reshape(lead + (4, 4))
 
@@ -136,6 +140,7 @@ class Arm:
         out = np.empty((Q.shape[0], m.n, 4, 4))
         pre = self.model.mount if world else np.eye(4)
         kernels.dynamic_schedule()
+        kernels.announce_compile("kernels")
         kernels.frames_batch(Q, m.origins, m.axes, m.kinds, np.ascontiguousarray(pre), out)
         return out.reshape(lead + (m.n, 4, 4))
 
@@ -149,8 +154,22 @@ class Arm:
         m = self.model
         out = np.empty((Q.shape[0], 6, m.n))
         kernels.dynamic_schedule()
-        kernels.jacobian_batch(Q, m.origins, m.axes, m.kinds, k, off, self._rot(world), out)
+        if lanes.covers(m.n):
+            G, kinds, A = self._lane_chain()
+            kernels.announce_compile("lanes")
+            lanes.jacobian_lanes(Q, G, kinds, k, lanes.canonical_offset(A, k, off), self._rot(world), out)
+        else:
+            kernels.announce_compile("kernels")
+            kernels.jacobian_batch(Q, m.origins, m.axes, m.kinds, k, off, self._rot(world), out)
         return out.reshape(lead + (6, m.n))
+
+    def _lane_chain(self):
+        """(G, kinds, A) of :func:`workbench.kinematics.lanes.canonical_chain`, made once per arm."""
+        hit = self.__dict__.get("_lanes_chain")
+        if hit is None:
+            hit = lanes.canonical_chain(self.model)
+            self.__dict__["_lanes_chain"] = hit
+        return hit
 
     def numeric_jacobian(self, q, frame="tcp", point=None, world=False, h=1e-6):
         """Central-difference Jacobian (..., 6, n), for cross-checks."""
@@ -162,6 +181,15 @@ class Arm:
         ``length`` is the characteristic length (m) dividing translational rows when the selection
         mixes translation and rotation; default: the arm's characteristic length.
         """
+        return self._sv_map(q, frame, rows, length, point, world, False)
+
+    def pose_measures(self, q, frame="tcp", rows="full", length=None, point=None, world=False) -> dict:
+        """Fused FK -> Jacobian -> singular values and measures, as
+        :func:`workbench.measures.measures_from_sv` gives them: ``manipulability``, ``condition``,
+        ``inverse_condition``, ``min_sv`` (...) and ``sv`` (..., m)."""
+        return self._sv_map(q, frame, rows, length, point, world, True)
+
+    def _sv_map(self, q, frame, rows, length, point, world, with_measures):
         Q, lead = self._prep(q)
         k, off = self.resolve_frame(frame, point)
         r = np.asarray(parse_rows(rows), dtype=np.int64)
@@ -169,10 +197,22 @@ class Arm:
             length = self.nominal_reach()
         scale = row_scale(tuple(r), length)
         m = self.model
-        out = np.empty((Q.shape[0], len(r)))
+        N = Q.shape[0]
+        out = np.empty((N, len(r)))
         kernels.dynamic_schedule()
-        kernels.sv_map_batch(Q, m.origins, m.axes, m.kinds, k, off, self._rot(world), r, scale, out)
-        return out.reshape(lead + (len(r),))
+        if lanes.covers(m.n):
+            G, kinds, A = self._lane_chain()
+            w, cond, inv = lanes._outs(N, with_measures)
+            kernels.announce_compile("lanes")
+            lanes.sv_map_lanes(Q, G, kinds, k, lanes.canonical_offset(A, k, off), self._rot(world), r, scale,
+                               lanes.sweeps_for(len(r), m.n), out, w, cond, inv)
+            if with_measures:
+                return lanes.measures_dict(out, w, cond, inv, lead, len(r))
+        else:
+            kernels.announce_compile("kernels")
+            kernels.sv_map_batch(Q, m.origins, m.axes, m.kinds, k, off, self._rot(world), r, scale, out)
+        sv = out.reshape(lead + (len(r),))
+        return lanes.measures_from_sv(sv) if with_measures else sv
 
     # ------------------------------------------------------------------------------------------
     def characteristic_length(self) -> float:

@@ -278,6 +278,9 @@ def solve_ik(arm, T_goal, seeds=8, orientation="fixed", q_seed=None, pos_tol=1e-
     out_iter = np.empty((N, slots), dtype=np.int32)
     m = arm.model
     if N:
+        from .kernels import announce_compile
+
+        announce_compile("ik")
         _k.ik_batch(goals, np.ascontiguousarray(common), user, *pool, n_near, NEAR_CANDIDATES, NEAR_SPREAD, m.origins, m.axes, m.kinds,
                     np.ascontiguousarray(m.tcp_offset), lower, upper, mode, 1.0 / L, cap, center, reach,
                     float(pos_tol), float(rot_tol), int(max_iter), W0, LAMBDA0, MAX_STEP, wrap, bool(all_solutions),
@@ -326,6 +329,9 @@ def target_seeds(arm, T_goal, seeds=8, orientation="fixed", rng=0) -> np.ndarray
     n_near = min(NEAR, common.shape[0] - 1)
     pool = seed_pool(arm, rng)
     idx = np.empty((goals.shape[0], n_near), dtype=np.int64)
+    from .kernels import announce_compile
+
+    announce_compile("ik")
     _k.near_seeds_batch(goals, *pool[:6], n_near, NEAR_CANDIDATES, NEAR_SPREAD, arm.model.kinds, mode, 1.0 / float(arm.nominal_reach()), idx)
     rest = np.concatenate([common[:1], common[1 + n_near:]])
     out = np.concatenate([pool[0][idx], np.broadcast_to(rest, (goals.shape[0],) + rest.shape)], axis=1)
@@ -355,7 +361,15 @@ def _joint_distance(arm, a, b):
     return np.max(np.abs(d), axis=-1)
 
 
-def distinct_solutions(arm, q, status, tol=1e-3) -> np.ndarray:
+#: two converged solutions up to this far apart (rad or m, largest joint) are the same solution when
+#: the joint-space midpoint between them still reaches their pose (see :func:`distinct_solutions`)
+SAME_SPAN = 0.25
+#: ... to within this position (m) and orientation (rad)
+SAME_POS_TOL = 1e-5
+SAME_ROT_TOL = 1e-5
+
+
+def distinct_solutions(arm, q, status, tol=1e-3, span=SAME_SPAN) -> np.ndarray:
     """Mask of distinct converged solutions among the seeds of each target.
 
     Parameters
@@ -368,6 +382,13 @@ def distinct_solutions(arm, q, status, tol=1e-3) -> np.ndarray:
     tol : float
         Two solutions are the same when every joint differs by at most ``tol`` (rad or m);
         revolute differences are wrapped to [-pi, pi), so q and q + 2 pi count as one.
+    span : float
+        Near a singularity the solver stops anywhere in a small set of poses that all reach the
+        target (at a smallest singular value of 4e-5 a position tolerance of 1e-6 m leaves 0.03 rad
+        of play): two solutions up to ``span`` apart are also the same when the midpoint between
+        them reaches the same position (within :data:`SAME_POS_TOL`) and, where both have the same
+        orientation, the same orientation (:data:`SAME_ROT_TOL`). Distinct branches (elbow up and
+        down, shoulder turned by half a turn) fail that test: the midpoint is off the target.
 
     Returns
     -------
@@ -379,18 +400,46 @@ def distinct_solutions(arm, q, status, tol=1e-3) -> np.ndarray:
     ok = status == CONVERGED
     K = q.shape[-2]
     keep = np.zeros(ok.shape, dtype=bool)
+    rev = arm.model.kinds == 0
+    T = None
     for a in range(K):
         new = ok[..., a].copy()
         for b in range(a):
-            same = _joint_distance(arm, q[..., a, :], q[..., b, :]) <= tol
+            dist = _joint_distance(arm, q[..., a, :], q[..., b, :])
+            same = dist <= tol
+            near = new & keep[..., b] & ~same & (dist <= span)
+            if np.any(near):
+                if T is None:
+                    T = np.asarray(arm.fk(np.where(ok[..., None], q, 0.0)), dtype=float)  # (..., K, 4, 4)
+                idx = np.nonzero(near)
+                qa, qb = q[..., a, :][idx], q[..., b, :][idx]
+                d = qa - qb
+                d = np.where(rev, (d + np.pi) % (2 * np.pi) - np.pi, d)
+                Tm = np.asarray(arm.fk(qb + 0.5 * d), dtype=float)
+                Ta, Tb = T[..., a, :, :][idx], T[..., b, :, :][idx]
+                pos = np.maximum(np.linalg.norm(Tm[:, :3, 3] - Ta[:, :3, 3], axis=-1),
+                                 np.linalg.norm(Tm[:, :3, 3] - Tb[:, :3, 3], axis=-1)) <= SAME_POS_TOL
+                same_rot = _rot_angle(Ta[:, :3, :3], Tb[:, :3, :3]) <= SAME_ROT_TOL
+                rot = ~same_rot | (_rot_angle(Tm[:, :3, :3], Ta[:, :3, :3]) <= SAME_ROT_TOL)
+                merged = np.zeros(near.shape, dtype=bool)
+                merged[idx] = pos & rot
+                same = same | merged
             new &= ~(keep[..., b] & same)
         keep[..., a] = new
     return keep
 
 
-def count_solutions(arm, q, status, tol=1e-3) -> np.ndarray:
+def _rot_angle(Ra, Rb):
+    """Angle (rad) of the rotation between (..., 3, 3) rotations (robust near 0)."""
+    D = np.swapaxes(Ra, -1, -2) @ Rb
+    skew = np.stack([D[..., 2, 1] - D[..., 1, 2], D[..., 0, 2] - D[..., 2, 0], D[..., 1, 0] - D[..., 0, 1]], -1)
+    tr = D[..., 0, 0] + D[..., 1, 1] + D[..., 2, 2]
+    return np.arctan2(0.5 * np.linalg.norm(skew, axis=-1), 0.5 * (tr - 1.0))
+
+
+def count_solutions(arm, q, status, tol=1e-3, span=SAME_SPAN) -> np.ndarray:
     """Number of distinct converged solutions per target, (...) int; see :func:`distinct_solutions`."""
-    return distinct_solutions(arm, q, status, tol).sum(axis=-1)
+    return distinct_solutions(arm, q, status, tol, span).sum(axis=-1)
 
 
 # ----------------------------------------------------------------------------------------------

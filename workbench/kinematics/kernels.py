@@ -348,6 +348,68 @@ def dynamic_schedule() -> None:
         _THREAD_STATE.dynamic = True
 
 
+# ----------------------------------------------------------------------------------------------
+# first-use compilation: say so on stderr, with the expected time
+
+#: Kernel groups: (label, expected first compile in s on a quiet 2-core machine, dispatchers).
+#: The times were measured with an empty numba cache (see DEVELOPERS.md, "Compiled kernels").
+COMPILE_SECONDS = {"kernels": 20, "lanes": 35, "ik": 50}
+_CHECKED: set = set()
+
+
+def _group(name):
+    if name == "kernels":
+        return [fk_batch, frames_batch, jacobian_batch, sv_batch, sv_map_batch], warm_up
+    if name == "lanes":
+        from . import lanes
+
+        return [lanes.sv_map_lanes, lanes.jacobian_lanes, lanes.sv_lanes], lanes.warm_up
+    if name == "ik":
+        from . import ik, ik_kernels
+
+        return [ik_kernels.ik_batch, ik_kernels.near_seeds_batch], ik.warm_up
+    raise KeyError(name)
+
+
+def is_ready(dispatcher) -> bool:
+    """Whether a numba dispatcher runs without compiling: compiled in this process, or an on-disk
+    cache entry for this source and this CPU exists (numba's own index; any doubt counts as not
+    ready)."""
+    if dispatcher.signatures:
+        return True
+    try:
+        cache = dispatcher._cache
+        index = cache._cache_file._load_index()
+        tail = cache._index_key((), dispatcher.targetctx.codegen())[1:]
+        return any(tuple(key[1:]) == tuple(tail) for key in index)
+    except Exception:  # pragma: no cover - numba internals moved: assume a compile
+        return False
+
+
+def announce_compile(name, stream=None) -> bool:
+    """Before the first use of a kernel group in a process: when any of its kernels would compile
+    (no fresh on-disk cache), print ``compiling <group> kernels (first use, about N s)...`` on
+    stderr and compile the whole group at once. Returns True when it compiled. Cheap after the
+    first call (one set lookup)."""
+    if name in _CHECKED:
+        return False
+    _CHECKED.add(name)
+    dispatchers, warm = _group(name)
+    if all(is_ready(d) for d in dispatchers):
+        return False
+    import sys
+    import time
+
+    stream = sys.stderr if stream is None else stream
+    label = {"kernels": "kinematics", "lanes": "vector", "ik": "inverse-kinematics"}[name]
+    print(f"compiling {label} kernels (first use, about {COMPILE_SECONDS[name]} s; cached afterwards)...",
+          file=stream, flush=True)
+    t = time.perf_counter()
+    warm()
+    print(f"compiled {label} kernels in {time.perf_counter() - t:.0f} s", file=stream, flush=True)
+    return True
+
+
 def warm_up() -> None:
     """Compile (or load from the on-disk cache) every kernel on a tiny batch."""
     n = 2

@@ -320,7 +320,8 @@ def _cell_blocks(cell) -> list:
     out.append(D.Table(["work point", "x (mm)", "y (mm)", "z (mm)", "orientation rule", "tolerance (mm)"], rows,
                        "Work points of the cell", align=["l", "r", "r", "r", "l", "r"]))
     if cell.paths:
-        rows = [[p.name, " → ".join(p.point_names()), fmt_mm(p.speed), p.rule] for p in cell.paths]
+        rows = [[p.name, " → ".join(p.point_names()) or f"rows of {os.path.basename(p.csv or '')}", fmt_mm(p.speed),
+                 p.rule] for p in cell.paths]
         out.append(D.Table(["path", "through", "tool speed (mm/s)", "orientation rule"], rows, "Paths of the cell",
                            widths=[1.3, 4, 1.2, 1.2], align=["l", "l", "r", "l"]))
     sol = G.solids(cell)

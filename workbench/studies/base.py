@@ -515,33 +515,61 @@ SAMPLE_KEEP_BYTES = 64 << 20
 
 
 def calibrate(kind: StudyKind, plan: Plan, arm, cell, sample_cells: int = 65536,
-              min_seconds: float = 0.02) -> Estimate:
+              min_seconds: float = 0.03, repeats: int = 3, max_seconds: float = 1.5,
+              clock=time.perf_counter) -> Estimate:
     """Time ``compute_chunk`` on the first cells of the grid and extrapolate.
 
-    A first call on 8 cells pays any compile / warm-up cost and is not used; then the sample grows
-    8-fold from 8 cells until one call takes ``min_seconds`` (or reaches ``sample_cells`` or the
-    grid), so calibrating costs well under a second even for slow kinds. Returns an
-    :class:`Estimate` at the speed of the calling process (all its threads), with the last
-    call's output as ``sample`` (cells [0, n) of the grid; the runner does not compute them again).
+    A first call on 8 cells pays any compile / warm-up cost and is not used. Then the sample grows
+    from 8 cells (by the factor that should bring one call to about twice ``min_seconds``, between
+    2x and 8x) until one call takes ``min_seconds`` or the sample reaches ``sample_cells`` or the
+    grid. A single slow call cannot decide: the size where growth stops is timed ``repeats`` times
+    (fewer once the calls there have taken ``max_seconds``) and the **median** is used; when that
+    median is under ``min_seconds`` after all (the slow call was a pause of the machine, not the
+    work), the sample keeps growing. Pauses only ever lengthen a timing, so the median of three
+    is off only when two of three calls were paused.
+
+    Returns an :class:`Estimate` at the speed of the calling process (all its threads), with the
+    last call's output as ``sample`` (cells [0, n) of the grid; the runner does not compute them
+    again). ``clock`` is the timer (tests give a simulated one).
     """
     cells = plan.cells
     if cells == 0:
         return Estimate(0, 0, 0, 0.0, 0.0)
     kind.compute_chunk(plan, arm, cell, Chunk(0, 0, min(cells, 8)))  # warm (compile / caches)
+    cap = min(cells, sample_cells)
     n = min(cells, 8)
+
+    def timed(k):
+        t0 = clock()
+        out = kind.compute_chunk(plan, arm, cell, Chunk(0, 0, k))
+        return clock() - t0, out
+
     while True:
-        t0 = time.perf_counter()
-        arrays = kind.compute_chunk(plan, arm, cell, Chunk(0, 0, n))
-        dt = time.perf_counter() - t0
-        if dt >= min_seconds or n >= min(cells, sample_cells):
-            break
-        n = min(cells, sample_cells, n * 8)
+        dt, arrays = timed(n)
+        if dt < min_seconds and n < cap:  # clearly too short to time: grow (a pause only lengthens)
+            n = _grow(n, dt, min_seconds, cap)
+            continue
+        times = [dt]
+        while len(times) < max(1, repeats) and sum(times) < max_seconds:
+            dt, arrays = timed(n)
+            times.append(dt)
+        dt = float(np.median(times))
+        if dt < min_seconds and n < cap:  # the slow call was a pause: keep growing
+            n = _grow(n, dt, min_seconds, cap)
+            continue
+        break
     spc = dt / n
     keep = n * plan.cell_bytes <= SAMPLE_KEEP_BYTES
     return Estimate(cells=cells, result_bytes=plan.result_bytes,
                     chunk_bytes=min(cells, plan.chunk_cells) * plan.cell_bytes,
                     seconds_per_cell=spc, seconds=spc * cells,
                     sample=(Chunk(0, 0, n), arrays) if keep else None)
+
+
+def _grow(n: int, dt: float, min_seconds: float, cap: int) -> int:
+    """The next calibration sample size: about 2 * min_seconds per call, 2x to 8x the last."""
+    factor = 8.0 if dt <= 0 else min(8.0, max(2.0, 2.0 * min_seconds / dt))
+    return int(min(cap, max(n + 1, round(n * factor))))
 
 
 def _fmt_bytes(b: float) -> str:

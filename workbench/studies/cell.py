@@ -27,11 +27,27 @@ z up, the floor at z = 0)::
     orientation = "fixed"              # optional: "fixed" (slerp between the points' rpy), "axis"
                                        # or "free"; default: the rule of the start point
 
-    [[box]]                            # optional: fixed equipment, drawn only (no collision checks)
+    [[box]]                            # optional: fixed equipment, an obstacle of the clearance checks
     name = "conveyor"
     center = [1.0, -0.6, 0.4]
     size = [2.0, 0.5, 0.8]             # full edge lengths along the box's own x, y, z
     yaw = 0                            # optional, deg about z
+    collide = true                     # optional: false = drawn only, not an obstacle
+
+    [[cylinder]]                       # optional: a pillar (obstacle)
+    name = "column"
+    center = [1.5, 0.0, 1.5]           # centre of the cylinder
+    radius = 0.2
+    height = 3.0                       # along its axis
+    axis = [0, 0, 1]                   # optional, default vertical
+    collide = true                     # optional
+
+    [[keep_out]]                       # optional: a box the arm must not enter (e.g. where an
+    name = "operator"                  # operator stands); same keys as [[box]] but no 'collide'
+    center = [-1.0, 0.0, 1.0]
+    size = [0.8, 0.8, 2.0]
+
+The floor (z = 0) is an obstacle unless ``[cell] floor = false``.
 
     [mount]                            # the candidate region of the mount search
     x = [-0.5, 0.5]                    # range of the base origin x (length unit)
@@ -45,6 +61,11 @@ z up, the floor at z = 0)::
     [placement]                        # optional: the chosen mount (used by path audit and load map)
     xyz = [0.2, 0.0, 0.3]
     rpy = [0, 0, 90]
+
+    [requirements]                     # optional: what the work asks (workbench.studies.requirements)
+    force = [0, 0, 150]                # N the tool exerts (tool frame unless wrench_frame = "cell")
+    payload = 12.0                     # kg, with payload_com (offset from the TCP, tool frame)
+    # per point / per path: requirements = {force = [0, 0, 200], time = 8.0} inside [[point]] / [[path]]
 
 Mount styles: a candidate base frame is ``T(x, y, h) @ Rz(yaw) @ Ry(tilt)`` with tilt 0 (floor,
 base z up), 90 (wall: base z horizontal, pointing along the yaw direction), 180 (ceiling, base z
@@ -66,8 +87,9 @@ import numpy as np
 
 from ..arm.transforms import inverse_transform, make_transform, rot_y, rot_z, translation
 from ..errors import WorkbenchError
+from ..limits import MAX_CELL_COORD, MAX_MAGNITUDE, MAX_TEXT_BYTES, check_toml_text
 
-__all__ = ["CellFileError", "Cell", "WorkPoint", "Path", "Segment", "Box", "MountRegion",
+__all__ = ["CellFileError", "Cell", "WorkPoint", "Path", "Segment", "Box", "Cylinder", "MountRegion",
            "read_cell_file", "parse_cell_text", "mount_transforms", "style_tilt", "PathSamples",
            "sample_path", "candidate_grid", "relative_targets", "ORIENTATION_RULES",
            "MAX_MOUNT_CANDIDATES"]
@@ -77,11 +99,16 @@ STYLE_TILTS = {"floor": 0.0, "wall": 90.0, "ceiling": 180.0}
 MAX_MOUNT_CANDIDATES = 2_000_000
 _DEG = math.pi / 180.0
 _UNITS = {"m": 1.0, "mm": 1e-3}
-_TOP = {"cell", "point", "path", "box", "mount", "placement"}
-_CELL_KEYS = {"name", "description", "length_unit"}
-_POINT_KEYS = {"name", "xyz", "orientation", "rpy", "axis", "tolerance", "angle_tolerance"}
-_PATH_KEYS = {"name", "speed", "through", "start", "segments", "orientation"}
-_BOX_KEYS = {"name", "center", "size", "yaw"}
+_TOP = {"cell", "point", "path", "box", "mount", "placement", "requirements", "cylinder", "keep_out",
+        "trajectory", "embedded_csv"}
+_CELL_KEYS = {"name", "description", "length_unit", "floor"}
+_POINT_KEYS = {"name", "xyz", "orientation", "rpy", "axis", "tolerance", "angle_tolerance", "requirements"}
+_PATH_KEYS = {"name", "speed", "through", "start", "segments", "orientation", "requirements", "csv", "columns",
+              "rotation", "csv_unit"}
+_TRAJ_KEYS = {"name", "csv", "time", "joints", "angle_unit", "csv_unit", "time_unit", "requirements"}
+_BOX_KEYS = {"name", "center", "size", "yaw", "collide"}
+_KEEP_KEYS = {"name", "center", "size", "yaw"}
+_CYL_KEYS = {"name", "center", "radius", "height", "axis", "collide"}
 _MOUNT_KEYS = {"x", "y", "step", "step_x", "step_y", "heights", "yaws", "style"}
 _PLACE_KEYS = {"xyz", "rpy"}
 
@@ -139,8 +166,12 @@ class Path:
     segments: tuple[Segment, ...]
     speed: float
     rule: str
+    poses: np.ndarray | None = field(default=None, compare=False)   # a path from a CSV file: its rows (cell frame)
+    csv: str | None = None                                           # that file
 
     def point_names(self) -> list[str]:
+        if self.poses is not None:
+            return []
         out = [self.start]
         for s in self.segments:
             if s.via:
@@ -151,12 +182,20 @@ class Path:
 
 @dataclass(frozen=True, eq=False)
 class Box:
-    """Fixed equipment for drawing: centre (m), full sizes (m), yaw (rad)."""
+    """Fixed equipment or a keep-out zone: centre (m), full sizes (m), yaw (rad); ``collide``:
+    an obstacle of the clearance checks; ``keep_out``: space the arm must not enter."""
 
     name: str
     center: np.ndarray
     size: np.ndarray
     yaw: float = 0.0
+    collide: bool = True
+    keep_out: bool = False
+
+    @property
+    def rotation(self) -> np.ndarray:
+        c, si = math.cos(self.yaw), math.sin(self.yaw)
+        return np.array([[c, -si, 0], [si, c, 0], [0, 0, 1.0]])
 
     def corners(self) -> np.ndarray:
         """(8, 3) corner positions in the cell frame (m)."""
@@ -164,6 +203,23 @@ class Box:
         c, si = math.cos(self.yaw), math.sin(self.yaw)
         R = np.array([[c, -si, 0], [si, c, 0], [0, 0, 1.0]])
         return s @ R.T + self.center
+
+
+@dataclass(frozen=True, eq=False)
+class Cylinder:
+    """A pillar: centre (m), unit axis, radius (m), height (m, along the axis)."""
+
+    name: str
+    center: np.ndarray
+    radius: float
+    height: float
+    axis: np.ndarray = field(default_factory=lambda: np.array([0.0, 0.0, 1.0]))
+    collide: bool = True
+
+    def ends(self) -> tuple[np.ndarray, np.ndarray]:
+        """Centres of the two end faces (m)."""
+        h = self.axis * self.height / 2
+        return self.center - h, self.center + h
 
 
 @dataclass(frozen=True, eq=False)
@@ -202,6 +258,35 @@ class Cell:
     text: str = ""
     path: str | None = None
     lines: dict = field(default_factory=dict)
+    cylinders: tuple = ()
+    keep_outs: tuple = ()
+    floor: bool = True
+    trajectories: tuple = ()             # joint trajectories from CSV (workbench.studies.taskdata.Trajectory)
+    csv_texts: dict = field(default_factory=dict)   # CSV file name (as written) -> the text read
+
+    def obstacles(self) -> list:
+        """What the clearance checks test against: [("floor", None)] when the floor is on, then
+        ("box", Box), ("cylinder", Cylinder), ("keep_out", Box) for every one that collides."""
+        out = [("floor", None)] if self.floor else []
+        out += [("box", b) for b in self.boxes if b.collide]
+        out += [("cylinder", c) for c in self.cylinders if c.collide]
+        out += [("keep_out", k) for k in self.keep_outs]
+        return out
+
+    requirements: object = None          # cell-wide Requirements (workbench.studies.requirements)
+    point_requirements: dict = field(default_factory=dict)   # point name -> Requirements (merged)
+    path_requirements: dict = field(default_factory=dict)    # path name -> Requirements (merged)
+
+    def requirements_for(self, point: str | None = None, path: str | None = None):
+        """The :class:`~workbench.studies.requirements.Requirements` of a work point or a path (the
+        cell-wide ones merged with its own), or the cell-wide ones."""
+        from .requirements import Requirements
+
+        if point is not None and point in self.point_requirements:
+            return self.point_requirements[point]
+        if path is not None and path in self.path_requirements:
+            return self.path_requirements[path]
+        return self.requirements if self.requirements is not None else Requirements()
 
     @property
     def sha256(self) -> str:
@@ -230,6 +315,12 @@ class Cell:
 
     def summary(self) -> str:
         s = f"{self.name}: {len(self.points)} work points, {len(self.paths)} paths, {len(self.boxes)} boxes"
+        if self.cylinders:
+            s += f", {len(self.cylinders)} cylinders"
+        if self.keep_outs:
+            s += f", {len(self.keep_outs)} keep-out zones"
+        if self.trajectories:
+            s += f", {len(self.trajectories)} joint trajectories"
         if self.mount is not None:
             s += f", {self.mount.count} mount candidates"
         return s
@@ -291,9 +382,15 @@ class _Ctx:
 def _num(ctx, v, table, index, key, positive=False, nonneg=False):
     if isinstance(v, bool) or not isinstance(v, (int, float)):
         raise ctx.err(f"expected a number, got {v!r}", table, index, key)
-    v = float(v)
+    try:
+        v = float(v)
+    except OverflowError:  # a TOML integer beyond a float
+        raise ctx.err(f"expected a number of magnitude at most {MAX_MAGNITUDE:g}, got {v!r}", table, index,
+                      key) from None
     if not math.isfinite(v):
         raise ctx.err(f"expected a finite number, got {v!r}", table, index, key)
+    if abs(v) > MAX_MAGNITUDE:
+        raise ctx.err(f"expected a number of magnitude at most {MAX_MAGNITUDE:g}, got {v:g}", table, index, key)
     if positive and v <= 0:
         raise ctx.err(f"expected a number > 0, got {v:g}", table, index, key)
     if nonneg and v < 0:
@@ -305,6 +402,17 @@ def _vec(ctx, v, table, index, key, size=3):
     if not isinstance(v, (list, tuple)) or len(v) != size:
         raise ctx.err(f"expected a list of {size} numbers, got {v!r}", table, index, key)
     return np.array([_num(ctx, x, table, index, key) for x in v], dtype=float)
+
+
+def _coord(ctx, values, table, index, key, unit):
+    """``values`` (metres, any shape) unchanged when every one is within :data:`MAX_CELL_COORD`."""
+    a = np.asarray(values, dtype=float)
+    if a.size and float(np.max(np.abs(a))) > MAX_CELL_COORD:
+        bad = float(a.reshape(-1)[int(np.argmax(np.abs(a)))])
+        shown = f"{bad * 1e3:g} mm ({bad:g} m)" if unit == "mm" else f"{bad:g} m"
+        raise ctx.err(f"value {shown} is beyond the limit of {MAX_CELL_COORD:g} m from the cell origin "
+                      f"(is the length unit right?)", table, index, key)
+    return values
 
 
 def _numlist(ctx, v, table, key, nonempty=True):
@@ -346,13 +454,15 @@ def read_cell_file(path) -> Cell:
     path = os.fspath(path)
     try:
         with open(path, "rb") as fh:
-            raw = fh.read()
+            raw = fh.read(MAX_TEXT_BYTES + 1)
     except IsADirectoryError:
         raise CellFileError(f"{path}: is a directory, expected a cell file (.toml)") from None
     except FileNotFoundError:
         raise CellFileError(f"{path}: no such file") from None
     except OSError as exc:
         raise CellFileError(f"{path}: cannot be read ({exc.strerror})") from None
+    if len(raw) > MAX_TEXT_BYTES:
+        raise CellFileError(f"{path}: larger than {MAX_TEXT_BYTES >> 20} MB; a cell file is a few kB of TOML")
     try:
         text = raw.decode("utf-8")
     except UnicodeDecodeError:
@@ -362,6 +472,7 @@ def read_cell_file(path) -> Cell:
 
 def parse_cell_text(text: str, source_name: str = "<cell>") -> Cell:
     """Parse and validate cell-file text (see the module docstring for the schema)."""
+    check_toml_text(text, source_name, CellFileError)
     ctx = _Ctx(source_name, text)
     try:
         data = tomllib.loads(text)
@@ -369,7 +480,8 @@ def parse_cell_text(text: str, source_name: str = "<cell>") -> Cell:
         raise CellFileError(f"{source_name}: malformed TOML: {exc}") from None
     unknown = sorted(set(data) - _TOP)
     if unknown:  # a top-level name is a table (or a stray key): say so, not "unknown key"
-        tables = ", ".join(f"[{t}]" if t in ("cell", "mount", "placement") else f"[[{t}]]" for t in sorted(_TOP))
+        tables = ", ".join(f"[{t}]" if t in ("cell", "mount", "placement", "requirements") else f"[[{t}]]"
+                           for t in sorted(_TOP - {"embedded_csv"}))  # embedded_csv: written by the workbench
         raise CellFileError(f"{source_name}: unknown table or key '{unknown[0]}'; allowed tables: {tables}")
     if "cell" not in data:
         raise CellFileError(f"{source_name}: missing table [cell] (with at least 'name')")
@@ -385,6 +497,9 @@ def parse_cell_text(text: str, source_name: str = "<cell>") -> Cell:
     desc = c.get("description", "")
     if not isinstance(desc, str):
         raise ctx.err("expected a string", "cell", None, "description")
+    floor = c.get("floor", True)
+    if not isinstance(floor, bool):
+        raise ctx.err(f"expected true or false, got {floor!r}", "cell", None, "floor")
 
     # ---- work points
     raw_pts = data.get("point", [])
@@ -400,7 +515,7 @@ def parse_cell_text(text: str, source_name: str = "<cell>") -> Cell:
             raise ctx.err(f"duplicate work point name {pname!r}", "point", i, "name")
         if "xyz" not in p:
             raise ctx.err("missing key 'xyz' (the TCP position)", "point", i)
-        xyz = _vec(ctx, p["xyz"], "point", i, "xyz") * L
+        xyz = _coord(ctx, _vec(ctx, p["xyz"], "point", i, "xyz") * L, "point", i, "xyz", unit)
         rule = p.get("orientation", "fixed" if "rpy" in p else ("axis" if "axis" in p else "free"))
         if rule not in ORIENTATION_RULES:
             raise ctx.err(f"expected one of fixed, axis, free, got {rule!r}", "point", i, "orientation")
@@ -422,6 +537,17 @@ def parse_cell_text(text: str, source_name: str = "<cell>") -> Cell:
         points.append(WorkPoint(pname.strip(), T, rule, tol, atol))
     names = {p.name for p in points}
 
+    # ---- CSV files embedded in the text (results files keep the files a cell names)
+    embedded, csv_texts = {}, {}
+    raw_emb = data.get("embedded_csv", [])
+    if not isinstance(raw_emb, list):
+        raise CellFileError(f"{source_name}: 'embedded_csv' must be an array of tables ([[embedded_csv]])")
+    for i, e in enumerate(raw_emb):
+        _keys(ctx, e, {"file", "text"}, "embedded_csv", i)
+        if not isinstance(e.get("file"), str) or not isinstance(e.get("text"), str):
+            raise ctx.err("expected file = NAME and text = CSV content (strings)", "embedded_csv", i)
+        embedded[e["file"]] = e["text"]
+
     # ---- paths
     raw_paths = data.get("path", [])
     if not isinstance(raw_paths, list):
@@ -439,8 +565,15 @@ def parse_cell_text(text: str, source_name: str = "<cell>") -> Cell:
         speed = _num(ctx, p["speed"], "path", i, "speed")
         if speed <= 0:
             raise ctx.err(f"tool speed must be > 0 mm/s, got {speed:g}", "path", i, "speed")
+        if "csv" in p:
+            paths.append(_csv_path(ctx, p, i, pname.strip(), speed, source_name, embedded, csv_texts))
+            continue
+        stray = sorted(set(p) & {"columns", "rotation", "csv_unit"})
+        if stray:
+            raise ctx.err("only a path from a CSV file ('csv') takes this key", "path", i, stray[0])
         if ("through" in p) == ("start" in p):
-            raise ctx.err("give either 'through' (a polyline) or 'start' with 'segments'", "path", i)
+            raise ctx.err("give either 'through' (a polyline), 'start' with 'segments', or 'csv' (a file of TCP "
+                          "poses)", "path", i)
         segs = []
         if "through" in p:
             thr = p["through"]
@@ -492,24 +625,59 @@ def parse_cell_text(text: str, source_name: str = "<cell>") -> Cell:
                               f"point {nm!r} is {by[nm].rule!r}", "path", i, "orientation")
         paths.append(Path(pname.strip(), start, tuple(segs), speed * 1e-3, rule))
 
-    # ---- boxes
-    raw_boxes = data.get("box", [])
-    if not isinstance(raw_boxes, list):
-        raise CellFileError(f"{source_name}: 'box' must be an array of tables ([[box]])")
-    boxes = []
-    for i, b in enumerate(raw_boxes):
-        _keys(ctx, b, _BOX_KEYS, "box", i)
-        bname = b.get("name", f"box {i + 1}")
-        if not isinstance(bname, str):
-            raise ctx.err("expected a string", "box", i, "name")
-        for k in ("center", "size"):
-            if k not in b:
-                raise ctx.err(f"missing key '{k}'", "box", i)
-        size = _vec(ctx, b["size"], "box", i, "size") * L
-        if np.any(size <= 0):
-            raise ctx.err("every size must be > 0", "box", i, "size")
-        boxes.append(Box(bname, _vec(ctx, b["center"], "box", i, "center") * L, size,
-                         _num(ctx, b.get("yaw", 0.0), "box", i, "yaw") * _DEG))
+    # ---- boxes, keep-out zones, cylinders
+    def _collide(tbl, table, i):
+        v = tbl.get("collide", True)
+        if not isinstance(v, bool):
+            raise ctx.err(f"expected true or false, got {v!r}", table, i, "collide")
+        return v
+
+    def _boxes(table, allowed, keep_out):
+        raw_boxes = data.get(table, [])
+        if not isinstance(raw_boxes, list):
+            raise CellFileError(f"{source_name}: '{table}' must be an array of tables ([[{table}]])")
+        out = []
+        for i, b in enumerate(raw_boxes):
+            _keys(ctx, b, allowed, table, i)
+            bname = b.get("name", f"{table.replace('_', '-')} {i + 1}")
+            if not isinstance(bname, str):
+                raise ctx.err("expected a string", table, i, "name")
+            for k in ("center", "size"):
+                if k not in b:
+                    raise ctx.err(f"missing key '{k}'", table, i)
+            size = _coord(ctx, _vec(ctx, b["size"], table, i, "size") * L, table, i, "size", unit)
+            if np.any(size <= 0):
+                raise ctx.err("every size must be > 0", table, i, "size")
+            out.append(Box(bname, _coord(ctx, _vec(ctx, b["center"], table, i, "center") * L, table, i, "center",
+                                         unit), size,
+                           _num(ctx, b.get("yaw", 0.0), table, i, "yaw") * _DEG,
+                           True if keep_out else _collide(b, table, i), keep_out))
+        return out
+
+    boxes = _boxes("box", _BOX_KEYS, False)
+    keep_outs = _boxes("keep_out", _KEEP_KEYS, True)
+    raw_cyl = data.get("cylinder", [])
+    if not isinstance(raw_cyl, list):
+        raise CellFileError(f"{source_name}: 'cylinder' must be an array of tables ([[cylinder]])")
+    cylinders = []
+    for i, cy in enumerate(raw_cyl):
+        _keys(ctx, cy, _CYL_KEYS, "cylinder", i)
+        cname = cy.get("name", f"cylinder {i + 1}")
+        if not isinstance(cname, str):
+            raise ctx.err("expected a string", "cylinder", i, "name")
+        for k in ("center", "radius", "height"):
+            if k not in cy:
+                raise ctx.err(f"missing key '{k}'", "cylinder", i)
+        ax = _vec(ctx, cy.get("axis", [0, 0, 1]), "cylinder", i, "axis")
+        if np.linalg.norm(ax) < 1e-9:
+            raise ctx.err("zero-length axis; expected a direction", "cylinder", i, "axis")
+        cylinders.append(Cylinder(cname, _coord(ctx, _vec(ctx, cy["center"], "cylinder", i, "center") * L,
+                                                "cylinder", i, "center", unit),
+                                  _coord(ctx, _num(ctx, cy["radius"], "cylinder", i, "radius", positive=True) * L,
+                                         "cylinder", i, "radius", unit),
+                                  _coord(ctx, _num(ctx, cy["height"], "cylinder", i, "height", positive=True) * L,
+                                         "cylinder", i, "height", unit),
+                                  ax / np.linalg.norm(ax), _collide(cy, "cylinder", i)))
 
     # ---- mount region
     mount = None
@@ -520,7 +688,7 @@ def parse_cell_text(text: str, source_name: str = "<cell>") -> Cell:
         for ax in ("x", "y"):
             if ax not in m:
                 raise ctx.err(f"missing key '{ax}' ([min, max] or a single value)", "mount")
-            r = _numlist(ctx, m[ax], "mount", ax)
+            r = _coord(ctx, _numlist(ctx, m[ax], "mount", ax) * L, "mount", None, ax, unit) / L
             if len(r) == 1:
                 r = np.array([r[0], r[0]])
             if len(r) != 2:
@@ -540,7 +708,8 @@ def parse_cell_text(text: str, source_name: str = "<cell>") -> Cell:
             else:
                 vals = r[:1]
             axes[ax] = vals * L
-        heights = _numlist(ctx, m.get("heights", [0.0]), "mount", "heights") * L
+        heights = _coord(ctx, _numlist(ctx, m.get("heights", [0.0]), "mount", "heights") * L, "mount", None,
+                         "heights", unit)
         yaws = _numlist(ctx, m.get("yaws", [0.0]), "mount", "yaws") * _DEG
         st = m.get("style", "floor")
         st_list = st if isinstance(st, list) else [st]
@@ -565,11 +734,79 @@ def parse_cell_text(text: str, source_name: str = "<cell>") -> Cell:
     if "placement" in data:
         pl = data["placement"]
         _keys(ctx, pl, _PLACE_KEYS, "placement")
-        placement = make_transform(_vec(ctx, pl.get("xyz", [0, 0, 0]), "placement", None, "xyz") * L,
+        placement = make_transform(_coord(ctx, _vec(ctx, pl.get("xyz", [0, 0, 0]), "placement", None, "xyz") * L,
+                                          "placement", None, "xyz", unit),
                                    _vec(ctx, pl.get("rpy", [0, 0, 0]), "placement", None, "rpy") * _DEG)
 
+    # ---- joint trajectories from CSV files
+    raw_tr = data.get("trajectory", [])
+    if not isinstance(raw_tr, list):
+        raise CellFileError(f"{source_name}: 'trajectory' must be an array of tables ([[trajectory]])")
+    trajectories = []
+    for i, t in enumerate(raw_tr):
+        _keys(ctx, t, _TRAJ_KEYS, "trajectory", i)
+        tname = t.get("name")
+        if not isinstance(tname, str) or not tname.strip():
+            raise ctx.err(f"expected a non-empty string, got {tname!r}", "trajectory", i, "name")
+        if any(x.name == tname.strip() for x in trajectories) or any(x.name == tname.strip() for x in paths):
+            raise ctx.err(f"duplicate name {tname!r} (paths and trajectories need distinct names)", "trajectory", i,
+                          "name")
+        from .taskdata import parse_layout, read_trajectory_csv, with_text
+
+        layout = with_text(parse_layout(ctx, t, "trajectory", i, _base_dir(source_name), "trajectory", embedded))
+        csv_texts[layout.name] = layout.text
+        trajectories.append(read_trajectory_csv(layout, tname.strip()))
+
+    # ---- requirements: cell-wide defaults, then per point / per path
+    from .requirements import Requirements, parse_requirements
+
+    base = Requirements()
+    if "requirements" in data:
+        base = parse_requirements(ctx, data["requirements"], ("requirements", None), L, base, "cell")
+    point_reqs, path_reqs = {}, {}
+    for i, p in enumerate(raw_pts):
+        if "requirements" in p:
+            point_reqs[points[i].name] = parse_requirements(ctx, p["requirements"], ("point", i), L, base, "point")
+    for i, p in enumerate(raw_paths):
+        if "requirements" in p:
+            path_reqs[paths[i].name] = parse_requirements(ctx, p["requirements"], ("path", i), L, base, "path")
+    for i, t in enumerate(raw_tr):
+        if "requirements" in t:
+            path_reqs[trajectories[i].name] = parse_requirements(ctx, t["requirements"], ("trajectory", i), L, base,
+                                                                 "path")
+
     return Cell(name.strip(), tuple(points), tuple(paths), tuple(boxes), mount, placement, desc, unit,
-                text, source_name)
+                text, source_name, requirements=base, point_requirements=point_reqs, path_requirements=path_reqs,
+                cylinders=tuple(cylinders), keep_outs=tuple(keep_outs), floor=floor, trajectories=tuple(trajectories),
+                csv_texts=csv_texts)
+
+
+def _base_dir(source_name: str) -> str:
+    """Folder that CSV file names in a cell file are relative to (the cell file's own)."""
+    if source_name and not source_name.startswith("<"):
+        return os.path.dirname(os.path.abspath(source_name))
+    return os.getcwd()
+
+
+def _csv_path(ctx, p, i, name, speed, source_name, embedded=None, csv_texts=None) -> Path:
+    """A [[path]] with 'csv': the file's TCP poses as the path's samples."""
+    from .taskdata import parse_layout, read_pose_csv, with_text
+
+    for k in ("through", "start", "segments"):
+        if k in p:
+            raise ctx.err("a path from a CSV file takes no points ('through', 'start', 'segments')", "path", i, k)
+    layout = parse_layout(ctx, p, "path", i, _base_dir(source_name), "path", embedded)
+    rule = p.get("orientation", "fixed" if layout.rotation != "none" else "free")
+    if rule not in ORIENTATION_RULES:
+        raise ctx.err(f"expected one of fixed, axis, free, got {rule!r}", "path", i, "orientation")
+    if rule != "free" and layout.rotation == "none":
+        raise ctx.err(f"orientation {rule!r} needs rotation columns (rotation = 'rpy' or 'quaternion')", "path", i,
+                      "orientation")
+    layout = with_text(layout)
+    if csv_texts is not None:
+        csv_texts[layout.name] = layout.text
+    poses = read_pose_csv(layout)
+    return Path(name, "", (), speed * 1e-3, rule, poses, layout.file)
 
 
 # ----------------------------------------------------------------------------------------------
@@ -683,6 +920,10 @@ def sample_path(cell: Cell, path: Path, spacing: float) -> PathSamples:
     """
     if not (isinstance(spacing, (int, float)) and math.isfinite(spacing) and spacing > 0):
         raise WorkbenchError(f"path audit 'spacing': expected a positive length in metres, got {spacing!r}")
+    if path.poses is not None:  # a path from a CSV file: its rows, as they are
+        from .taskdata import samples_from_poses
+
+        return samples_from_poses(path.poses, path.rule, path.speed, path.name)
     by = {p.name: p for p in cell.points}
     s_all, P_all, R_all, t_all, w_all, seg_all = [], [], [], [], [], []
     corners = [0.0]

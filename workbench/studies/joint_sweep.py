@@ -31,6 +31,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from ..limits import MAX_CELLS as _LIMIT_CELLS
 from ..measures import NEAR_SINGULAR as _NEAR_DEFAULT
 from ..measures import joint_limit_factors, penalty_of_product, pose_measures
 from .base import Axis, Chunk, Field, Plan, StudyError, StudyKind, Table, block_rng, check_rows
@@ -38,7 +39,7 @@ from .base import Axis, Chunk, Field, Plan, StudyError, StudyKind, Table, block_
 __all__ = ["JointSweep", "JointSweepSettings", "MAX_CELLS", "MAX_POSES"]
 
 #: the largest grid a study may describe (the runner also checks memory and disk)
-MAX_CELLS = 10_000_000_000
+MAX_CELLS = _LIMIT_CELLS
 #: the largest number of poses (cells x coarse poses) of a reduce study
 MAX_POSES = 100_000_000_000
 _MODES = ("grid", "reduce", "samples")
@@ -252,8 +253,8 @@ class JointSweep(StudyKind):
         cells = samples if mode == "samples" else int(np.prod(steps, dtype=object))
         if cells > MAX_CELLS:
             key = "samples" if mode == "samples" else "steps"
-            raise _err(where, key, f"{float(cells):.3g} cells is more than this tool maps in one study "
-                                   f"({MAX_CELLS:.0e}); use fewer steps")
+            raise _err(where, key, f"{cells:,} cells is more than this tool maps in one study "
+                                   f"(at most {MAX_CELLS:,}); use fewer {'samples' if key == 'samples' else 'steps'}")
         if mode == "reduce":
             poses = cells * int(np.prod(coarse, dtype=object))
             if poses > MAX_POSES:

@@ -27,6 +27,19 @@ Settings (study file, ``[settings]``)::
     rpy = [180, 0, 0]
     seeds = 8
     gravity = [0, 0, -9.81]             # optional, m/s^2 in the cell frame
+    # what the tool carries and does (defaults: the cell's [requirements], else nothing)
+    payload_com = [0, 0, 0.1]           # m, tool frame: where the payload's centre of mass sits
+    force = [0, 0, 150]                 # N the tool exerts while holding it (and moment, N m)
+    wrench_frame = "tool"               # "tool" or "cell"
+    # mode = "force": the largest force the tool can exert along `direction` instead
+    mode = "payload"                    # or "force"
+    direction = [0, 0, -1]              # cell frame (or direction_frame = "tool")
+    payload = 12.0                      # force mode: the payload held meanwhile (kg; default the cell's)
+
+In payload mode the payload is :func:`workbench.measures.largest_payload` at the centre of mass
+``payload_com`` with the tool wrench added; in force mode the field ``force`` is
+:func:`workbench.measures.largest_force` along ``direction`` with the payload held (the exact
+box-constrained answer: each joint inside its own torque limit), next to the payload field.
 """
 from __future__ import annotations
 
@@ -38,13 +51,15 @@ from typing import Mapping
 import numpy as np
 
 from ..arm.transforms import inverse_transform, make_transform
+from ..limits import grid_count
 from .base import MAX_SEEDS, Axis, Field, Plan, StudyError, StudyKind, Table
 
 __all__ = ["LoadMap", "LoadSettings", "payload_of_poses", "check_masses"]
 
 _DEG = math.pi / 180.0
 _KEYS = {"grid", "joints", "ranges", "steps", "pose", "plane", "u", "v", "at", "step", "orientation", "rpy",
-         "axis", "seeds", "gravity", "mount_xyz", "mount_rpy"}
+         "axis", "seeds", "gravity", "mount_xyz", "mount_rpy", "payload_com", "force", "moment", "wrench_frame",
+         "mode", "direction", "direction_frame", "payload"}
 _PLANES = {"xy": (0, 1, 2), "xz": (0, 2, 1), "yz": (1, 2, 0)}
 
 
@@ -67,6 +82,14 @@ class LoadSettings:
     seeds: int = 8
     gravity: tuple = (0.0, 0.0, -9.81)
     mount: np.ndarray | None = None
+    mode: str = "payload"
+    payload_com: tuple | None = None
+    force: tuple | None = None
+    moment: tuple | None = None
+    wrench_frame: str | None = None
+    direction: tuple = (0.0, 0.0, -1.0)
+    direction_frame: str = "world"
+    payload: float | None = None
 
 
 def check_masses(arm, where: str) -> None:
@@ -110,6 +133,29 @@ def _validate(settings: Mapping, arm, cell, where: str) -> LoadSettings:
         out["mount"] = make_transform(np.array(_nums(settings.get("mount_xyz", [0, 0, 0]), where, "mount_xyz", 3)),
                                       np.array(_nums(settings.get("mount_rpy", [0, 0, 0]), where, "mount_rpy", 3))
                                       * _DEG)
+    mode = settings.get("mode", "payload")
+    if mode not in ("payload", "force"):
+        raise StudyError(f"{where} mode: expected 'payload' or 'force', got {mode!r}")
+    out["mode"] = mode
+    for key in ("payload_com", "force", "moment"):
+        if key in settings:
+            out[key] = tuple(_nums(settings[key], where, key, 3))
+    for key, default in (("wrench_frame", None), ("direction_frame", "world")):
+        if key in settings:
+            f = settings[key]
+            if f not in ("tool", "cell"):
+                raise StudyError(f"{where} {key}: expected 'tool' or 'cell', got {f!r}")
+            out[key] = "tool" if f == "tool" else "world"
+    if "direction" in settings:
+        d = _nums(settings["direction"], where, "direction", 3)
+        if np.linalg.norm(d) == 0:
+            raise StudyError(f"{where} direction: expected a non-zero direction, got {d!r}")
+        out["direction"] = tuple(d)
+    if "payload" in settings:
+        v = settings["payload"]
+        if isinstance(v, bool) or not isinstance(v, (int, float)) or not (math.isfinite(v) and v >= 0):
+            raise StudyError(f"{where} payload: expected a mass >= 0 (kg), got {v!r}")
+        out["payload"] = float(v)
     if grid == "joints":
         joints = settings.get("joints")
         if not isinstance(joints, list) or not 1 <= len(joints) <= 2:
@@ -154,9 +200,11 @@ def _validate(settings: Mapping, arm, cell, where: str) -> LoadSettings:
         if isinstance(at, bool) or not isinstance(at, (int, float)) or not math.isfinite(at):
             raise StudyError(f"{where} at: expected a finite number (m), got {at!r}")
         step = settings.get("step", 0.05)
-        if isinstance(step, bool) or not isinstance(step, (int, float)) or not step > 0:
-            raise StudyError(f"{where} step: expected a positive number (m), got {step!r}")
-        cells = (int((u[1] - u[0]) / step + 1e-9) + 1) * (int((v[1] - v[0]) / step + 1e-9) + 1)
+        if (isinstance(step, bool) or not isinstance(step, (int, float)) or not math.isfinite(step)
+                or not step > 0):
+            raise StudyError(f"{where} step: expected a finite positive number (m), got {step!r}")
+        cells = (grid_count(u[0], u[1], step, f"{where} step", error=StudyError)
+                 * grid_count(v[0], v[1], step, f"{where} step", error=StudyError))
         if cells > 4_000_000:
             raise StudyError(f"{where} step: {cells} grid points; at most 4 000 000 (use a larger step)")
         rule = settings.get("orientation", "fixed")
@@ -191,14 +239,37 @@ def _mounted_arm(arm, s: LoadSettings, cell):
     return Arm(replace(arm.model, mount=np.asarray(M, float)))
 
 
-def payload_of_poses(arm, q, gravity=(0.0, 0.0, -9.81)):
-    """Largest TCP payload (kg) and the limiting joint for poses q (..., n) of a mounted arm.
+def payload_of_poses(arm, q, gravity=(0.0, 0.0, -9.81), load=None):
+    """Largest payload (kg) and the limiting joint for poses q (..., n) of a mounted arm.
 
-    Thin wrapper of :func:`workbench.measures.max_payload` (gravity in the world / cell frame).
+    Without ``load`` the point mass at the TCP (:func:`workbench.measures.max_payload`); with a
+    load (:func:`load_of`) the payload at its centre of mass with the tool wrench added
+    (:func:`workbench.measures.largest_payload`; 0 where the arm is over a limit already).
+    Gravity in the world / cell frame.
     """
-    from ..measures import max_payload
+    from ..measures import largest_payload, max_payload
 
-    return max_payload(arm, q, g=np.asarray(gravity, float), world=True)
+    plain = load is None or (not np.any(load["com"]) and not np.any(load["force"] if load["force"] is not None else 0)
+                             and not np.any(load["moment"] if load["moment"] is not None else 0))
+    if plain:
+        return max_payload(arm, q, g=np.asarray(gravity, float), world=True)
+    m, j = largest_payload(arm, q, com=load["com"], force=load["force"], moment=load["moment"],
+                           g=np.asarray(gravity, float), frame=load["frame"], world=True)
+    return np.where(np.isnan(m), 0.0, m), j
+
+
+def load_of(s: LoadSettings, cell) -> dict:
+    """What the tool carries and does: the settings, else the cell's requirements (cell-wide)."""
+    r = cell.requirements_for() if cell is not None and hasattr(cell, "requirements_for") else None
+    pay = r.payload if r is not None else None
+    com = np.array(s.payload_com, float) if s.payload_com is not None else (
+        pay.com if pay is not None else np.zeros(3))
+    force = np.array(s.force, float) if s.force is not None else (r.force if r is not None else None)
+    moment = np.array(s.moment, float) if s.moment is not None else (r.moment if r is not None else None)
+    frame = s.wrench_frame or (r.frame if r is not None else "tool")
+    mass = s.payload if s.payload is not None else (pay.mass if pay is not None else 0.0)
+    return {"com": com, "force": force, "moment": moment, "frame": frame, "mass": mass,
+            "required": pay.mass if pay is not None else None}
 
 
 class LoadMap(StudyKind):
@@ -235,8 +306,10 @@ class LoadMap(StudyKind):
             us = s.u[0] + s.step * np.arange(int((s.u[1] - s.u[0]) / s.step + 1e-9) + 1)
             vs = s.v[0] + s.step * np.arange(int((s.v[1] - s.v[0]) / s.step + 1e-9) + 1)
             axes = (Axis("xyz"[b], vs, "m", f"cell {'xyz'[b]}"), Axis("xyz"[a], us, "m", f"cell {'xyz'[a]}"))
+        load = load_of(s, cell)
         fields = (
-            Field("payload", (), "float64", "kg", "largest payload at the TCP within the joint torque limits"),
+            Field("payload", (), "float64", "kg", "largest payload at its centre of mass "
+                  f"({', '.join(f'{v * 1000:g}' for v in load['com'])} mm from the TCP) within the joint torque limits"),
             Field("limiting_joint", (), "int32", "", "joint (0-based) whose torque limit sets the payload; -1 none",
                   kind="other", fill=-1),
             Field("own_load", (), "float64", "", "largest |gravity torque of the arm itself| / torque limit"),
@@ -244,7 +317,14 @@ class LoadMap(StudyKind):
                   flags={1: "reached"}),
             Field("q", (n,), "float64", "rad", "pose of the grid cell", kind="pose"),
         )
-        data = {"mounted_model": marm.model, "pose": s.pose if s.pose is not None else arm.model.home_q}
+        if s.mode == "force":
+            d = ", ".join(f"{v:g}" for v in s.direction)
+            fields = (Field("force", (), "float64", "N", f"largest force along [{d}] ({'tool' if s.direction_frame == 'tool' else 'cell'} "
+                            f"frame) within the joint torque limits, {load['mass']:g} kg payload held"),
+                      Field("force_joint", (), "int32", "", "joint (0-based) whose torque limit sets the force; -1 none",
+                            kind="other", fill=-1)) + fields
+        data = {"mounted_model": marm.model, "pose": s.pose if s.pose is not None else arm.model.home_q,
+                "load": load}
         return Plan(self.name, spec, s, axes, fields, chunk_cells=chunk_cells or 4096, data=data)
 
     def compute_chunk(self, plan, arm, cell, chunk) -> dict:
@@ -281,18 +361,29 @@ class LoadMap(StudyKind):
             K = res.q.shape[1]
             qK = np.where(np.isfinite(res.q), res.q, 0.0).reshape(-1, n)
             okK = reached_check(marm, qK, np.repeat(Tb, K, axis=0), s.orientation, 1e-4, 1e-3)
-            mK, _ = payload_of_poses(marm, qK, s.gravity)
+            mK, _ = payload_of_poses(marm, qK, s.gravity, plan.data.get("load"))
             pick = np.argmax(np.where(okK, mK, -1.0).reshape(-1, K), axis=1)
             rows = np.arange(len(idx))
             q = qK.reshape(-1, K, n)[rows, pick]
             reached = okK.reshape(-1, K)[rows, pick]
-        mass, lim = payload_of_poses(marm, q, s.gravity)
+        load = plan.data.get("load")
+        mass, lim = payload_of_poses(marm, q, s.gravity, load)
         tg = gravity_torques(marm, q, g=np.asarray(s.gravity), world=True)
         own = np.max(np.abs(tg) / marm.model.max_effort, axis=-1)
         mass = np.where(reached, mass, np.nan)
-        return {"payload": mass, "limiting_joint": np.where(reached, lim, -1).astype(np.int32),
-                "own_load": np.where(reached, own, np.nan), "reached": reached.astype(np.uint8),
-                "q": q.reshape(len(idx), n)}
+        out = {"payload": mass, "limiting_joint": np.where(reached, lim, -1).astype(np.int32),
+               "own_load": np.where(reached, own, np.nan), "reached": reached.astype(np.uint8),
+               "q": q.reshape(len(idx), n)}
+        if s.mode == "force":
+            from ..measures import Payload, largest_force
+
+            pay = Payload(load["mass"], load["com"]) if load["mass"] else None
+            f, fj = largest_force(marm, q, np.array(s.direction), force=load["force"], moment=load["moment"],
+                                  payload=pay, g=np.asarray(s.gravity), frame=s.direction_frame,
+                                  wrench_frame=load["frame"], world=True)
+            out["force"] = np.where(reached, np.where(np.isnan(f), 0.0, f), np.nan)
+            out["force_joint"] = np.where(reached, fj, -1).astype(np.int32)
+        return out
 
     def summarise(self, plan, arrays) -> dict:
         names = plan.data["mounted_model"].names
@@ -311,6 +402,23 @@ class LoadMap(StudyKind):
         tables = {"load": Table("Payload summary", cols, {"min_payload": "kg", "median_payload": "kg",
                                                           "max_payload": "kg"},
                                 "statics only: gravity of the links and tool, joint torque limits")}
+        load = plan.data.get("load") or {}
+        if load.get("required") is not None:
+            tables["requirements"] = Table("Requirements from the cell",
+                                           {"payload": np.array([float(load["required"])]),
+                                            "com_mm": np.array([", ".join(f"{v * 1000:g}" for v in load["com"])],
+                                                               dtype=object)},
+                                           {"payload": "kg"}, "the payload the cell asks the arm to hold")
+        if "force" in arrays:
+            f = np.asarray(arrays["force"], float)
+            okf = np.isfinite(f)
+            fin_f = okf & (f < np.inf)
+            tables["force"] = Table("Largest force along the direction",
+                                    {"min_force": np.array([float(np.min(f[okf])) if okf.any() else np.nan]),
+                                     "median_force": np.array([float(np.median(f[fin_f])) if fin_f.any() else np.nan]),
+                                     "max_force": np.array([float(np.max(f[fin_f])) if fin_f.any() else np.nan])},
+                                    {"min_force": "N", "median_force": "N", "max_force": "N"},
+                                    "every joint inside its own torque limit (exact), gravity and the payload included")
         tables["limiting"] = Table("Which joint limits the payload",
                                    {"joint": np.array(names, dtype=object), "cells": np.array(counts)}, {},
                                    "number of grid cells where each joint's torque limit sets the payload")

@@ -27,7 +27,7 @@ from __future__ import annotations
 
 import math
 import time
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from typing import Mapping
 
 import numpy as np
@@ -163,6 +163,7 @@ class MountSettings:
     sensitivity: bool = True
     solutions: str = "first"
     points: tuple = ()
+    requirements: tuple = ()   # per work point Requirements (set by the plan from the cell; () = none stated)
 
 
 _KEYS = {"measure", "rows", "length", "seeds", "reach_power", "measure_power", "margin_power", "refine",
@@ -293,9 +294,33 @@ def evaluate_mounts(arm, mounts, points, s: MountSettings, q0=None, choose: str 
     q = flat.reshape(C, P, n)
     meas = _measure_of_q(arm, flat, s).reshape(C, P)
     marg = arm.limit_margin(flat).reshape(C, P)
+    reached, torque, unmet = _apply_requirements(arm, mounts, q, reached, s)
     meas = np.where(reached, meas, 0.0)
     marg = np.where(reached, np.clip(marg, 0.0, 1.0), 0.0)
-    return {"q": q, "reached": reached, "measure": meas, "margin": marg}
+    return {"q": q, "reached": reached, "measure": meas, "margin": marg, "torque_margin": torque, "unmet": unmet}
+
+
+def _apply_requirements(arm, mounts, q, reached, s):
+    """A work point is served only if its requirements hold at the chosen solution: holding torques
+    within the joint limits and the asked tool speed within the joint speed limits
+    (:func:`workbench.studies.requirements.requirement_check`). Returns (served (C, P), smallest
+    torque margin (C, P), NaN where not reached or not checked, unmet (C, P): reached but a
+    requirement fails)."""
+    C, P = reached.shape
+    torque = np.full((C, P), np.nan)
+    unmet = np.zeros((C, P), bool)
+    reqs = getattr(s, "requirements", ())
+    if not reqs:
+        return reached, torque, unmet
+    from .requirements import requirement_check
+
+    for k in range(P):
+        if not reached[:, k].any():
+            continue
+        chk = requirement_check(arm, q[:, k], reqs[k], mounts=mounts)
+        torque[:, k] = np.where(reached[:, k], chk.torque_margin, np.nan)
+        unmet[:, k] = reached[:, k] & ~chk.ok
+    return reached & ~unmet, torque, unmet
 
 
 def _best_solutions(arm, Tg, rule, s, seed, tol, atol):
@@ -460,6 +485,9 @@ class MountSearch(StudyKind):
         )
         pts = tuple(cell.points) if not s.points else tuple(cell.point(nm) for nm in s.points)
         P, n = len(pts), arm.n
+        reqs = tuple(cell.requirements_for(point=p.name) for p in pts) if hasattr(cell, "requirements_for") else ()
+        if reqs and not all(r.empty for r in reqs):
+            s = replace(s, requirements=reqs)
         formula = score_formula(s)
         fields = (
             Field("score", (), "float64", "", formula, kind="measure"),
@@ -472,6 +500,9 @@ class MountSearch(StudyKind):
                   kind="other"),
             Field("q", (P, n), "float64", "rad", "IK solution of each work point", kind="pose"),
         )
+        if s.requirements:
+            fields += (Field("min_torque_margin", (), "float64", "",
+                             "smallest holding-torque margin (limit - |tau|) / limit over the reached work points"),)
         data = {"point_names": [p.name for p in pts], "tilts": reg.tilts, "styles": list(reg.styles),
                 "formula": formula, "arm_model": arm.model, "points": pts,
                 "step_x": float(reg.xs[1] - reg.xs[0]) if len(reg.xs) > 1 else 0.05,
@@ -493,10 +524,19 @@ class MountSearch(StudyKind):
         return {"score": sc["score"], "reached_fraction": sc["reached_fraction"],
                 "worst_measure": sc["worst_measure"], "min_margin": sc["min_margin"],
                 "point_reached": ev["reached"].astype(np.uint8), "point_measure": ev["measure"],
-                "q": ev["q"]}
+                "q": ev["q"], **_torque_columns(plan, ev)}
 
     def summarise(self, plan, arrays) -> dict:
         return summarise_mount_search(plan, arrays)
+
+
+def _torque_columns(plan, ev) -> dict:
+    if not any(f.name == "min_torque_margin" for f in plan.fields):
+        return {}
+    t = ev["torque_margin"]
+    with np.errstate(invalid="ignore"):
+        worst = np.where(np.isfinite(t).any(axis=-1), np.nanmin(np.where(np.isfinite(t), t, np.inf), axis=-1), np.nan)
+    return {"min_torque_margin": worst}
 
 
 def summarise_mount_search(plan, arrays, top: int = 20) -> dict:
@@ -517,6 +557,7 @@ def summarise_mount_search(plan, arrays, top: int = 20) -> dict:
     arm = Arm(plan.data["arm_model"])
     qall = np.asarray(arrays["q"], float).reshape((-1,) + (len(points), arm.n))
     grid_score = score[order]
+    tmr = np.asarray(arrays["min_torque_margin"], float).reshape(-1).copy() if "min_torque_margin" in arrays else None
     if len(order) and s.solutions == "first" and score[order[0]] > 0:
         # the grid kept the first solution per point; re-score the leaders with the best solution
         # of every seed (other branches, e.g. the unflipped wrist, can have much more margin)
@@ -526,6 +567,8 @@ def summarise_mount_search(plan, arrays, top: int = 20) -> dict:
         sc = score_candidates(ev["reached"], ev["measure"], ev["margin"], s)
         f, w, mm = f.copy(), w.copy(), mm.copy()
         f[order], w[order], mm[order] = sc["reached_fraction"], sc["worst_measure"], sc["min_margin"]
+        if tmr is not None:
+            tmr[order] = _torque_columns(plan, ev)["min_torque_margin"]
         score = score.copy()
         score[order] = sc["score"]
         qall = qall.copy()
@@ -540,7 +583,7 @@ def summarise_mount_search(plan, arrays, top: int = 20) -> dict:
          "height": ax["height"][hi] * 1000, "yaw": np.degrees(ax["yaw"][yi]),
          "style": (np.array([styles[k] for k in si], dtype=object) if len(si) else np.zeros(0, dtype="S1")),
          "reached": f[order] * 100, "worst_measure": w[order], "min_margin": mm[order], "map_score": grid_score,
-         "score": score[order]},
+         "score": score[order], **({"torque_margin": tmr[order]} if tmr is not None else {})},
         {"x": "mm", "y": "mm", "height": "mm", "yaw": "deg", "reached": "%"},
         formula + ("; map_score: the map's value (first IK solution per point); score: the best solution of "
                    "every seed" if s.solutions == "first" else ""))}
@@ -558,6 +601,13 @@ def summarise_mount_search(plan, arrays, top: int = 20) -> dict:
         return tables
     refined = []
     seen = []
+    if s.refine == 0:  # no polishing: the best grid candidate is the answer (no 'refined' table)
+        a, b, c, d, e = np.unravel_index(order[0], plan.shape)
+        sc0, ev0 = _score_at(arm, points, s, ax["x"][e], ax["y"][d], ax["height"][b], ax["yaw"][c],
+                             plan.data["tilts"][a], q0=qall[order[0]][None])
+        refined_best = {"x": float(ax["x"][e]), "y": float(ax["y"][d]), "yaw": float(ax["yaw"][c]),
+                        "score": float(sc0), "start_score": float(sc0), "evaluations": 0, "q": ev0["q"][0],
+                        "style": styles[a], "height": float(ax["height"][b]), "tilt": float(plan.data["tilts"][a])}
     for k in order:
         if len(refined) >= s.refine:
             break
@@ -573,14 +623,17 @@ def summarise_mount_search(plan, arrays, top: int = 20) -> dict:
         r.update(style=styles[a], height=float(ax["height"][b]), tilt=float(plan.data["tilts"][a]))
         refined.append(r)
     refined.sort(key=lambda r: -r["score"])
-    tables["refined"] = Table(
-        "Refined mounts (off the grid, Nelder-Mead over x, y, yaw)",
-        {"rank": np.arange(1, len(refined) + 1), "x": np.array([r["x"] for r in refined]) * 1000,
-         "y": np.array([r["y"] for r in refined]) * 1000, "height": np.array([r["height"] for r in refined]) * 1000,
-         "yaw": np.degrees([r["yaw"] for r in refined]), "style": np.array([r["style"] for r in refined], dtype=object),
-         "grid_score": np.array([r["start_score"] for r in refined]), "score": np.array([r["score"] for r in refined]),
-         "evaluations": np.array([r["evaluations"] for r in refined])},
-        {"x": "mm", "y": "mm", "height": "mm", "yaw": "deg"}, formula)
+    if not refined:
+        refined = [refined_best]
+    else:
+        tables["refined"] = Table(
+            "Refined mounts (off the grid, Nelder-Mead over x, y, yaw)",
+            {"rank": np.arange(1, len(refined) + 1), "x": np.array([r["x"] for r in refined]) * 1000,
+             "y": np.array([r["y"] for r in refined]) * 1000, "height": np.array([r["height"] for r in refined]) * 1000,
+             "yaw": np.degrees([r["yaw"] for r in refined]), "style": np.array([r["style"] for r in refined], dtype=object),
+             "grid_score": np.array([r["start_score"] for r in refined]), "score": np.array([r["score"] for r in refined]),
+             "evaluations": np.array([r["evaluations"] for r in refined])},
+            {"x": "mm", "y": "mm", "height": "mm", "yaw": "deg"}, formula)
     best = refined[0]
     if s.sensitivity:
         sens = sensitivity(arm, points, s, best["x"], best["y"], best["height"], best["yaw"], best["tilt"],
@@ -599,6 +652,9 @@ def summarise_mount_search(plan, arrays, top: int = 20) -> dict:
                          points, s, q0=best["q"][None], choose="first")
     cols = {"point": np.array([p.name for p in points], dtype=object), "reached": ev["reached"][0].astype(int),
             "measure": ev["measure"][0], "margin": ev["margin"][0]}
+    if s.requirements:
+        cols["torque_margin"] = ev["torque_margin"][0]
+        cols["requirements_met"] = np.where(ev["unmet"][0], 0, 1)
     units = {}
     for j, joint in enumerate(arm.model.joints):  # joint values at the recommended mount
         cols[f"q_{joint.name}"] = np.degrees(ev["q"][0][:, j]) if joint.revolute else ev["q"][0][:, j] * 1000

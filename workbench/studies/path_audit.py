@@ -13,6 +13,15 @@ Per sample: the measures of the chosen rows, the joint speeds needed for the too
 ``b`` the tool twist along the path tangent at the path's speed, with the turn rate of the
 orientation interpolation), the ratio of each joint speed to its limit, and the joint-limit margin.
 
+Requirements (the cell's ``[requirements]`` merged per path, :mod:`workbench.studies.requirements`):
+holding torques along the path (arm weight, payload with its centre of mass, tool wrench) and
+their margin against ``max_effort`` (fields ``torque_margin``, ``torque_joint``, ``tau``); the
+largest tool speed each sample allows within the joint speed limits (``tool_speed_max`` = path
+speed / speed ratio: joint speeds scale with the tool speed along the path); and a cycle-time
+estimate per path (table ``cycle_time``, :func:`workbench.studies.timing.time_parameterise`:
+joint speed and acceleration limits and the path's tool speed, rest to rest, dynamics neglected)
+against the path's required ``time``.
+
 Summaries: the near-singular spans (inverse condition below ``near_singular``) with their path
 distances, the worst joint-speed ratio in them and a plain-words note
 (:func:`workbench.measures.explain_singularity`); the worst joint-speed ratio of every path and
@@ -30,10 +39,11 @@ import numpy as np
 from ..arm.transforms import inverse_transform, make_transform
 from ..measures import NEAR_SINGULAR as _NEAR_DEFAULT
 from .base import MAX_SEEDS, Axis, Field, Plan, StudyError, StudyKind, Table, check_rows
+from ..limits import MAX_PATH_SAMPLES
 from .cell import sample_path
 
 __all__ = ["PathAudit", "PathSettings", "track_path", "joint_speeds", "task_rows_matrix", "audit_samples",
-           "near_singular_spans", "FLAGS", "bench_path_audit"]
+           "near_singular_spans", "cycle_time_table", "FLAGS", "bench_path_audit"]
 
 _DEG = math.pi / 180.0
 
@@ -64,9 +74,11 @@ class PathSettings:
     jump: float = 10 * _DEG
     seeds: int = 16
     mount: np.ndarray | None = None
+    trajectories: tuple = ()
 
 
-_KEYS = {"paths", "spacing", "rows", "length", "near_singular", "jump", "seeds", "mount_xyz", "mount_rpy"}
+_KEYS = {"paths", "spacing", "rows", "length", "near_singular", "jump", "seeds", "mount_xyz", "mount_rpy",
+         "trajectories"}
 
 
 def _validate(settings: Mapping, arm, cell, where: str) -> PathSettings:
@@ -74,8 +86,20 @@ def _validate(settings: Mapping, arm, cell, where: str) -> PathSettings:
     if unknown:
         raise StudyError(f"{where}: unknown key '{unknown[0]}'; allowed keys: {', '.join(sorted(_KEYS))}")
     out = {}
-    if not cell.paths:
-        raise StudyError(f"{cell.path}: the cell has no [[path]] tables; a path audit needs at least one")
+    trajs = getattr(cell, "trajectories", ())
+    if not cell.paths and not trajs:
+        raise StudyError(f"{cell.path}: the cell has no [[path]] or [[trajectory]] tables; a path audit needs at "
+                         f"least one")
+    tn = settings.get("trajectories", [])
+    if isinstance(tn, str):
+        tn = [tn]
+    if not isinstance(tn, list) or not all(isinstance(x, str) for x in tn):
+        raise StudyError(f"{where} trajectories: expected a list of trajectory names, got {tn!r}")
+    for x in tn:
+        if x not in [t.name for t in trajs]:
+            raise StudyError(f"{where} trajectories: no trajectory named {x!r} in {cell.path}; trajectories are "
+                             f"{', '.join(t.name for t in trajs) or 'none'}")
+    out["trajectories"] = tuple(tn)
     names = [p.name for p in cell.paths]
     paths = settings.get("paths", [])
     if isinstance(paths, str):
@@ -196,7 +220,9 @@ def _track(arm, T, rule, seeds, jump, prev, q, flags, perr):
             qk, stat, pe = res.q, int(res.status), float(res.pos_err)
         if stat == CONVERGED:
             flags[k] |= REACHED
-        if prev is not None and _joint_step(arm, qk, prev) > jump:
+        # a flip is between two reached samples: an unreached sample's joint values are only the
+        # solver's closest miss, and a jump to or from it says nothing about the arm's branch
+        if stat == CONVERGED and prev is not None and _joint_step(arm, qk, prev) > jump:
             flags[k] |= JUMP
         q[k] = qk
         perr[k] = pe
@@ -248,6 +274,16 @@ def joint_speeds(J, twist, rule: str = "fixed", tool_z=None) -> np.ndarray:
     A = S @ J
     b = np.einsum("...ij,...j->...i", S, twist)
     return np.einsum("...ij,...j->...i", np.linalg.pinv(A), b)
+
+
+def expected_samples(cell, path, spacing: float) -> int:
+    """Samples :func:`~workbench.studies.cell.sample_path` makes for ``path`` at ``spacing`` (m), worked
+    out from the segment lengths without making them (at most one more per segment)."""
+    if getattr(path, "poses", None) is not None:  # a path from a CSV file: its rows
+        return len(path.poses)
+    corners = sample_path(cell, path, 1e12).corners  # two samples per segment: cheap
+    seg = np.diff(corners)
+    return int(1 + np.sum(np.maximum(1, np.ceil(seg / spacing - 1e-9))))
 
 
 def audit_samples(arm, q, samples_twist, rule, s: PathSettings, R_base):
@@ -332,11 +368,22 @@ class PathAudit(StudyKind):
     def plan(self, spec, arm, cell, chunk_cells=None) -> Plan:
         s = self.validate(spec.settings, arm, cell, f"{spec.where}: [settings]")
         paths = [cell.get_path(nm) for nm in s.paths] if s.paths else list(cell.paths)
+        N = sum(expected_samples(cell, p, s.spacing) for p in paths)  # before any sample is made
+        if N > MAX_PATH_SAMPLES:
+            raise StudyError(f"{spec.where}: [settings] spacing: {s.spacing:g} m gives {N:,} samples along "
+                             f"{', '.join(p.name for p in paths)}; at most {MAX_PATH_SAMPLES:,} (use a larger spacing)")
         parts = [sample_path(cell, p, s.spacing) for p in paths]
-        N = sum(len(p.s) for p in parts)
-        if N > 2_000_000:
-            raise StudyError(f"{spec.where}: [settings] spacing: {N} samples; at most 2 000 000 (use a larger spacing)")
         mount = _mount_of(s, arm, cell)
+        given = {}
+        for tr in getattr(cell, "trajectories", ()):
+            if s.trajectories and tr.name not in s.trajectories:
+                continue
+            given[len(parts)] = (tr.t, tr.joint_values(arm))
+            parts.append(_trajectory_samples(arm, mount, tr, given[len(parts)][1]))
+        N = sum(len(p.s) for p in parts)
+        if N > MAX_PATH_SAMPLES:
+            raise StudyError(f"{spec.where}: {N:,} samples in the paths and trajectories; at most "
+                             f"{MAX_PATH_SAMPLES:,}")
         inv = inverse_transform(mount)
         poses = np.concatenate([p.poses for p in parts])
         data = {
@@ -350,6 +397,8 @@ class PathAudit(StudyKind):
             "speeds": [p.speed for p in parts], "lengths": [p.length for p in parts],
             "corners": [p.corners for p in parts],
             "mount": mount, "arm_model": arm.model,
+            "requirements": [cell.requirements_for(path=p.name) for p in parts],
+            "given": given,
         }
         n = arm.n
         fields = (
@@ -368,6 +417,21 @@ class PathAudit(StudyKind):
             Field("pos_err", (), "float64", "m", "TCP position error of the tracked solution", kind="other"),
             Field("xyz", (3,), "float64", "m", "sample position in the cell frame", kind="point"),
         )
+        m = arm.model
+        if given:
+            fields += (Field("accel_ratio", (), "float64", "",
+                             "largest |joint acceleration| / limit (joint trajectories: from their times)"),)
+        if np.all(np.isfinite(m.max_speed)):
+            fields += (Field("tool_speed_max", (), "float64", "m/s",
+                             "largest tool speed along the path within the joint speed limits"),)
+        if np.all(np.isfinite(m.max_effort)) and (m.has_masses or any(r.loads for r in data["requirements"])):
+            fields += (
+                Field("torque_margin", (), "float64", "",
+                      "smallest holding-torque margin (limit - |tau|) / limit (arm weight, payload, tool wrench)"),
+                Field("torque_joint", (), "int32", "", "joint (0-based) of the smallest torque margin", kind="other"),
+                Field("tau", (n,), "float64", "N m", "holding torques (arm weight, payload, tool wrench)",
+                      kind="other"),
+            )
         axes = (Axis("sample", np.arange(N), "", "path sample"),)
         # continuation is sequential: one chunk per run keeps the work linear (any chunking gives
         # the same values: each chunk re-tracks its paths from their start)
@@ -391,6 +455,45 @@ def _rows_text(rows):
     return rows if isinstance(rows, str) else ",".join(map(str, rows))
 
 
+def _trajectory_samples(arm, mount, tr, q):
+    """PathSamples of a recorded trajectory: the TCP poses of its joint values (cell frame), the
+    distance along the tool path; no tangent or tool speed (the times say how it moves)."""
+    from .cell import PathSamples
+
+    T = _mounted(arm, mount).fk(q, world=True)
+    P = T[:, :3, 3]
+    dist = np.concatenate([[0.0], np.cumsum(np.linalg.norm(np.diff(P, axis=0), axis=1))])
+    N = len(dist)
+    return PathSamples(dist, T, np.zeros((N, 3)), np.zeros((N, 3)), np.zeros(N, int), np.array([0.0, dist[-1]]),
+                       "fixed", float("nan"), tr.name)
+
+
+def _rates_from_times(arm, given, sl, a, out, o):
+    """Joint speeds and accelerations of a recorded trajectory from its times, against the limits."""
+    from .taskdata import trajectory_rates
+
+    t, q = given
+    qd, qdd = trajectory_rates(t, q)
+    qd, qdd = qd[sl], qdd[sl]
+    m = arm.model
+    with np.errstate(invalid="ignore", divide="ignore"):
+        r = np.where(np.isfinite(m.max_speed), np.abs(qd) / m.max_speed, -np.inf)
+        ra = np.where(np.isfinite(m.max_acceleration), np.abs(qdd) / m.max_acceleration, -np.inf)
+    a["qdot"] = qd
+    a["speed_ratio"] = np.where(np.isfinite(r.max(axis=1)), r.max(axis=1), np.nan)
+    a["speed_joint"] = np.argmax(r, axis=1)
+    if "accel_ratio" in out:
+        out["accel_ratio"][o] = np.where(np.isfinite(ra.max(axis=1)), ra.max(axis=1), np.nan)
+
+
+def _mounted(arm, M):
+    from dataclasses import replace
+
+    from ..kinematics import Arm
+
+    return Arm(replace(arm.model, mount=np.asarray(M, float)))
+
+
 def compute_audit_chunk(plan, arm, start, stop) -> dict:
     """Track the paths touching samples [start, stop) from their first sample and audit the slice."""
     s = plan.settings
@@ -403,11 +506,20 @@ def compute_audit_chunk(plan, arm, start, stop) -> dict:
         p0 = idx[0]
         hi = min(stop, idx[-1] + 1)
         rule = d["rules"][p]
-        q, flags, perr = track_path(arm, d["targets"][p0:hi], rule, seeds=s.seeds, jump=s.jump)
+        given = d.get("given", {}).get(int(p))
+        if given is None:
+            q, flags, perr = track_path(arm, d["targets"][p0:hi], rule, seeds=s.seeds, jump=s.jump)
+        else:  # a recorded joint trajectory: its own joint values, audited as they are
+            q = given[1][: hi - p0]
+            step = np.concatenate([[0.0], np.max(np.abs(np.diff(q, axis=0)), axis=1)]) if len(q) else np.zeros(0)
+            flags = (REACHED | np.where(step > s.jump, JUMP, 0)).astype(np.uint8)
+            perr = np.zeros(len(q))
         lo = max(start, p0)
         sl = slice(lo - p0, hi - p0)
         qq, ff = q[sl], flags[sl]
         a = audit_samples(arm, qq, d["twist"][lo:hi], rule, s, R_base)
+        if given is not None:
+            _rates_from_times(arm, given, sl, a, out, slice(lo - start, hi - start))
         miss = (ff & REACHED) == 0  # no pose there: no measures either
         for key in ("inverse_condition", "min_sv", "manipulability", "qdot", "speed_ratio", "margin"):
             a[key] = np.where(miss.reshape((-1,) + (1,) * (a[key].ndim - 1)), np.nan, a[key])
@@ -420,6 +532,16 @@ def compute_audit_chunk(plan, arm, start, stop) -> dict:
         out["flags"][o] = ff
         for key in ("inverse_condition", "min_sv", "manipulability", "qdot", "speed_ratio", "speed_joint", "margin"):
             out[key][o] = a[key]
+        if "tool_speed_max" in out:
+            with np.errstate(divide="ignore", invalid="ignore"):
+                out["tool_speed_max"][o] = np.where(a["speed_ratio"] > 0, d["speeds"][p] / a["speed_ratio"], np.inf)
+        if "torque_margin" in out:
+            from .requirements import requirement_check
+
+            chk = requirement_check(_mounted(arm, d["mount"]), qq, d["requirements"][p])
+            out["torque_margin"][o] = np.where(miss, np.nan, chk.torque_margin)
+            out["torque_joint"][o] = np.where(miss, -1, chk.torque_joint)
+            out["tau"][o] = np.where(miss[:, None], np.nan, chk.tau)
         out["pos_err"][o] = perr[sl]
         out["xyz"][o] = d["cell_xyz"][lo:hi]
     return out
@@ -489,9 +611,16 @@ def summarise_audit(plan, arrays) -> dict:
         {k: _col(v, k in ("path", "joint")) for k, v in wrow.items()},
         {"length": "mm", "tool_speed": "mm/s", "at": "mm"},
         "speed ratio = |joint speed needed| / joint speed limit (> 1: the tool speed cannot be kept)")
+    tables["cycle_time"] = cycle_time_table(plan, arrays)
     fl = np.flatnonzero(done & ((flags & JUMP) > 0))
     if len(fl):
-        steps = [np.abs(q[k] - q[k - 1]) if k > 0 else np.zeros(arm.n) for k in fl]
+        def before(k):  # the reached sample of the same path the flip came from
+            j = k - 1
+            while j >= 0 and pidx[j] == pidx[k] and not reached[j]:
+                j -= 1
+            return j if j >= 0 and pidx[j] == pidx[k] else None
+
+        steps = [np.abs(q[k] - q[before(k)]) if before(k) is not None else np.zeros(arm.n) for k in fl]
         tables["branch_flips"] = Table(
             "Branch flips (large joint steps between samples)",
             {"path": np.array([names[pidx[k]] for k in fl], dtype=object), "at": dist[fl] * 1000,
@@ -500,6 +629,75 @@ def summarise_audit(plan, arrays) -> dict:
                                 dtype=object)},
             {"at": "mm", "step": "deg"}, f"joint steps above {np.degrees(s.jump):g} deg")
     return tables
+
+
+def cycle_time_table(plan, arrays) -> Table:
+    """Table ``cycle_time``: per path the time-optimal estimate within the joint speed and
+    acceleration limits and the path's tool speed (:func:`workbench.studies.timing.time_parameterise`),
+    the required time from the cell's requirements, whether it is met and what limits the speed."""
+    from .timing import NEGLECTED, time_parameterise
+
+    d = plan.data
+    m = d["arm_model"]
+    dist = np.asarray(arrays["distance"], float)
+    pidx = np.asarray(arrays["path_index"])
+    q = np.asarray(arrays["q"], float)
+    flags = np.asarray(arrays["flags"]).astype(np.uint8)
+    rows = {"path": [], "time": [], "required": [], "meets": [], "length": [], "tool_speed": [],
+            "at_tool_speed": [], "limited_by": [], "note": []}
+    reqs = d.get("requirements") or [None] * len(d["names"])
+    for p, nm in enumerate(d["names"]):
+        sel = np.flatnonzero((pidx == p) & np.isfinite(dist))
+        if not len(sel):
+            continue
+        need = reqs[p].time if reqs[p] is not None else None
+        rows["path"].append(nm)
+        rows["required"].append(np.nan if need is None else need)
+        rows["length"].append(d["lengths"][p] * 1000)
+        rows["tool_speed"].append(d["speeds"][p] * 1000)
+        est, frac, lim, note = np.nan, np.nan, "-", ""
+        given = d.get("given", {}).get(p)
+        if given is not None:
+            est, lim = float(given[0][-1] - given[0][0]), "recorded times"
+            note = "a recorded joint trajectory: its own duration"
+            if "accel_ratio" in arrays:
+                ar = np.asarray(arrays["accel_ratio"], float)[sel]
+                if np.isfinite(ar).any() and np.nanmax(ar) > 1:
+                    note += f"; joint accelerations up to {np.nanmax(ar):.2f}x the limits"
+            sr = np.asarray(arrays["speed_ratio"], float)[sel]
+            if np.isfinite(sr).any() and np.nanmax(sr) > 1:
+                note += f"; joint speeds up to {np.nanmax(sr):.2f}x the limits"
+        elif np.any((flags[sel] & REACHED) == 0):
+            note = f"not estimated: {int(np.sum((flags[sel] & REACHED) == 0))} samples unreached"
+        elif not np.any(np.isfinite(m.max_speed)):
+            note = "not estimated: the arm file gives no joint speed limits"
+        else:
+            s_, q_ = dist[sel], q[sel]
+            keep = np.concatenate([[True], np.diff(s_) > 0])
+            try:
+                r = time_parameterise(s_[keep], q_[keep], m.max_speed, m.max_acceleration, d["speeds"][p])
+            except Exception as exc:  # an estimate is a help, never a reason to lose the results
+                note = f"not estimated: {exc}"
+            else:
+                est = r.time
+                frac = float(np.mean(r.binding == 0))
+                lim = r.summary()
+                note = "; ".join(r.notes + ((("branch flips on the path: the joint jumps are timed as they are"),)
+                                            if np.any(flags[sel] & JUMP) else ()))
+        rows["time"].append(est)
+        rows["at_tool_speed"].append(frac)
+        rows["limited_by"].append(lim)
+        rows["note"].append(note)
+        if need is None:
+            rows["meets"].append("no time asked")
+        elif not np.isfinite(est):
+            rows["meets"].append("not checked")
+        else:
+            rows["meets"].append("yes" if est <= need else f"no: {est - need:.2f} s over")
+    return Table("Cycle time per path (time-optimal within joint speed and acceleration limits)",
+                 {k: _col(v, k in ("path", "meets", "limited_by", "note")) for k, v in rows.items()},
+                 {"time": "s", "required": "s", "length": "mm", "tool_speed": "mm/s"},
+                 f"rest to rest along the path at most at its tool speed; neglected: {NEGLECTED}")
 
 
 # ----------------------------------------------------------------------------------------------

@@ -26,6 +26,7 @@ from dataclasses import dataclass, field, replace
 
 import tomli_w
 
+from ..limits import MAX_TEXT_BYTES, check_toml_text
 from .base import StudyError, get_kind
 
 __all__ = ["StudySpec", "read_study_file", "parse_study_dict", "dumps_study", "write_study_file",
@@ -130,13 +131,15 @@ def read_text(path: str, what: str) -> str:
     """A UTF-8 text file's content, or a :class:`StudyError` naming ``what`` and the path."""
     try:
         with open(path, "rb") as fh:
-            raw = fh.read()
+            raw = fh.read(MAX_TEXT_BYTES + 1)
     except IsADirectoryError:
         raise StudyError(f"{what}: {path} is a directory, expected a file") from None
     except FileNotFoundError:
         raise StudyError(f"{what}: {path}: no such file") from None
     except OSError as exc:
         raise StudyError(f"{what}: {path}: cannot be read ({exc.strerror})") from None
+    if len(raw) > MAX_TEXT_BYTES:
+        raise StudyError(f"{what}: {path}: larger than {MAX_TEXT_BYTES >> 20} MB; expected a TOML file of a few kB")
     try:
         return raw.decode("utf-8")
     except UnicodeDecodeError:
@@ -156,6 +159,7 @@ def read_study_file(path) -> StudySpec:
     """
     path = os.fspath(path)
     text = read_text(path, "study file")
+    check_toml_text(text, path, StudyError)
     try:
         data = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
@@ -254,6 +258,9 @@ def load_context(spec: StudySpec):
             raise StudyError(f"{where}: [study] cell: cell file {cell_path} does not exist")
         cell_text = read_text(cell_path, f"{where}: [study] cell")
         cell = _read_cell(cell_path, where)
+        from .taskdata import self_contained_text
+
+        cell_text = self_contained_text(cell, cell_text)  # the CSV files it names go into the results too
     elif get_kind(spec.kind).needs_cell:
         raise StudyError(f"{where}: [study] cell: study kind {spec.kind!r} needs a cell file")
     return arm, cell, arm_text, cell_text
