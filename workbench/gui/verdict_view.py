@@ -68,13 +68,17 @@ class VerdictView(QtWidgets.QWidget):
         self.decision = None
         self.path = None
         self._pending = None
+        self._timer = QtCore.QTimer(self)      # a child: it dies with the view, so no late call
+        self._timer.setSingleShot(True)
+        self._timer.setInterval(0)
+        self._timer.timeout.connect(self._load_pending)
 
     # ---- input ---------------------------------------------------------------------------
     def show_file(self, path):
         """Show the verdicts of the results file ``path`` (None clears). The decision is worked
         out after the current event is handled, so a finishing run's handler returns first."""
         self._pending = path
-        QtCore.QTimer.singleShot(0, self._load_pending)
+        self._timer.start()
 
     def _load_pending(self):
         path, self._pending = self._pending, None
