@@ -141,7 +141,7 @@ def test_ten_billion_samples_are_refused_before_allocating(tmp_path, capsys):
 
 
 def test_cell_positions_are_bounded(tmp_path, capsys):
-    text = TRAY.read_text().replace("xyz = [0.55, 0.75, 0.35]", "xyz = [1000000.0, 0.75, 0.35]")
+    text = TRAY.read_text().replace("xyz = [0.55, 0.72, 0.35]", "xyz = [1000000.0, 0.75, 0.35]")
     with pytest.raises(CellFileError, match=r"\[\[point\]\] 1 'xyz' \(line 12\): value 1e\+06 m is beyond the "
                                             r"limit of 1000 m"):
         parse_cell_text(text, "c.toml")
