@@ -3,6 +3,7 @@ from __future__ import annotations
 
 import math
 import re
+import shutil
 from pathlib import Path
 
 import numpy as np
@@ -50,6 +51,7 @@ def test_a_urdf_in_millimetres_with_limits_in_degrees(tmp_path, capsys):
                   text)
     f = tmp_path / "u6_mm.urdf"
     f.write_text(text)
+    shutil.copytree(ARMS / "meshes", tmp_path / "meshes")  # the URDF's collision meshes, beside it
     assert main(["info", str(f)]) == 0
     w = " ".join(warnings_of(capsys))
     assert "a URDF written in millimetres" in w and "degrees written where URDF expects radians" in w

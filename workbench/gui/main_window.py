@@ -17,7 +17,7 @@ from .arm_panel import ArmPanel
 from .cellview import CellContent, cell_content
 from .files import DEMO_ARM, FILE_FILTER, classify, find_demo_cell
 from .posestate import PoseState
-from .result_views import HistogramView, MapView, PoseListView
+from .result_views import LIVE_MAX_CELLS, HistogramView, MapView, PoseListView
 from .resultdata import ResultData
 from .project import Project, folder_beside_study
 from .runs import StudySession, StudyWorker, session_from_results, session_from_spec
@@ -32,6 +32,12 @@ ORG_NAME = "ManipulabilityWorkbench"
 APP_NAME = "Workbench"
 MAX_RECENT = 8
 MAX_GHOSTS = 12
+#: during a run the map follows new chunks at most this often (chunks arriving in between are
+#: drawn together), the histogram and the pose list every SLOW_REDRAW_S, the progress bar every
+#: PROGRESS_S: the event loop stays free and the worker is not slowed by redraws
+REDRAW_MS = 500
+SLOW_REDRAW_S = 3.0
+PROGRESS_S = 0.25
 CAUTIONS = ("The maps are kinematic and static: they do not replace a risk assessment for a robot cell, "
             "the arm maker's data, a check on the real controller, or local codes and licensed practice "
             "(robot cell safety is governed by standards such as ISO 10218-1/-2).")
@@ -182,6 +188,8 @@ class MainWindow(QtWidgets.QMainWindow):
 
         self.arm_panel = ArmPanel(self.state)
         self.arm_panel.error_reporter = self.show_error
+        self.arm_panel.cell_source = lambda: self.cell          # clearance of the pose (gui/cellview.py)
+        self.arm_panel.pose_checked.connect(self.scene.set_bodies)
         self.study_panel = StudyPanel()
         self.study_panel.set_estimator(self._estimate_text)
         for title, w, area, name in (("Arm", self.arm_panel, QtCore.Qt.LeftDockWidgetArea, "arm_dock"),
@@ -229,7 +237,7 @@ class MainWindow(QtWidgets.QMainWindow):
         self.study_panel.load_requested.connect(lambda: self.open_dialog("Load a study file"))
         self._refresh_timer = QtCore.QTimer(self)
         self._refresh_timer.setSingleShot(True)
-        self._refresh_timer.setInterval(250)
+        self._refresh_timer.setInterval(REDRAW_MS)
         self._slow_refresh_t = 0.0
         self._refresh_timer.timeout.connect(self._refresh_results)
 
@@ -369,6 +377,7 @@ class MainWindow(QtWidgets.QMainWindow):
         self.cell, self.cell_path = cell, os.path.abspath(path)
         self.cell_content = content
         self.scene.set_cell(content)
+        self.arm_panel.refresh()
 
     def _apply_study(self, path):
         from ..studies import load_context, read_study_file
@@ -380,6 +389,7 @@ class MainWindow(QtWidgets.QMainWindow):
             self.cell, self.cell_path = cell, spec.cell_path
             self.cell_content = cell_content(cell)
             self.scene.set_cell(self.cell_content)
+            self.arm_panel.refresh()
         self.arm_path = spec.arm_path
         self._set_arm(arm)
         self.study_panel.load_spec(spec)
@@ -399,6 +409,7 @@ class MainWindow(QtWidgets.QMainWindow):
             self.cell, self.cell_path = session.cell, session.spec.cell_path
             self.cell_content = cell_content(session.cell)
             self.scene.set_cell(self.cell_content)
+            self.arm_panel.refresh()
         self.arm_path = session.spec.arm_path
         self._set_arm(session.arm)
         try:      # the form shows the study behind the file (its kind and settings)
@@ -578,10 +589,15 @@ class MainWindow(QtWidgets.QMainWindow):
         self.session = session
         self.results_file = None
         self.show_result(session.data)
+        if session.data.size > LIVE_MAX_CELLS:
+            self.hist_view.info.setText(f"{session.data.size:,} cells: the histogram and the pose list "
+                                        f"follow when the run ends; the map shows every chunk")
         out = project.new_run_path(spec.name)
         self.worker = StudyWorker(spec, out, executor=self.executor)
         self.worker.chunk_finished.connect(self._on_chunk)
-        self.worker.cells.connect(self.study_panel.show_progress)
+        self.worker.cells.connect(self._on_cells)
+        self._progress_t = 0.0
+        self._slow_refresh_t = time.perf_counter()
         self.worker.finished.connect(self._on_finished)
         self.study_panel.set_running(True)
         self._run_t0 = time.perf_counter()
@@ -601,18 +617,30 @@ class MainWindow(QtWidgets.QMainWindow):
         if not self._refresh_timer.isActive():
             self._refresh_timer.start()
 
+    def _on_cells(self, done, total, left):
+        """Progress of the run: the bar and the time left, at most every PROGRESS_S (the last always)."""
+        now = time.perf_counter()
+        if done < total and now - self._progress_t < PROGRESS_S:
+            return
+        self._progress_t = now
+        self.study_panel.show_progress(done, total, left)
+
     def _refresh_results(self):
-        """Show finished chunks. While a run goes on only the map (or series) follows at once; the
-        histogram and the pose list catch up at most once a second and at the end."""
+        """Show finished chunks (all that arrived since the last redraw, together). While a run
+        goes on the map (or series) follows every REDRAW_MS; the histogram and the pose list catch
+        up every SLOW_REDRAW_S and at the end."""
         if self.result is None:
             return
         if self.session is not None:
             self.session.refresh_derived()
-        self._show_candidates()
         running = self.running
+        d = self.result
+        if not running or d.tcp is not None or d.mount_fn is not None:
+            self._show_candidates()          # only these change with new chunks
         self.map_view.refresh(final=not running)
         now = time.perf_counter()
-        if not running or now - self._slow_refresh_t > 1.0:
+        big = d.size > LIVE_MAX_CELLS      # a large map: histogram and list wait for the end
+        if not running or (not big and now - self._slow_refresh_t > SLOW_REDRAW_S):
             self._slow_refresh_t = now
             self.hist_view.set_measure(self.map_view.measure or self.result.threshold_measure, self.state.threshold)
             self.pose_list.refresh()

@@ -22,6 +22,10 @@ HIST_BINS = 60
 SEL_RGBA = (255, 140, 0, 150)
 CONTOUR_MAX_CELLS = 160          # the contour is traced on a grid of at most this many cells a side
 LOG_MEASURES = ("condition",)
+#: while a run goes on, a map with more cells than this is drawn from every k-th row and column
+#: (at most LIVE_SIDE a side); the final redraw shows every cell
+LIVE_MAX_CELLS = 250_000
+LIVE_SIDE = 500
 
 
 def measure_label(name) -> str:
@@ -205,7 +209,13 @@ class MapView(QtWidgets.QWidget):
         d = self.data
         if d is None or not d.is_map:
             return
-        v = display_values(d, self.measure).reshape(d.shape)
+        if not final and d.size > LIVE_MAX_CELLS:
+            k = int(np.ceil(max(d.shape) / LIVE_SIDE))
+            raw = d.measures[self.measure].reshape(d.shape)[::k, ::k]
+            v = display_values(ResultData(kind="", shape=raw.shape, x=d.x, y=d.y, x_label="",
+                                          measures={self.measure: raw.reshape(-1)}), self.measure).reshape(raw.shape)
+        else:
+            v = display_values(d, self.measure).reshape(d.shape)
         lo, hi = _finite_range(v)
         self.image.setImage(v, autoLevels=False, levels=(lo, hi))
         self.image.setRect(self._rect)
