@@ -147,7 +147,7 @@ def run(args) -> int:
 
 def reach_estimate(arm, samples=REACH_SAMPLES, seed=0) -> dict:
     """Largest TCP distance from joint 1's axis and from joint 1's origin over random in-limit
-    poses (plus the home pose), and the nominal reach (sum of link offsets and tool length).
+    poses (plus the home pose), and the characteristic length (stated or the axis chain).
 
     Returns
     -------
@@ -174,7 +174,11 @@ def reach_estimate(arm, samples=REACH_SAMPLES, seed=0) -> dict:
         best_axis = max(best_axis, float(np.linalg.norm(radial, axis=1).max()))
         best_origin = max(best_origin, float(np.linalg.norm(d, axis=1).max()))
     return {"from_axis_m": best_axis, "from_origin_m": best_origin,
-            "nominal_m": float(arm.nominal_reach()), "samples": int(samples) + 1}
+            "nominal_m": float(arm.characteristic_length()),
+            "characteristic_length_m": float(arm.characteristic_length()),
+            "axis_chain_m": float(arm.model.axis_chain_length),
+            "characteristic_length_source": "arm file" if arm.model.stated_length is not None else "axis chain",
+            "samples": int(samples) + 1}
 
 
 def warnings_for(arm) -> list[str]:
@@ -360,7 +364,13 @@ def format_info(info: dict) -> str:
     r = info["reach"]
     lines.append(f"  reach: {r['from_axis_m'] * 1000:.0f} mm from joint 1's axis, "
                  f"{r['from_origin_m'] * 1000:.0f} mm from joint 1's origin (largest over {r['samples'] - 1} random "
-                 f"in-limit poses and the home pose); nominal {r['nominal_m'] * 1000:.0f} mm (sum of link offsets and tool)")
+                 f"in-limit poses and the home pose)")
+    if r["characteristic_length_source"] == "arm file":
+        lines.append(f"  characteristic length: {r['characteristic_length_m'] * 1000:.0f} mm (stated in the arm file; "
+                     f"axis chain {r['axis_chain_m'] * 1000:.0f} mm)")
+    else:
+        lines.append(f"  characteristic length: {r['characteristic_length_m'] * 1000:.0f} mm (axis chain: the reach "
+                     f"bound from joint 1's axis, the same for any file form of this arm)")
     col = info.get("collision") or {}
     if col.get("bodies"):
         lines.append("")
