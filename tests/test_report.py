@@ -71,7 +71,7 @@ def test_path_audit_and_load_map_state_the_base_placement(reports):
     d, r, out = reports
     p1 = _text(out["pa_pdf"], 1)
     assert "Base placement used" in p1 and "x = 50 mm, y = 0 mm, height 0 mm, yaw 0.0 deg (the cell file's" in p1
-    assert "over, 230-370 mm" in p1 and "fail" in p1 and "joints 1 and 6 cancel" in p1
+    assert "over, 220-380 mm" in p1 and "fail" in p1 and "joints 1 and 6 cancel" in p1
     p1 = _text(out["lm_pdf"], 1)
     assert "Base placement used" in p1 and "the arm holds at least" in p1 and "kg" in p1
 

@@ -149,7 +149,7 @@ def test_csv_and_png_exports(tmp_path):
     assert head[:3] == ["cell", "j1 [deg]", "j2 [deg]"] and "inverse_condition" in head
     row = dict(zip(head, lines[1].split(",")))
     # near-singular rows of this j3 x j5 sweep sit at j5 = 0 (wrist axes 4 and 6 aligned)
-    assert float(row["j5 [deg]"]) == 0.0 and float(row["j2 [deg]"]) == pytest.approx(-90.0)
+    assert float(row["j5 [deg]"]) == 0.0 and float(row["j2 [deg]"]) == pytest.approx(0.0)  # j2 at the home pose
     cells = export_csv(r, tmp_path / "cells.csv", table="cells")
     assert cells == r.cells
     allrows = np.loadtxt(tmp_path / "cells.csv", delimiter=",", skiprows=1)
@@ -191,7 +191,7 @@ def test_context_rebuilds_plan_and_poses_from_the_stored_texts(tmp_path):
     j2, j6 = plan.axes[0].values, plan.axes[1].values
     np.testing.assert_allclose(q[:, 1], [j2[0], j2[1], j2[4]])
     np.testing.assert_allclose(q[:, 5], [j6[0], j6[3], j6[3]])
-    np.testing.assert_allclose(q[:, [0, 2, 3, 4]], np.radians([[0, 90, 0, 45]] * 3))
+    np.testing.assert_allclose(q[:, [0, 2, 3, 4]], np.radians([[0, 0, 0, 90]] * 3))
     # the measures stored for those cells are the ones of those poses
     from workbench.measures import pose_measures
 

@@ -32,6 +32,7 @@ ENTRIES = [
     ("path_audit", "workbench.studies.path_audit:bench_path_audit"),
     ("largest_force", "workbench.measures:bench_largest_force"),
     ("cycle_time", "workbench.studies.timing:bench_timing"),
+    ("clearance", "workbench.studies.clearance_bench:bench_clearance"),
     ("gui", "workbench.gui.bench:bench_gui"),
 ]
 

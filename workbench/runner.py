@@ -33,7 +33,7 @@ import numpy as np
 from .errors import WorkbenchError
 from .procs import process_identity, start_watchdog
 from .results import MemoryWriter, OutputLock, Results, ResultsWriter, check_output_path, read_results
-from .studies.base import RNG_BLOCK, Plan, StudyKind, calibrate, get_kind
+from .studies.base import RNG_BLOCK, Plan, StudyKind, calibrate, get_kind, length_attrs
 from .studies.spec import StudySpec, dumps_study, load_context, read_study_file
 
 __all__ = ["run_study", "prepare", "Prepared", "RunError", "EXECUTORS", "bench_sweep", "bench_scaling",
@@ -431,7 +431,7 @@ def run_study(study, out=None, executor="inprocess", workers=None, scheduler=Non
             progress(0, total, est.seconds / (1 if executor == "inprocess" else n_workers) if total else 0.0)
 
         attrs = {"executor": executor, "workers": n_workers if executor != "inprocess" else 1,
-                 "estimate_s": float(est.seconds)}
+                 "estimate_s": float(est.seconds), **length_attrs(plan, arm)}
         writer = (ResultsWriter(out, plan, prep.texts, attrs, compression=compression) if out is not None
                   else MemoryWriter(plan, prep.texts, attrs))
         done_cells = 0

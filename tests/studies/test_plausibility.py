@@ -3,6 +3,7 @@ from __future__ import annotations
 
 import math
 import re
+import shutil
 from pathlib import Path
 
 import numpy as np
@@ -31,12 +32,12 @@ def test_demo_arms_and_cell_give_no_plausibility_warning():
 
 
 def test_metre_values_in_an_mm_file(tmp_path, capsys):
-    # the S6 demo reaches 1.6 m; read as millimetres it reaches 1.6 mm (1000 x less: the unit factor)
+    # the S6 demo reaches at most 1.71 m (axis chain: 0.15 + 0.60 + 0.12 + 0.62 + 0.10 + 0.12); read as millimetres 1.71 mm (1000 x less: the unit factor)
     f = tmp_path / "s6_mm.toml"
     f.write_text(S6.read_text().replace('length_unit = "m"', 'length_unit = "mm"'))
     assert main(["info", str(f)]) == 0
     w = warnings_of(capsys)
-    assert len(w) == 1 and "reaches only 1.6 mm" in w[0] and "length_unit = 'mm'" in w[0]
+    assert len(w) == 1 and "reaches only 1.71 mm" in w[0] and "length_unit = 'mm'" in w[0]
     assert load_arm(f).nominal_reach() * 1000 == np.float64(load_arm(S6).nominal_reach()) or \
         math.isclose(load_arm(f).nominal_reach() * 1000, load_arm(S6).nominal_reach(), rel_tol=1e-12)
 
@@ -50,6 +51,7 @@ def test_a_urdf_in_millimetres_with_limits_in_degrees(tmp_path, capsys):
                   text)
     f = tmp_path / "u6_mm.urdf"
     f.write_text(text)
+    shutil.copytree(ARMS / "meshes", tmp_path / "meshes")  # the URDF's collision meshes, beside it
     assert main(["info", str(f)]) == 0
     w = " ".join(warnings_of(capsys))
     assert "a URDF written in millimetres" in w and "degrees written where URDF expects radians" in w

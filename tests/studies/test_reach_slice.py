@@ -209,14 +209,15 @@ def test_demo_study_file_plans_and_computes_a_chunk():
 
 
 def test_neighbour_seeds_fill_a_seeding_hole_without_losing_points():
-    # a spot of the demo arm's tool-down slice (reaching back over the shoulder with j4 near 180 deg)
-    # where the 8 generated seeds miss points that their grid neighbours' solutions reach
+    # a spot of the demo arm's tool-down slice (just behind the first axis, x = -0.02 m, z 0.74-0.78 m)
+    # where the 8 generated seeds miss points that their grid neighbours' solutions reach (found by
+    # running the whole 141 x 121 slice with and without the retry)
     sp = read_study_file(ROOT / "arms" / "cells" / "reach_slice_s6.toml")
     arm, cell, _a, _c = load_context(sp)
     kind = get_kind("reach_slice")
     reached = {}
     for flag in (False, True):
-        plan = kind.plan(sp.with_settings(u=[-0.34, -0.26], v=[0.22, 0.30], steps=[5, 5], neighbour_seeds=flag),
+        plan = kind.plan(sp.with_settings(u=[-0.06, 0.02], v=[0.70, 0.82], steps=[5, 7], neighbour_seeds=flag),
                          arm, cell)
         out = run_all(plan, arm)
         reached[flag] = (out["status"] & REACHED) != 0

@@ -14,14 +14,16 @@ __all__ = ["ArmModel", "Joint", "ArmError", "ArmFileError", "read_arm_model", "r
 ARM_FILE_TYPES = (".toml", ".urdf", ".xml")
 
 
-def read_urdf(path, base_link: str | None = None, tip_link: str | None = None) -> ArmModel:
+def read_urdf(path, base_link: str | None = None, tip_link: str | None = None,
+              package_paths: dict | None = None) -> ArmModel:
     """Import the serial chain of a URDF file; see :func:`workbench.arm.urdf.read_urdf`."""
     from .urdf import read_urdf as _read
 
-    return _read(path, base_link=base_link, tip_link=tip_link)
+    return _read(path, base_link=base_link, tip_link=tip_link, package_paths=package_paths)
 
 
-def read_arm_model(path, base_link: str | None = None, tip_link: str | None = None) -> ArmModel:
+def read_arm_model(path, base_link: str | None = None, tip_link: str | None = None,
+                   package_paths: dict | None = None) -> ArmModel:
     """Read an arm file (``.toml``) or a URDF (``.urdf``/``.xml``) -> ArmModel (SI units).
 
     Parameters
@@ -31,6 +33,9 @@ def read_arm_model(path, base_link: str | None = None, tip_link: str | None = No
     base_link, tip_link : str, optional
         URDF only: the links that start and end the imported chain (default: the root link and the
         single leaf link).
+    package_paths : dict, optional
+        URDF only: NAME -> folder for ``package://NAME/...`` mesh paths (default: those set with
+        :func:`workbench.arm.urdf.set_package_paths`, e.g. by ``--package-path``).
 
     Raises
     ------
@@ -46,7 +51,7 @@ def read_arm_model(path, base_link: str | None = None, tip_link: str | None = No
         raise ArmFileError(f"{p}: is a directory, expected an arm file (.toml or .urdf)")
     ext = os.path.splitext(p)[1].lower()
     if ext in (".urdf", ".xml"):
-        return read_urdf(p, base_link=base_link, tip_link=tip_link)
+        return read_urdf(p, base_link=base_link, tip_link=tip_link, package_paths=package_paths)
     if ext != ".toml":
         raise ArmFileError(f"{p}: unknown arm file type {ext or '(none)'!r}; expected .toml (arm file) or .urdf")
     if base_link is not None or tip_link is not None:

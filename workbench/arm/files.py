@@ -8,6 +8,8 @@ Schema (angles in degrees, lengths in the file's ``length_unit``: "m" or "mm")::
     geometry = "dh"              # "dh" (standard DH), "mdh" (modified DH) or "origins"
     length_unit = "m"            # "m" (default) or "mm"
     home = [0, -90, 90, 0, 0, 0] # optional; degrees (revolute) / length unit (prismatic)
+    characteristic_length = 1.5  # optional (length unit): divides translational rows of mixed
+                                 #   measures; default: the axis-chain length (model.axis_chain_length)
 
     [[joint]]                    # one table per joint, base to tip (at most MAX_JOINTS)
     name = "shoulder"            # required, unique; not only digits, no ':' or ','
@@ -91,7 +93,7 @@ _ROT_TOL = 1e-6
 _DEG = math.pi / 180.0
 _UNITS = {"m": 1.0, "mm": 1e-3}
 _TOP_KEYS = {"arm", "joint", "tool", "mount", "flange", "base"}
-_ARM_KEYS = {"name", "description", "geometry", "length_unit", "home", "skip"}
+_ARM_KEYS = {"name", "description", "geometry", "length_unit", "home", "skip", "characteristic_length"}
 _JOINT_COMMON = {"name", "type", "limits", "max_speed", "max_effort", "max_acceleration", "mass", "com", "radius",
                  "shape"}
 _JOINT_GEOM = {"dh": {"a", "alpha", "d", "theta"}, "mdh": {"a", "alpha", "d", "theta"},
@@ -477,6 +479,10 @@ def parse_arm_dict(data: dict, source_name: str = "<arm>", text: str | None = No
         raise sa.fail(f"expected 'm' or 'mm', got {_show(unit)}", "length_unit")
     L = _UNITS[unit]
     description = sa.text(arm.get("description", ""), "description")
+    stated_length = None
+    if "characteristic_length" in arm:
+        stated_length = sa.num(arm["characteristic_length"], "characteristic_length", positive=True,
+                               what=f"a positive length ({unit})") * L
 
     joints_raw = data.get("joint")
     if joints_raw is None:
@@ -649,7 +655,7 @@ def parse_arm_dict(data: dict, source_name: str = "<arm>", text: str | None = No
 
     return ArmModel(name=name.strip(), joints=tuple(joints), end=end, tool=tool, mount=mount,
                     home=home, description=description, tool_mass=tool_mass, tool_com=tool_com,
-                    source=data, path=source_name, tool_shapes=tuple(tool_shapes),
+                    source=data, path=source_name, stated_length=stated_length, tool_shapes=tuple(tool_shapes),
                     base_shapes=tuple(base_shapes), skip_pairs=tuple(sorted(set(skip))))
 
 
@@ -682,7 +688,8 @@ def same_arm(a: ArmModel, b: ArmModel, atol: float = 1e-9) -> bool:
         return False
     return (_same_opt(a.end, b.end, atol) and _same_opt(a.tool, b.tool, atol) and _same_opt(a.mount, b.mount, atol)
             and _same_opt(a.home, b.home, atol) and abs(a.tool_mass - b.tool_mass) <= atol
-            and _same_opt(a.tool_com, b.tool_com, atol))
+            and _same_opt(a.tool_com, b.tool_com, atol)
+            and _same_opt(a.stated_length, b.stated_length, atol))
 
 
 def _tidy(x) -> float:
@@ -703,6 +710,8 @@ def _model_to_dict(model: ArmModel) -> dict:
         out["arm"]["description"] = model.description
     if model.home is not None:
         out["arm"]["home"] = [_tidy(v / _DEG) if j.revolute else _tidy(v) for v, j in zip(model.home, model.joints)]
+    if model.stated_length is not None:
+        out["arm"]["characteristic_length"] = _tidy(model.stated_length)
     joints = []
     for j in model.joints:
         jd = {"name": j.name, "type": j.kind, **_place_dict(j.origin), "axis": [_tidy(x) for x in j.axis]}

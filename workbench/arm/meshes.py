@@ -31,7 +31,7 @@ __all__ = ["mesh_shape", "enclose_points", "MAX_TRIANGLES", "MAX_MESH_BYTES", "M
 
 MAX_TRIANGLES = 2_000_000
 MAX_MESH_BYTES = 256 * 1024 * 1024
-_EPS = 1e-9
+_EPS = 1e-7              # m added to every enclosure (rounding of the transforms)
 
 
 class MeshError(ArmError):

@@ -27,7 +27,7 @@ import numpy as np
 
 from ..errors import WorkbenchError
 
-__all__ = ["Joint", "ArmModel", "REVOLUTE", "PRISMATIC", "ArmError"]
+__all__ = ["Joint", "ArmModel", "axis_chain_length", "REVOLUTE", "PRISMATIC", "ArmError"]
 
 REVOLUTE = "revolute"
 PRISMATIC = "prismatic"
@@ -107,6 +107,7 @@ class ArmModel:
     tool_shapes: tuple = ()
     base_shapes: tuple = ()
     skip_pairs: tuple = ()
+    stated_length: float | None = None   # characteristic length (m) stated in the arm file
 
     # collision bodies: 0 the base (base frame), 1..n the link of joint 1..n (its joint frame),
     # n + 1 the tool (flange frame); ``skip_pairs`` holds extra (body, body) pairs not checked
@@ -210,6 +211,99 @@ class ArmModel:
         except ValueError:
             raise ArmError(f"no joint named {name_or_index!r}: joints are {', '.join(self.names)}") from None
 
+    @cached_property
+    def axis_chain_length(self) -> float:
+        """The arm's own characteristic length (m), from its joint axes as lines; see
+        :func:`axis_chain_length`."""
+        return axis_chain_length(self)
+
+    @property
+    def characteristic_length(self) -> float:
+        """The characteristic length (m) that divides translational rows of mixed measures: the
+        value stated in the arm file (``characteristic_length``) or else :attr:`axis_chain_length`."""
+        return float(self.stated_length) if self.stated_length is not None else self.axis_chain_length
+
     def limit_span(self) -> np.ndarray:
         """(n,) upper - lower (inf for unlimited joints)."""
         return self.upper - self.lower
+
+
+# ---------------------------------------------------------------------------------------------
+# the characteristic length from the joint axes
+
+_PARALLEL_SIN = 1e-7     # |u x v| below this: the two axes are parallel
+
+
+def _feet(p, u, r, v):
+    """Feet of the common perpendicular of the lines p + s u and r + t v (unit u, v, not
+    parallel): the closest points on each."""
+    w = p - r
+    b, d, e = float(u @ v), float(u @ w), float(v @ w)
+    den = 1.0 - b * b
+    s = (b * e - d) / den
+    t = (e - b * d) / den
+    return p + s * u, r + t * v
+
+
+def _project(x, r, v):
+    """The point of the line r + t v nearest to x."""
+    return r + float((x - r) @ v) * v
+
+
+def axis_chain_length(model: "ArmModel") -> float:
+    """Characteristic length (m) of an arm from its kinematics only, the same however the arm file
+    places the joint frames along (or around) the joint axes.
+
+    The revolute joint axes at q = 0 are taken as lines in space. A polyline runs from a point x1 on
+    the first axis to the TCP: along each axis from where it arrived to the foot of the common
+    perpendicular with the next axis, then along that perpendicular to the next axis (for parallel
+    neighbours: straight across, without moving along the axis); along the last axis to the foot of
+    the TCP's perpendicular, then to the TCP. x1 is the foot on the first axis of the common
+    perpendicular with the first later axis not parallel to it (if all are parallel: the TCP's
+    projection on the first axis). The length is the polyline's length plus, for each prismatic
+    joint with finite limits, its largest travel max(|lower|, |upper|).
+
+    Each piece of the polyline is rigid in one link (the common perpendicular of two consecutive
+    revolute axes does not change with the joint values), so for arms without prismatic joints
+    the TCP never gets further than this length from x1: it is the arm's reach measured from its
+    first axis, with the base height excluded. The result depends only on the lines and the TCP,
+    not on where the file puts its frames, so standard DH, modified DH, origins and URDF forms of
+    one arm agree (to rounding). Returns 1.0 for an arm where everything is zero.
+    """
+    T = np.eye(4)
+    lines = []
+    travel = 0.0
+    for j in model.joints:
+        T = T @ np.asarray(j.origin, float)
+        u = T[:3, :3] @ np.asarray(j.axis, float)
+        u = u / np.linalg.norm(u)
+        if j.kind == REVOLUTE:
+            lines.append((T[:3, 3].copy(), u))
+        elif np.isfinite(j.lower) and np.isfinite(j.upper):
+            travel += max(abs(j.lower), abs(j.upper))
+    P = (T @ np.asarray(model.end, float) @ np.asarray(model.tool, float))[:3, 3]
+    if not lines:
+        total = travel
+        return float(total) if total > 0 else 1.0
+
+    def parallel(a, b):
+        return float(np.linalg.norm(np.cross(a[1], b[1]))) < _PARALLEL_SIN
+
+    x = None
+    for k in range(1, len(lines)):
+        if not parallel(lines[0], lines[k]):
+            x = _feet(*lines[0], *lines[k])[0]
+            break
+    if x is None:
+        x = _project(P, *lines[0])
+    total = 0.0
+    for a, b in zip(lines[:-1], lines[1:]):
+        if parallel(a, b):
+            f, g = x, _project(x, *b)
+        else:
+            f, g = _feet(*a, *b)
+        total += float(np.linalg.norm(f - x) + np.linalg.norm(g - f))
+        x = g
+    h = _project(P, *lines[-1])
+    total += float(np.linalg.norm(h - x) + np.linalg.norm(P - h)) + travel
+    return float(total) if total > 0 else 1.0

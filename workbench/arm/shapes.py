@@ -64,10 +64,23 @@ class Shape:
 
     def same(self, other: "Shape", atol: float = 1e-9) -> bool:
         return (self.kind == other.kind and self.mesh == other.mesh
-                and np.allclose(self.a, other.a, atol=atol, rtol=0) and np.allclose(self.b, other.b, atol=atol, rtol=0)
                 and abs(self.radius - other.radius) <= atol and abs(self.length - other.length) <= atol
-                and np.allclose(self.pose, other.pose, atol=atol, rtol=0)
+                and self._same_placement(other, atol)
                 and np.allclose(self.size, other.size, atol=atol, rtol=0))
+
+    def _same_placement(self, other: "Shape", atol: float) -> bool:
+        # a cylinder is symmetric about its axis (local z) and a sphere or capsule has no pose of
+        # its own beyond its points: a turn about that axis is the same shape
+        if self.kind in ("sphere", "capsule"):
+            R, t, R2, t2 = self.pose[:3, :3], self.pose[:3, 3], other.pose[:3, :3], other.pose[:3, 3]
+            return bool(np.allclose(R @ self.a + t, R2 @ other.a + t2, atol=atol, rtol=0)
+                        and np.allclose(R @ self.b + t, R2 @ other.b + t2, atol=atol, rtol=0))
+        if not np.allclose(self.pose[:3, 3], other.pose[:3, 3], atol=atol, rtol=0):
+            return False
+        if self.kind == "cylinder":
+            return bool(np.allclose(self.pose[:3, 2], other.pose[:3, 2], atol=atol, rtol=0)
+                        or np.allclose(self.pose[:3, 2], -other.pose[:3, 2], atol=atol, rtol=0))
+        return bool(np.allclose(self.pose, other.pose, atol=atol, rtol=0))
 
     def describe(self) -> str:
         """Short words with sizes in mm, e.g. 'capsule r 60 mm, 450 mm long'."""
@@ -79,7 +92,10 @@ class Shape:
             return "box " + " x ".join(f"{s * 1e3:.0f}" for s in self.size) + " mm"
         if self.kind == "cylinder":
             return f"cylinder r {self.radius * 1e3:.0f} mm, {self.length * 1e3:.0f} mm long"
-        return (f"mesh {self.mesh} (enclosure {self.volume_ratio:.2f}x the convex hull's volume)")
+        import os
+
+        return (f"mesh {self.name or os.path.basename(self.mesh)} (checked as a capsule and a box around its "
+                f"convex hull, at most {self.volume_ratio:.2f}x the hull's volume)")
 
 
 def check_shape(s: Shape, where: str) -> Shape:

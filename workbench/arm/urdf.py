@@ -13,6 +13,14 @@ URDF is the open XML robot description format of the trade. What is read:
   mass, expressed in the joint's frame (the inertial origin's rotation does not move the centre of
   mass; the inertia tensor is not used).
 
+* ``<collision>`` elements of every link rigidly attached to a moving link (or to the base):
+  ``<origin>`` and ``<geometry>`` with ``<box size>``, ``<cylinder radius length>``,
+  ``<sphere radius>`` or ``<mesh filename scale>`` (STL, binary or ASCII; a path relative to the
+  URDF's folder, or ``package://NAME/...`` resolved in the folder given for NAME with
+  ``package_paths`` / ``--package-path NAME=DIR``; paths that leave that folder are refused).
+  Meshes become conservative enclosures (:mod:`workbench.arm.meshes`). Shapes go to the joint of
+  the link they belong to (in its frame), or to the base.
+
 Refused with one clear line (:class:`~workbench.arm.files.ArmFileError`): malformed XML, DTDs and
 entity declarations (entity expansion, external entities: parsed with defusedxml), xacro macros,
 two roots, cycles, a link with two parents (closed loops), joints naming links that do not exist,
@@ -31,7 +39,49 @@ from .files import MAX_FILE_BYTES, MAX_JOINTS, ArmFileError, arm_joint_name
 from .model import PRISMATIC, REVOLUTE, ArmModel, Joint
 from .transforms import make_transform
 
-__all__ = ["read_urdf", "parse_urdf_text"]
+__all__ = ["read_urdf", "parse_urdf_text", "set_package_paths", "package_paths", "resolve_mesh_path"]
+
+_PACKAGE_PATHS: dict[str, str] = {}
+
+
+def set_package_paths(paths: dict | None) -> None:
+    """Default folders for ``package://NAME/...`` mesh paths (the CLI's ``--package-path``)."""
+    _PACKAGE_PATHS.clear()
+    _PACKAGE_PATHS.update({str(k): os.fspath(v) for k, v in (paths or {}).items()})
+
+
+def package_paths() -> dict:
+    return dict(_PACKAGE_PATHS)
+
+
+def resolve_mesh_path(filename: str, urdf_dir: str | None, packages: dict, where: str) -> str:
+    """The file a URDF mesh ``filename`` names: relative to the URDF's folder, absolute, ``file://``
+    or ``package://NAME/REL`` inside the folder given for NAME (never outside it)."""
+    if filename.startswith("package://"):
+        rest = filename[len("package://"):]
+        name, _, rel = rest.partition("/")
+        if not name or not rel:
+            raise ArmFileError(f"{where}: mesh filename {filename!r}: expected package://NAME/PATH")
+        if name not in packages:
+            known = ", ".join(sorted(packages)) or "none given"
+            raise ArmFileError(f"{where}: mesh filename {filename!r}: no folder for package {name!r} ({known}); "
+                               f"give --package-path {name}=DIR")
+        root = os.path.realpath(packages[name])
+        if os.path.isabs(rel):
+            raise ArmFileError(f"{where}: mesh filename {filename!r} escapes the folder of package {name!r}")
+        full = os.path.realpath(os.path.join(root, rel))
+        if os.path.commonpath([root, full]) != root:
+            raise ArmFileError(f"{where}: mesh filename {filename!r} escapes the folder of package {name!r} "
+                               f"({root})")
+        return full
+    if filename.startswith("file://"):
+        return filename[len("file://"):]
+    if "://" in filename:
+        raise ArmFileError(f"{where}: mesh filename {filename!r}: only relative paths, file:// and package:// "
+                           f"are read")
+    if os.path.isabs(filename) or urdf_dir is None:
+        return filename
+    return os.path.join(urdf_dir, filename)
 
 _MOVING = {"revolute", "continuous", "prismatic"}
 _KNOWN = _MOVING | {"fixed", "floating", "planar"}
@@ -47,7 +97,8 @@ class _Joint:
     __slots__ = ("name", "type", "parent", "child", "origin", "axis", "limit", "mimic")
 
 
-def read_urdf(path, base_link: str | None = None, tip_link: str | None = None) -> ArmModel:
+def read_urdf(path, base_link: str | None = None, tip_link: str | None = None,
+              package_paths: dict | None = None) -> ArmModel:
     """Import the serial chain of a URDF file.
 
     Parameters
@@ -84,11 +135,12 @@ def read_urdf(path, base_link: str | None = None, tip_link: str | None = None) -
     if len(raw) > MAX_FILE_BYTES * 4:
         raise ArmFileError(f"{path}: larger than {MAX_FILE_BYTES * 4 // (1024 * 1024)} MB; refusing to parse it "
                            f"as a URDF")
-    return parse_urdf_text(raw, source_name=path, base_link=base_link, tip_link=tip_link)
+    return parse_urdf_text(raw, source_name=path, base_link=base_link, tip_link=tip_link,
+                           package_paths=package_paths)
 
 
 def parse_urdf_text(raw, source_name: str = "<urdf>", base_link: str | None = None,
-                    tip_link: str | None = None) -> ArmModel:
+                    tip_link: str | None = None, package_paths: dict | None = None) -> ArmModel:
     """Import the serial chain of URDF text (str or bytes); see :func:`read_urdf`."""
     import defusedxml
     from defusedxml import ElementTree as DET
@@ -129,6 +181,7 @@ def parse_urdf_text(raw, source_name: str = "<urdf>", base_link: str | None = No
 
     # ---- links ---------------------------------------------------------------------------------
     links: dict[str, tuple[float | None, np.ndarray | None]] = {}  # name -> (mass, com in link frame)
+    collisions: dict[str, list] = {}
     for k, el in enumerate(root.findall("link")):
         lname = el.get("name")
         if not lname:
@@ -136,6 +189,7 @@ def parse_urdf_text(raw, source_name: str = "<urdf>", base_link: str | None = No
         if lname in links:
             raise ArmFileError(f"{src}: <link name={lname!r}> is defined twice")
         links[lname] = _inertial(el, src, lname)
+        collisions[lname] = el.findall("collision")
     if not links:
         raise ArmFileError(f"{src}: no <link> elements; expected a URDF robot")
 
@@ -244,6 +298,8 @@ def parse_urdf_text(raw, source_name: str = "<urdf>", base_link: str | None = No
                            f"{MAX_JOINTS} are supported")
 
     # ---- build the model -----------------------------------------------------------------------
+    packages = dict(_PACKAGE_PATHS if package_paths is None else package_paths)
+    base_shapes = _shapes_of(base, children, collisions, src, packages)
     out: list[Joint] = []
     pending = np.eye(4)
     for j in path_joints:
@@ -256,7 +312,8 @@ def parse_urdf_text(raw, source_name: str = "<urdf>", base_link: str | None = No
         lower, upper, effort, velocity = _limits(j, where)
         mass, com = _lumped(j.child, children, links)
         out.append(Joint(j.name, PRISMATIC if j.type == "prismatic" else REVOLUTE,
-                         np.ascontiguousarray(origin), j.axis.copy(), lower, upper, velocity, effort, mass, com))
+                         np.ascontiguousarray(origin), j.axis.copy(), lower, upper, velocity, effort, mass, com,
+                         shapes=tuple(_shapes_of(j.child, children, collisions, src, packages))))
     end = pending
     names = [j.name for j in out]
     if len(set(names)) != len(names):  # pragma: no cover - joint names are unique above
@@ -275,7 +332,7 @@ def parse_urdf_text(raw, source_name: str = "<urdf>", base_link: str | None = No
     if renamed:
         description += f"; joints renamed for arm files: {', '.join(renamed)}"
     return ArmModel(name=robot_name, joints=tuple(out), end=np.ascontiguousarray(end), home=home,
-                    description=description, source=None, path=src)
+                    description=description, source=None, path=src, base_shapes=tuple(base_shapes))
 
 
 def _subtree(base, children):
@@ -377,3 +434,60 @@ def _lumped(link, children, links):
         return None, None
     com = moment / total if total > 0 else np.zeros(3)
     return total, com
+
+
+def _shapes_of(link, children, collisions, src, packages) -> list:
+    """Collision shapes (in ``link``'s frame) of ``link`` and every link fixed to it."""
+    from .model import ArmError
+    from .shapes import MAX_SHAPES, box, check_shape, cylinder, sphere
+
+    urdf_dir = None if src.startswith("<") else os.path.dirname(os.path.abspath(src))
+    out = []
+    stack = [(link, np.eye(4))]
+    while stack:
+        name, T = stack.pop()
+        for k, col in enumerate(collisions.get(name, ())):
+            where = f"{src}: link {name!r} <collision> {k + 1}"
+            o = col.find("origin")
+            G = np.eye(4) if o is None else make_transform(_triple(o.get("xyz"), where, "origin xyz"),
+                                                           _triple(o.get("rpy"), where, "origin rpy"))
+            P = T @ G
+            geo = col.find("geometry")
+            kids = [] if geo is None else [e for e in geo if isinstance(e.tag, str)]
+            if len(kids) != 1:
+                raise ArmFileError(f"{where}: expected one of <box>, <cylinder>, <sphere>, <mesh> in <geometry>")
+            g = kids[0]
+            if g.tag == "box":
+                sz = _triple(g.get("size"), where, "box size")
+                shp = box(P, sz)
+            elif g.tag == "cylinder":
+                shp = cylinder(P, _float(g.get("radius"), where, "cylinder radius"),
+                               _float(g.get("length"), where, "cylinder length"))
+            elif g.tag == "sphere":
+                shp = sphere(P[:3, 3], _float(g.get("radius"), where, "sphere radius"))
+            elif g.tag == "mesh":
+                fn = g.get("filename")
+                if not fn:
+                    raise ArmFileError(f"{where}: <mesh> without a filename attribute")
+                scale = np.ones(3) if g.get("scale") is None else _triple(g.get("scale"), where, "mesh scale")
+                if np.any(scale == 0):
+                    raise ArmFileError(f"{where}: mesh scale {g.get('scale')!r} flattens the mesh")
+                from .meshes import mesh_shape
+
+                path = resolve_mesh_path(fn, urdf_dir, packages, where)
+                try:
+                    shp = mesh_shape(path, scale, P, where=where, file_name=fn)
+                except ArmError as exc:
+                    raise ArmFileError(str(exc)) from None
+            else:
+                raise ArmFileError(f"{where}: unknown geometry <{g.tag}>; expected box, cylinder, sphere or mesh")
+            try:
+                out.append(check_shape(shp, where))
+            except ArmError as exc:
+                raise ArmFileError(str(exc)) from None
+            if len(out) > MAX_SHAPES:
+                raise ArmFileError(f"{where}: more than {MAX_SHAPES} collision shapes on one link")
+        for j in children.get(name, ()):
+            if j.type == "fixed":
+                stack.append((j.child, T @ j.origin))
+    return out

@@ -28,14 +28,38 @@ def add_arm_arguments(p) -> None:
                    help="URDF only: link where the chain starts (default: the root link)")
     p.add_argument("--tip", metavar="LINK", default=None,
                    help="URDF only: link where the chain ends (default: the single leaf link)")
+    add_package_path_argument(p)
+
+
+def add_package_path_argument(p) -> None:
+    """``--package-path NAME=DIR`` (repeatable): where ``package://NAME/...`` mesh paths are."""
+    p.add_argument("--package-path", metavar="NAME=DIR", action="append", default=[],
+                   help="URDF meshes: folder of package NAME for package://NAME/... paths (repeatable)")
+
+
+def package_paths(args) -> dict:
+    """NAME -> DIR from ``--package-path`` options; sets them as the default for URDF imports."""
+    from ..arm.urdf import set_package_paths
+
+    out = {}
+    for item in getattr(args, "package_path", None) or []:
+        name, sep, folder = item.partition("=")
+        if not sep or not name.strip() or not folder.strip():
+            raise WorkbenchError(f"--package-path {item!r}: expected NAME=DIR")
+        if not os.path.isdir(folder):
+            raise WorkbenchError(f"--package-path {item!r}: {folder} is not a folder")
+        out[name.strip()] = folder
+    set_package_paths(out)
+    return out
 
 
 def load(args):
-    """The :class:`workbench.kinematics.Arm` named by ``args.arm`` (with --base/--tip)."""
+    """The :class:`workbench.kinematics.Arm` named by ``args.arm`` (with --base/--tip/--package-path)."""
     from ..arm import read_arm_model
     from ..kinematics import Arm
 
-    return Arm(read_arm_model(args.arm, base_link=args.base, tip_link=args.tip))
+    pk = package_paths(args)
+    return Arm(read_arm_model(args.arm, base_link=args.base, tip_link=args.tip, package_paths=pk))
 
 
 def joint_unit(joint) -> tuple[float, str]:
@@ -123,7 +147,7 @@ def run(args) -> int:
 
 def reach_estimate(arm, samples=REACH_SAMPLES, seed=0) -> dict:
     """Largest TCP distance from joint 1's axis and from joint 1's origin over random in-limit
-    poses (plus the home pose), and the nominal reach (sum of link offsets and tool length).
+    poses (plus the home pose), and the characteristic length (stated or the axis chain).
 
     Returns
     -------
@@ -150,7 +174,11 @@ def reach_estimate(arm, samples=REACH_SAMPLES, seed=0) -> dict:
         best_axis = max(best_axis, float(np.linalg.norm(radial, axis=1).max()))
         best_origin = max(best_origin, float(np.linalg.norm(d, axis=1).max()))
     return {"from_axis_m": best_axis, "from_origin_m": best_origin,
-            "nominal_m": float(arm.nominal_reach()), "samples": int(samples) + 1}
+            "nominal_m": float(arm.characteristic_length()),
+            "characteristic_length_m": float(arm.characteristic_length()),
+            "axis_chain_m": float(arm.model.axis_chain_length),
+            "characteristic_length_source": "arm file" if arm.model.stated_length is not None else "axis chain",
+            "samples": int(samples) + 1}
 
 
 def warnings_for(arm) -> list[str]:
@@ -239,7 +267,8 @@ def summarise(arm, samples=REACH_SAMPLES, seed=0) -> dict:
         "home_given": m.home is not None,
         "moving_mass_kg": total_mass,
         "reach": reach_estimate(arm, samples=samples, seed=seed),
-        "warnings": warnings_for(arm),
+        "collision": collision_summary(arm),
+        "warnings": warnings_for(arm) + collision_warnings(arm),
     }
     from ..studies.plausibility import arm_warnings
 
@@ -247,6 +276,40 @@ def summarise(arm, samples=REACH_SAMPLES, seed=0) -> dict:
     out["plausibility"] = plaus
     out["warnings"] = plaus + out["warnings"]
     return out
+
+
+def collision_summary(arm) -> dict:
+    """Shapes per body, pairs checked and skipped, and the self-clearance at the home pose."""
+    from ..collision import nearest, pair_names, self_pairs
+
+    m = arm.model
+    names = m.body_names()
+    bodies = [{"body": names[b], "shapes": [s.describe() for s in shapes]}
+              for b, shapes in enumerate(m.body_shapes()) if shapes]
+    out = {"bodies": bodies, "skipped": [[names[a], names[b]] for a, b in m.skip_pairs],
+           "self_pairs": len(self_pairs(m))}
+    if m.has_shapes or m.base_shapes:
+        d, k = nearest(arm, arm.home_q, None, self_collision=True)
+        pn = pair_names(arm, None)
+        out["home_clearance_mm"] = None if not np.isfinite(d) else _clean(float(d) * 1000.0, 6)
+        out["home_nearest"] = None if int(k) < 0 else list(pn[int(k)])
+    return out
+
+
+def collision_warnings(arm) -> list[str]:
+    from ..collision import pair_distances, pair_names
+
+    m = arm.model
+    if not m.has_shapes:
+        return ["no collision shapes: studies cannot check collisions (give 'radius' or [[joint.shape]] "
+                "tables, or <collision> elements in a URDF)"]
+    names = pair_names(arm, None)
+    d = pair_distances(arm, arm.home_q, None)
+    bad = [f"{a} - {b} ({v * 1000:.0f} mm)" for (a, b), v in zip(names, d) if v < 0]
+    if bad:
+        return [f"collision shapes overlap at the home pose: {', '.join(bad[:6])}; if a pair always "
+                f"touches, list it in [arm] skip"]
+    return []
 
 
 def _described_as(m) -> str:
@@ -301,7 +364,26 @@ def format_info(info: dict) -> str:
     r = info["reach"]
     lines.append(f"  reach: {r['from_axis_m'] * 1000:.0f} mm from joint 1's axis, "
                  f"{r['from_origin_m'] * 1000:.0f} mm from joint 1's origin (largest over {r['samples'] - 1} random "
-                 f"in-limit poses and the home pose); nominal {r['nominal_m'] * 1000:.0f} mm (sum of link offsets and tool)")
+                 f"in-limit poses and the home pose)")
+    if r["characteristic_length_source"] == "arm file":
+        lines.append(f"  characteristic length: {r['characteristic_length_m'] * 1000:.0f} mm (stated in the arm file; "
+                     f"axis chain {r['axis_chain_m'] * 1000:.0f} mm)")
+    else:
+        lines.append(f"  characteristic length: {r['characteristic_length_m'] * 1000:.0f} mm (axis chain: the reach "
+                     f"bound from joint 1's axis, the same for any file form of this arm)")
+    col = info.get("collision") or {}
+    if col.get("bodies"):
+        lines.append("")
+        lines.append("  collision shapes:")
+        for b in col["bodies"]:
+            lines.append(f"    {b['body']}: {'; '.join(b['shapes'])}")
+        skipped = ", ".join(f"{a} - {b}" for a, b in col.get("skipped", []))
+        lines.append(f"    {col['self_pairs']} body pairs checked against each other (chain neighbours never"
+                     f"{'; skipped: ' + skipped if skipped else ''})")
+        if col.get("home_clearance_mm") is not None:
+            a, b = col["home_nearest"]
+            lines.append(f"    clearance at the home pose (floor and own links): {fmt_num(col['home_clearance_mm'])} mm, "
+                         f"{a} - {b}")
     if info["warnings"]:
         lines.append("")
         lines.append("warnings:")

@@ -37,6 +37,9 @@ def add_parser(subparsers):
                    help="HDF5 compression of the result arrays: lz4 (Blosc LZ4 + shuffle, fast, default; other "
                         "HDF5 tools need the Blosc filter plugin), lzf, gzip (any HDF5 tool) or none")
     p.add_argument("--quiet", action="store_true", help="no progress on stderr")
+    from .info import add_package_path_argument
+
+    add_package_path_argument(p)
     return p
 
 
@@ -106,6 +109,9 @@ def run(args) -> int:
         raise WorkbenchError(f"--out {out}: a results file is HDF5; expected a name ending in .h5 "
                              f"(or .hdf5), got {os.path.splitext(out)[1] or 'no extension'}")
     out = check_output_path(out)
+    from .info import package_paths
+
+    package_paths(args)  # package:// folders for URDF meshes named by the study's arm
     prep = prepare(args.study)  # reads and checks the study, arm and cell files
     check_out_is_not_an_input(out, prep.plan.spec)
     from ..studies.base import unused_note

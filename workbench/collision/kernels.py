@@ -119,61 +119,82 @@ def point_box(x0, x1, x2, P, k):
 
 
 @njit(cache=True, inline="always", error_model="numpy")
-def _gprime(t, p, d, h):
-    g = 0.0
-    for k in range(3):
-        x = p[k] + t * d[k]
-        if x > h[k]:
-            g += 2.0 * (x - h[k]) * d[k]
-        elif x < -h[k]:
-            g += 2.0 * (x + h[k]) * d[k]
-    return g
+def _gp1(x, d, h):
+    if x > h:
+        return 2.0 * (x - h) * d
+    if x < -h:
+        return 2.0 * (x + h) * d
+    return 0.0
 
 
 @njit(cache=True, inline="always", error_model="numpy")
-def _gval(t, p, d, h):
-    g = 0.0
-    for k in range(3):
-        x = abs(p[k] + t * d[k]) - h[k]
-        if x > 0.0:
-            g += x * x
-    return g
+def _gprime(t, p0, p1, p2, d0, d1, d2, h0, h1, h2):
+    return (_gp1(p0 + t * d0, d0, h0) + _gp1(p1 + t * d1, d1, h1) + _gp1(p2 + t * d2, d2, h2))
+
+
+@njit(cache=True, inline="always", error_model="numpy")
+def _out2(x, h):
+    v = abs(x) - h
+    return v * v if v > 0.0 else 0.0
+
+
+@njit(cache=True, inline="always", error_model="numpy")
+def _insert(ts, n, t):
+    """Insert t into the sorted ts[0:n] (t strictly inside (0, 1)); returns n + 1."""
+    j = n - 1
+    while j >= 0 and ts[j] > t:
+        ts[j + 1] = ts[j]
+        j -= 1
+    ts[j + 1] = t
+    return n + 1
 
 
 @njit(cache=True, error_model="numpy")
 def seg_box_local(p, d, h, ts):
     """Signed distance between the segment p + t d (t in [0, 1]) and the box |x_k| <= h_k (box frame).
 
-    ``ts`` is scratch of length >= 8. Exact outside (piecewise-linear root of the derivative of the
-    squared distance); inside, golden-section search of the convex signed distance.
+    ``ts`` is scratch of length >= 8. Exact outside: the squared distance is convex and piecewise
+    quadratic in t with breaks where a coordinate crosses +-h_k; its derivative is continuous and
+    piecewise linear, and its root is found exactly on the piece where the derivative changes sign.
+    Inside, golden-section search of the convex signed distance.
     """
-    n = 0
-    ts[n] = 0.0
-    n += 1
-    for k in range(3):
-        if d[k] != 0.0:
-            for sg in (-1.0, 1.0):
-                t = (sg * h[k] - p[k]) / d[k]
-                if 0.0 < t < 1.0:
-                    ts[n] = t
-                    n += 1
-    ts[n] = 1.0
-    n += 1
-    # insertion sort
-    for i in range(1, n):
-        v = ts[i]
-        j = i - 1
-        while j >= 0 and ts[j] > v:
-            ts[j + 1] = ts[j]
-            j -= 1
-        ts[j + 1] = v
-    gp_prev = _gprime(ts[0], p, d, h)
+    p0, p1, p2 = p[0], p[1], p[2]
+    d0, d1, d2 = d[0], d[1], d[2]
+    h0, h1, h2 = h[0], h[1], h[2]
+    gp_prev = _gprime(0.0, p0, p1, p2, d0, d1, d2, h0, h1, h2)
     if gp_prev >= 0.0:
         tbest = 0.0
+    elif _gprime(1.0, p0, p1, p2, d0, d1, d2, h0, h1, h2) <= 0.0:
+        tbest = 1.0
     else:
+        ts[0] = 0.0
+        n = 1
+        if d0 != 0.0:
+            t = (h0 - p0) / d0
+            if 0.0 < t < 1.0:
+                n = _insert(ts, n, t)
+            t = (-h0 - p0) / d0
+            if 0.0 < t < 1.0:
+                n = _insert(ts, n, t)
+        if d1 != 0.0:
+            t = (h1 - p1) / d1
+            if 0.0 < t < 1.0:
+                n = _insert(ts, n, t)
+            t = (-h1 - p1) / d1
+            if 0.0 < t < 1.0:
+                n = _insert(ts, n, t)
+        if d2 != 0.0:
+            t = (h2 - p2) / d2
+            if 0.0 < t < 1.0:
+                n = _insert(ts, n, t)
+            t = (-h2 - p2) / d2
+            if 0.0 < t < 1.0:
+                n = _insert(ts, n, t)
+        ts[n] = 1.0
+        n += 1
         tbest = 1.0
         for i in range(1, n):
-            gp = _gprime(ts[i], p, d, h)
+            gp = _gprime(ts[i], p0, p1, p2, d0, d1, d2, h0, h1, h2)
             if gp >= 0.0:
                 t0, t1 = ts[i - 1], ts[i]
                 den = gp - gp_prev
@@ -184,33 +205,38 @@ def seg_box_local(p, d, h, ts):
                     tbest = t1
                 break
             gp_prev = gp
-    g = _gval(tbest, p, d, h)
-    if g > 0.0:
+    g = _out2(p0 + tbest * d0, h0) + _out2(p1 + tbest * d1, h1) + _out2(p2 + tbest * d2, h2)
+    if g > 1e-20:  # more than 1e-10 m away (below that, rounding cannot tell touching from entering)
         return math.sqrt(g)
     # the segment touches or enters the box: smallest signed distance along it (convex in t)
     lo, hi = 0.0, 1.0
     x1 = hi - _GOLD * (hi - lo)
     x2 = lo + _GOLD * (hi - lo)
-    f1 = _box_sd_local(p[0] + x1 * d[0], p[1] + x1 * d[1], p[2] + x1 * d[2], h[0], h[1], h[2])
-    f2 = _box_sd_local(p[0] + x2 * d[0], p[1] + x2 * d[1], p[2] + x2 * d[2], h[0], h[1], h[2])
-    for _ in range(60):
+    f1 = _box_sd_local(p0 + x1 * d0, p1 + x1 * d1, p2 + x1 * d2, h0, h1, h2)
+    f2 = _box_sd_local(p0 + x2 * d0, p1 + x2 * d1, p2 + x2 * d2, h0, h1, h2)
+    for _ in range(45):  # 0.618^45 = 4e-10 of the segment length
         if f1 < f2:
             hi = x2
             x2 = x1
             f2 = f1
             x1 = hi - _GOLD * (hi - lo)
-            f1 = _box_sd_local(p[0] + x1 * d[0], p[1] + x1 * d[1], p[2] + x1 * d[2], h[0], h[1], h[2])
+            f1 = _box_sd_local(p0 + x1 * d0, p1 + x1 * d1, p2 + x1 * d2, h0, h1, h2)
         else:
             lo = x1
             x1 = x2
             f1 = f2
             x2 = lo + _GOLD * (hi - lo)
-            f2 = _box_sd_local(p[0] + x2 * d[0], p[1] + x2 * d[1], p[2] + x2 * d[2], h[0], h[1], h[2])
+            f2 = _box_sd_local(p0 + x2 * d0, p1 + x2 * d1, p2 + x2 * d2, h0, h1, h2)
     best = min(f1, f2)
-    for t in (0.0, 1.0, tbest):
-        v = _box_sd_local(p[0] + t * d[0], p[1] + t * d[1], p[2] + t * d[2], h[0], h[1], h[2])
-        if v < best:
-            best = v
+    v = _box_sd_local(p0, p1, p2, h0, h1, h2)
+    if v < best:
+        best = v
+    v = _box_sd_local(p0 + d0, p1 + d1, p2 + d2, h0, h1, h2)
+    if v < best:
+        best = v
+    v = _box_sd_local(p0 + tbest * d0, p1 + tbest * d1, p2 + tbest * d2, h0, h1, h2)
+    if v < best:
+        best = v
     return best if best < 0.0 else 0.0
 
 

@@ -1,6 +1,8 @@
 """The arm panel: summary, one slider + spin box per joint (degrees, mm for prismatic joints), the
-measures at the current pose, the plain-words note near a singularity, the TCP pose, and the
-settings that choose what is measured (task rows, frame, characteristic length, threshold)."""
+measures at the current pose, the plain-words note near a singularity, the TCP pose, the clearance
+check of the pose (the nearest pair named, "link 3 within 4 mm of box 'conveyor'"), and the
+settings that choose what is measured (task rows, frame, characteristic length, threshold,
+clearance)."""
 from __future__ import annotations
 
 import numpy as np
@@ -8,6 +10,7 @@ from PySide6 import QtCore, QtWidgets
 
 from ..arm.transforms import matrix_to_rpy
 from ..errors import WorkbenchError
+from .cellview import DEFAULT_CLEARANCE, PoseClearance, pose_clearance
 from .posestate import ROW_CHOICES, PoseState
 
 __all__ = ["ArmPanel", "to_display", "from_display"]
@@ -61,7 +64,14 @@ class _JointRow:
 
 
 class ArmPanel(QtWidgets.QWidget):
-    """Panel over a :class:`PoseState`; it writes changes into the state and redraws from it."""
+    """Panel over a :class:`PoseState`; it writes changes into the state and redraws from it.
+
+    ``cell_source`` (set by the window) returns the current cell (or None: the floor only) for the
+    clearance check; ``pose_checked(arm, q, PoseClearance)`` is emitted after every refresh so the
+    scene can colour the bodies that are too close.
+    """
+
+    pose_checked = QtCore.Signal(object, object, object)
 
     def __init__(self, state: PoseState, parent=None):
         super().__init__(parent)
@@ -116,6 +126,15 @@ class ArmPanel(QtWidgets.QWidget):
         self.thr_spin.setKeyboardTracking(False)
         self.thr_spin.valueChanged.connect(lambda v: self._apply(lambda: self.state.set_threshold(v)))
         form.addRow("Near-singular below 1/k", self.thr_spin)
+        self.clear_spin = QtWidgets.QDoubleSpinBox()
+        self.clear_spin.setRange(0.0, 1000.0)
+        self.clear_spin.setDecimals(1)
+        self.clear_spin.setSuffix(" mm")
+        self.clear_spin.setValue(DEFAULT_CLEARANCE * 1000.0)
+        self.clear_spin.setKeyboardTracking(False)
+        self.clear_spin.setToolTip("A link closer than this to an obstacle or another link is drawn red")
+        self.clear_spin.valueChanged.connect(lambda _v: self.refresh())
+        form.addRow("Clearance", self.clear_spin)
         outer.addWidget(sbox)
 
         mbox = QtWidgets.QGroupBox("At this pose")
@@ -129,6 +148,10 @@ class ArmPanel(QtWidgets.QWidget):
             lab.setTextInteractionFlags(QtCore.Qt.TextSelectableByMouse)
             self.m_labels[key] = lab
             mform.addRow(text, lab)
+        self.clear_label = QtWidgets.QLabel("-")
+        self.clear_label.setWordWrap(True)
+        self.clear_label.setTextInteractionFlags(QtCore.Qt.TextSelectableByMouse)
+        mform.addRow("Clearance", self.clear_label)
         self.note = QtWidgets.QLabel("")
         self.note.setWordWrap(True)
         self.note.setStyleSheet("color: #b01010; font-weight: bold")
@@ -136,6 +159,8 @@ class ArmPanel(QtWidgets.QWidget):
         outer.addWidget(mbox)
         outer.addStretch(1)
         self.error_reporter = None   # set by the main window: fn(message)
+        self.cell_source = lambda: None
+        self.clearance = PoseClearance()
         self.rows = []
         self.rebuild()
 
@@ -213,6 +238,24 @@ class ArmPanel(QtWidgets.QWidget):
         self.m_labels["rpy"].setText(f"{rpy[0]:.1f}, {rpy[1]:.1f}, {rpy[2]:.1f}")
         self.note.setText(info.note)
         self.m_labels["inverse_condition"].setStyleSheet("color: #b01010" if info.near_singular else "")
+        self._check_clearance(info.q)
+
+    @property
+    def clearance_setting(self) -> float:
+        """The clearance setting (m)."""
+        return self.clear_spin.value() / 1000.0
+
+    def _check_clearance(self, q):
+        arm = self.state.arm
+        try:
+            self.clearance = pose_clearance(arm, q, self.cell_source(), self.clearance_setting)
+        except WorkbenchError as exc:          # a cell or arm the kernel refuses: say so, keep going
+            self.clearance = PoseClearance(setting=self.clearance_setting)
+            self.clear_label.setText(f"not checked: {exc}")
+        else:
+            self.clear_label.setText(self.clearance.text())
+        self.clear_label.setStyleSheet("color: #b01010; font-weight: bold" if self.clearance.too_close else "")
+        self.pose_checked.emit(arm, np.asarray(q, float).copy(), self.clearance)
 
     def slider_values(self) -> np.ndarray:
         """(n,) joint values shown by the spin boxes, SI units (for tests)."""

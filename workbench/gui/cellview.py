@@ -1,5 +1,6 @@
-"""What the scene draws of a cell (pure numpy, no Qt): work points, paths, equipment boxes and
-mount candidates, in world coordinates (m).
+"""What the scene draws of a cell and of the arm's collision shapes (pure numpy, no Qt): work
+points, paths, equipment boxes, pillars, keep-out zones, mount candidates, the recommended mount,
+the shapes of every body at a pose and the clearance check of that pose, in world coordinates (m).
 
 :func:`cell_content` turns whatever the cell module gives (an object with attributes or a mapping)
 into this one plain form, so the scene does not depend on the cell file schema.
@@ -10,7 +11,24 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-__all__ = ["CellContent", "cell_content", "box_edges"]
+__all__ = ["CellContent", "CellCylinder", "cell_content", "box_edges", "cylinder_edges", "shape_edges",
+           "body_frames", "world_shapes", "PoseClearance", "pose_clearance", "stripe_segments",
+           "DEFAULT_CLEARANCE", "shape_mesh", "body_wires", "body_meshes"]
+
+# m: a link closer than this to an obstacle or another link is drawn red (the studies' default)
+DEFAULT_CLEARANCE = 0.01
+
+
+@dataclass
+class CellCylinder:
+    """A pillar as drawn: centre (3,), unit axis (3,), radius, height (m)."""
+
+    name: str
+    center: np.ndarray
+    axis: np.ndarray
+    radius: float
+    height: float
+    collide: bool = True
 
 
 @dataclass
@@ -23,10 +41,17 @@ class CellContent:
     candidates: np.ndarray = field(default_factory=lambda: np.zeros((0, 3)))   # (c, 3) m
     candidate_scores: np.ndarray | None = None                                 # (c,) in [0, 1]
     name: str = ""
+    box_names: list = field(default_factory=list)                              # one per box
+    box_collide: list = field(default_factory=list)                            # one bool per box
+    cylinders: list = field(default_factory=list)                              # [CellCylinder]
+    keep_outs: list = field(default_factory=list)                              # [(8, 3) corners]
+    keep_out_names: list = field(default_factory=list)
+    floor: bool = True
 
     @property
     def empty(self) -> bool:
-        return not (len(self.points) or self.paths or self.boxes or len(self.candidates))
+        return not (len(self.points) or self.paths or self.boxes or len(self.candidates) or self.cylinders
+                    or self.keep_outs)
 
 
 def _get(obj, *names, default=None):
@@ -93,7 +118,18 @@ def cell_content(cell, path_spacing=0.01) -> CellContent:
                 xyz = np.asarray(v, float).reshape(-1, 3)
         if xyz is not None and len(xyz) > 1:
             out.paths.append(np.asarray(xyz, float))
-    for b in _get(cell, "boxes", default=None) or ():
+    out.floor = bool(_get(cell, "floor", default=True))
+    for i, b in enumerate(_get(cell, "keep_outs", default=None) or ()):
+        out.keep_outs.append(np.asarray(b.corners(), float))
+        out.keep_out_names.append(str(_get(b, "name", default=f"keep-out {i + 1}")))
+    for i, c in enumerate(_get(cell, "cylinders", default=None) or ()):
+        ax = np.asarray(_get(c, "axis", default=(0.0, 0.0, 1.0)), float)
+        out.cylinders.append(CellCylinder(str(_get(c, "name", default=f"pillar {i + 1}")),
+                                          np.asarray(c.center, float), ax / np.linalg.norm(ax), float(c.radius),
+                                          float(c.height), bool(_get(c, "collide", default=True))))
+    for i, b in enumerate(_get(cell, "boxes", default=None) or ()):
+        out.box_names.append(str(_get(b, "name", default=f"box {i + 1}")))
+        out.box_collide.append(bool(_get(b, "collide", default=True)))
         if hasattr(b, "corners"):
             out.boxes.append(np.asarray(b.corners(), float))
             continue
@@ -118,3 +154,266 @@ def box_edges(corners) -> np.ndarray:
     c = np.asarray(corners, float)
     return np.asarray([c[i] if t == 0 else c[j] for i in range(8) for j in range(i + 1, 8)
                        if (i ^ j) in (1, 2, 4) for t in (0, 1)])
+
+
+def stripe_segments(corners, spacing=0.05) -> np.ndarray:
+    """Warning stripes on the four side faces of a box given by its 8 corners: segments at 45
+    degrees every ``spacing`` m along each face, plus the edges -> (2k, 3) segment end points.
+
+    A keep-out zone is drawn this way (hatched) so it never reads as solid equipment."""
+    c = np.asarray(corners, float)
+    o = c[0]
+    ex, ey, ez = c[4] - o, c[2] - o, c[1] - o       # index bits: x = 4, y = 2, z = 1
+    segs = [box_edges(c)]
+    for origin, u in ((o, ex), (o + ey, ex), (o, ey), (o + ex, ey)):
+        w, h = float(np.linalg.norm(u)), float(np.linalg.norm(ez))
+        if w <= 0 or h <= 0:
+            continue
+        uu, zz = u / w, ez / h
+        # lines s + t = d (s along the face, t up), for d from spacing to w + h
+        for d in np.arange(spacing, w + h, spacing):
+            s0, t0 = (d, 0.0) if d <= w else (w, d - w)
+            s1, t1 = (0.0, d) if d <= h else (d - h, h)
+            segs.append(np.array([origin + s0 * uu + t0 * zz, origin + s1 * uu + t1 * zz]))
+    return np.vstack(segs)
+
+
+def _circle(centre, x, y, r, k):
+    t = np.linspace(0, 2 * np.pi, k + 1)
+    return centre[None, :] + r * (np.cos(t)[:, None] * x[None, :] + np.sin(t)[:, None] * y[None, :])
+
+
+def _perp(z):
+    z = np.asarray(z, float) / np.linalg.norm(z)
+    x = np.cross(z, [1.0, 0, 0] if abs(z[0]) < 0.9 else [0, 1.0, 0])
+    x /= np.linalg.norm(x)
+    return z, x, np.cross(z, x)
+
+
+def _polyline_pairs(p) -> np.ndarray:
+    return np.stack([p[:-1], p[1:]], axis=1).reshape(-1, 3)
+
+
+def cylinder_edges(center, axis, radius, height, k=24) -> np.ndarray:
+    """Wireframe of a cylinder: two end circles and four side lines -> (2m, 3) segment end points."""
+    z, x, y = _perp(axis)
+    c = np.asarray(center, float)
+    lo, hi = c - z * height / 2, c + z * height / 2
+    segs = [_polyline_pairs(_circle(lo, x, y, radius, k)), _polyline_pairs(_circle(hi, x, y, radius, k))]
+    for a in np.linspace(0, 2 * np.pi, 4, endpoint=False):
+        d = radius * (np.cos(a) * x + np.sin(a) * y)
+        segs.append(np.array([lo + d, hi + d]))
+    return np.vstack(segs)
+
+
+def _capsule_edges(a, b, r, k=20) -> np.ndarray:
+    a, b = np.asarray(a, float), np.asarray(b, float)
+    L = float(np.linalg.norm(b - a))
+    if L < 1e-12:   # a sphere: three great circles
+        c = a
+        E = np.eye(3)
+        return np.vstack([_polyline_pairs(_circle(c, E[i], E[(i + 1) % 3], r, 2 * k)) for i in range(3)])
+    z, x, y = _perp(b - a)
+    segs = [_polyline_pairs(_circle(a, x, y, r, k)), _polyline_pairs(_circle(b, x, y, r, k))]
+    for u in (x, y, -x, -y):
+        segs.append(np.array([a + r * u, b + r * u]))
+    # the two half-sphere caps as arcs in two planes
+    t = np.linspace(0, np.pi, k // 2 + 1)
+    for u in (x, y):
+        segs.append(_polyline_pairs(b[None] + r * (np.cos(t)[:, None] * u + np.sin(t)[:, None] * z)))
+        segs.append(_polyline_pairs(a[None] + r * (np.cos(t)[:, None] * u - np.sin(t)[:, None] * z)))
+    return np.vstack(segs)
+
+
+def _pose_box_corners(pose, size) -> np.ndarray:
+    P = np.asarray(pose, float)
+    s = np.array([[sx, sy, sz] for sx in (-1, 1) for sy in (-1, 1) for sz in (-1, 1)], float) * np.asarray(size) / 2
+    return s @ P[:3, :3].T + P[:3, 3]
+
+
+def shape_edges(shape) -> np.ndarray:
+    """Wireframe of one :class:`workbench.arm.shapes.Shape` (in whatever frame it is given) ->
+    (2m, 3) segment end points. A mesh enclosure is drawn as its capsule and its box (the shape
+    is their intersection)."""
+    k = shape.kind
+    if k in ("capsule", "sphere"):
+        return _capsule_edges(shape.a, shape.a if k == "sphere" else shape.b, shape.radius)
+    if k == "box":
+        return box_edges(_pose_box_corners(shape.pose, shape.size))
+    if k == "cylinder":
+        P = np.asarray(shape.pose, float)
+        return cylinder_edges(P[:3, 3], P[:3, 2], shape.radius, shape.length)
+    if k == "mesh":
+        return np.vstack([_capsule_edges(shape.a, shape.b, shape.radius),
+                          box_edges(_pose_box_corners(shape.pose, shape.size))])
+    return np.zeros((0, 3))
+
+
+def body_frames(arm, q) -> np.ndarray:
+    """World frames of the collision bodies at pose ``q`` (n,): base (the mount), the frame of
+    joint 1..n, the flange -> (n + 2, 4, 4), the frames :mod:`workbench.collision` places the
+    shapes in."""
+    q = np.asarray(q, float).reshape(arm.n)
+    F = arm.frames(q, world=True)
+    return np.concatenate([np.asarray(arm.model.mount, float)[None], F,
+                           arm.fk(q, frame="flange", world=True)[None]], axis=0)
+
+
+def world_shapes(arm, q) -> list:
+    """[(body index, Shape in the world)] of every collision shape at pose ``q``."""
+    F = body_frames(arm, q)
+    return [(b, s.transformed(F[b])) for b, shapes in enumerate(arm.model.body_shapes()) for s in shapes]
+
+
+@dataclass
+class PoseClearance:
+    """The clearance check of one pose.
+
+    Attributes
+    ----------
+    distance : float
+        Smallest signed distance (m) over the checked pairs (inf when nothing is checked).
+    pair : tuple of str or None
+        The nearest pair's names, e.g. ("link 3", "box 'conveyor'").
+    close_bodies : set of int
+        Bodies (0 base, 1..n links, n + 1 tool) in a pair closer than ``setting``.
+    close_pairs : list of (str, str, float)
+        Every pair closer than ``setting``, nearest first.
+    setting : float
+        The clearance setting (m).
+    checked : bool
+        False when the arm has no shapes (nothing was checked).
+    """
+
+    distance: float = np.inf
+    pair: tuple | None = None
+    close_bodies: set = field(default_factory=set)
+    close_pairs: list = field(default_factory=list)
+    setting: float = DEFAULT_CLEARANCE
+    checked: bool = False
+
+    @property
+    def too_close(self) -> bool:
+        return bool(self.checked and self.distance < self.setting)
+
+    def text(self) -> str:
+        """Plain words: "link 3 within 4 mm of box 'conveyor'" (or "overlaps", or the clearance)."""
+        if not self.checked:
+            return "no collision shapes: clearance not checked"
+        if self.pair is None or not np.isfinite(self.distance):
+            return "nothing to check against"
+        a, b = self.pair
+        mm = self.distance * 1000.0
+        if mm < 0:
+            return f"{a} overlaps {b} by {-mm:.0f} mm"
+        if self.distance < self.setting:
+            return f"{a} within {mm:.0f} mm of {b}"
+        return f"nearest: {a} to {b}, {mm:.0f} mm"
+
+
+def pose_clearance(arm, q, cell=None, setting=DEFAULT_CLEARANCE, self_collision=True) -> PoseClearance:
+    """Check one pose against the cell's obstacles (and the arm's own links) with
+    :func:`workbench.collision.pair_distances`: which bodies are within ``setting`` (m)."""
+    model = arm.model
+    if not model.has_shapes:
+        return PoseClearance(setting=float(setting), checked=False)
+    from ..collision import pair_distances, pair_names
+
+    d = np.asarray(pair_distances(arm, np.asarray(q, float), cell, self_collision=self_collision), float)
+    names = pair_names(arm, cell, self_collision=self_collision)
+    out = PoseClearance(setting=float(setting), checked=True)
+    if not len(names) or not np.any(np.isfinite(d)):
+        return out
+    k = int(np.nanargmin(d))
+    out.distance, out.pair = float(d[k]), tuple(names[k])
+    index = {nm: i for i, nm in enumerate(model.body_names())}
+    for i in np.argsort(d):
+        if not d[i] < setting:
+            break
+        a, b = names[i]
+        out.close_pairs.append((a, b, float(d[i])))
+        for nm in (a, b):
+            if nm in index:
+                out.close_bodies.add(index[nm])
+    return out
+
+
+def _transform(P, T):
+    return P @ np.asarray(T, float)[:3, :3].T + np.asarray(T, float)[:3, 3]
+
+
+def _unit_sphere(rings=10, sectors=16):
+    from .posestate import sphere_mesh
+
+    return sphere_mesh(rings, sectors)
+
+
+def _capsule_mesh(a, b, r):
+    v, f = _unit_sphere()
+    a, b = np.asarray(a, float), np.asarray(b, float)
+    L = float(np.linalg.norm(b - a))
+    z, x, y = _perp(b - a) if L > 1e-12 else (np.array([0, 0, 1.0]), np.array([1.0, 0, 0]), np.array([0, 1.0, 0]))
+    up = v[:, 2] >= -1e-9                      # the equator row belongs to the upper cap
+    local = r * v + np.where(up, L / 2, -L / 2)[:, None] * np.array([0, 0, 1.0])
+    R = np.column_stack([x, y, z])
+    return local @ R.T + (a + b) / 2, f
+
+
+_BOX_FACES = np.array([[0, 1, 3], [0, 3, 2], [4, 6, 7], [4, 7, 5], [0, 4, 5], [0, 5, 1],
+                       [2, 3, 7], [2, 7, 6], [0, 2, 6], [0, 6, 4], [1, 5, 7], [1, 7, 3]], dtype=np.int32)
+
+
+def _cylinder_mesh(center, axis, radius, height, k=24):
+    z, x, y = _perp(axis)
+    c = np.asarray(center, float)
+    t = np.linspace(0, 2 * np.pi, k, endpoint=False)
+    ring = radius * (np.cos(t)[:, None] * x + np.sin(t)[:, None] * y)
+    lo, hi = c - z * height / 2, c + z * height / 2
+    V = np.vstack([lo + ring, hi + ring, lo, hi])
+    F = []
+    for i in range(k):
+        j = (i + 1) % k
+        F += [(i, j, k + j), (i, k + j, k + i), (2 * k, j, i), (2 * k + 1, k + i, k + j)]
+    return V, np.asarray(F, dtype=np.int32)
+
+
+def shape_mesh(shape):
+    """Triangle mesh (vertices (V, 3), faces (F, 3)) of one shape, in the frame it is given in.
+    A mesh enclosure is drawn as its box (the tighter of its two parts in most cases)."""
+    k = shape.kind
+    if k in ("capsule", "sphere"):
+        return _capsule_mesh(shape.a, shape.a if k == "sphere" else shape.b, shape.radius)
+    if k in ("box", "mesh"):
+        return _pose_box_corners(shape.pose, shape.size), _BOX_FACES
+    if k == "cylinder":
+        P = np.asarray(shape.pose, float)
+        return _cylinder_mesh(P[:3, 3], P[:3, 2], shape.radius, shape.length)
+    return np.zeros((0, 3)), np.zeros((0, 3), np.int32)
+
+
+_WIRES: dict = {}
+
+
+def _local_wires(model):
+    """Per body: the wireframe (2m, 3) of its shapes in its own frame (cached per model)."""
+    hit = _WIRES.get(id(model))
+    if hit is not None and hit[0] is model:
+        return hit[1]
+    wires = [np.vstack([shape_edges(s) for s in shapes]) if shapes else np.zeros((0, 3))
+             for shapes in model.body_shapes()]
+    if len(_WIRES) > 16:
+        _WIRES.clear()
+    _WIRES[id(model)] = (model, wires)
+    return wires
+
+
+def body_wires(arm, q, frames=None) -> list:
+    """Per body (base, links, tool): the wireframe of its shapes in the world at pose ``q``
+    -> list of (2m, 3) segment end points (empty arrays for bodies without shapes)."""
+    F = body_frames(arm, q) if frames is None else frames
+    return [_transform(w, F[b]) if len(w) else w for b, w in enumerate(_local_wires(arm.model))]
+
+
+def body_meshes(model) -> list:
+    """[(body, vertices (V, 3) in the body frame, faces (F, 3))] of every shape (for the 3D view)."""
+    return [(b, *shape_mesh(s)) for b, shapes in enumerate(model.body_shapes()) for s in shapes]

@@ -213,6 +213,8 @@ class MainWindow(QtWidgets.QMainWindow):
 
         self.arm_panel = ArmPanel(self.state)
         self.arm_panel.error_reporter = self.show_error
+        self.arm_panel.cell_source = lambda: self.cell          # clearance of the pose (gui/cellview.py)
+        self.arm_panel.pose_checked.connect(self.scene.set_bodies)
         self.study_panel = StudyPanel()
         self.study_panel.pose_provider = lambda: self.state.q       # "current sliders"
         self.study_panel.set_estimator(self._estimate_text)
@@ -520,6 +522,7 @@ class MainWindow(QtWidgets.QMainWindow):
         self.cell, self.cell_path = cell, os.path.abspath(path)
         self.cell_content = content
         self.scene.set_cell(content)
+        self.arm_panel.refresh()
 
     def _apply_study(self, path):
         from ..studies import load_context, read_study_file
@@ -531,6 +534,7 @@ class MainWindow(QtWidgets.QMainWindow):
             self.cell, self.cell_path = cell, spec.cell_path
             self.cell_content = cell_content(cell)
             self.scene.set_cell(self.cell_content)
+            self.arm_panel.refresh()
         self.arm_path = spec.arm_path
         self._set_arm(arm)
         self.study_panel.load_spec(spec)
@@ -550,6 +554,7 @@ class MainWindow(QtWidgets.QMainWindow):
             self.cell, self.cell_path = session.cell, session.spec.cell_path
             self.cell_content = cell_content(session.cell)
             self.scene.set_cell(self.cell_content)
+            self.arm_panel.refresh()
         self.arm_path = session.spec.arm_path
         self._set_arm(session.arm)
         try:      # the form shows the study behind the file (its kind and settings)

@@ -1,8 +1,10 @@
-"""The scene: the arm at the current pose, its TCP frame and velocity ellipsoid, ghost arms of
-brushed poses and the cell (work points, paths, boxes, mount candidates).
+"""The scene: the arm at the current pose, its TCP frame and velocity ellipsoid, its collision
+shapes (red where a body is within the clearance setting of an obstacle or another link), ghost
+arms of brushed poses and the cell (work points, paths, equipment boxes, pillars, hatched keep-out
+zones, the floor, mount candidates and the recommended mount).
 
-Two views with one interface (``set_pose``, ``set_ghosts``, ``set_cell``, ``set_candidates``,
-``set_view``): :class:`Scene3D` (pyqtgraph.opengl) and :class:`Scene2D` (top and side projections
+Two views with one interface (``set_pose``, ``set_bodies``, ``set_ghosts``, ``set_cell``,
+``set_candidates``, ``set_recommended``, ``set_view``): :class:`Scene3D` (pyqtgraph.opengl) and :class:`Scene2D` (top and side projections
 on plain plots) where OpenGL is not available. :func:`make_scene` picks one.
 """
 from __future__ import annotations
@@ -13,7 +15,8 @@ import numpy as np
 import pyqtgraph as pg
 from PySide6 import QtCore, QtGui, QtWidgets
 
-from .cellview import CellContent, box_edges
+from .cellview import (CellContent, body_frames, body_meshes, body_wires, box_edges, cylinder_edges,
+                       stripe_segments)
 from .posestate import ELLIPSOID_DRAW_SCALE, PoseInfo
 
 __all__ = ["make_scene", "Scene2D", "gl_available", "VIEWS", "camera_distance"]
@@ -23,6 +26,20 @@ AXIS_LEN = 0.12         # m, TCP frame axes as drawn
 ARM_COLOUR = (60, 110, 200)
 GHOST_COLOUR = (230, 120, 30)
 NEAR_COLOUR = (210, 40, 40)
+SHAPE_COLOUR = (70, 120, 210)       # collision shapes, drawn translucent
+CLOSE_COLOUR = (220, 30, 30)        # a body within the clearance setting
+OBSTACLE_COLOUR = (90, 90, 90)
+KEEP_OUT_COLOUR = (235, 150, 0)     # keep-out zones: amber, hatched, never solid
+REC_COLOUR = (200, 0, 160)          # the recommended mount
+
+
+class KeepOutItem(pg.PlotDataItem):
+    """A keep-out zone's hatched outline on a 2D view (its own item type, so it is never taken
+    for equipment)."""
+
+
+class RecommendedItem(pg.ScatterPlotItem):
+    """The recommended mount on a 2D view."""
 
 
 def gl_available() -> tuple[bool, str]:
@@ -92,6 +109,13 @@ class Scene2D(QtWidgets.QWidget):
             self.plots.append(pw)
             it = {
                 "boxes": pg.PlotDataItem(pen=pg.mkPen((120, 120, 120), width=1), connect="pairs"),
+                "pillars": pg.PlotDataItem(pen=pg.mkPen(OBSTACLE_COLOUR, width=1), connect="pairs"),
+                "keepout": KeepOutItem(pen=pg.mkPen(KEEP_OUT_COLOUR, width=1.5, style=QtCore.Qt.DashLine),
+                                       connect="pairs"),
+                "floor": pg.PlotDataItem(pen=pg.mkPen((150, 110, 60), width=2)),
+                "shapes": pg.PlotDataItem(pen=pg.mkPen(SHAPE_COLOUR + (120,), width=1), connect="pairs"),
+                "close": pg.PlotDataItem(pen=pg.mkPen(CLOSE_COLOUR, width=2), connect="pairs"),
+                "rec": RecommendedItem(size=20, symbol="star", brush=REC_COLOUR, pen=pg.mkPen("k", width=1)),
                 "paths": pg.PlotDataItem(pen=pg.mkPen((40, 150, 60), width=2), connect="finite"),
                 "points": pg.ScatterPlotItem(size=8, symbol="s", brush=(40, 150, 60), pen="k"),
                 "cands": pg.ScatterPlotItem(size=7, symbol="o", pen=None),
@@ -102,7 +126,8 @@ class Scene2D(QtWidgets.QWidget):
                                        symbolBrush=ARM_COLOUR),
                 "tcp": [pg.PlotDataItem(pen=pg.mkPen(c, width=2)) for c in ("r", "g", "b")],
             }
-            for key in ("boxes", "paths", "points", "cands", "ghosts", "ellipse", "arm"):
+            for key in ("floor", "boxes", "pillars", "keepout", "paths", "points", "cands", "rec", "ghosts",
+                        "shapes", "close", "ellipse", "arm"):
                 pw.addItem(it[key])
             for t in it["tcp"]:
                 pw.addItem(t)
@@ -112,6 +137,9 @@ class Scene2D(QtWidgets.QWidget):
         self._cell = CellContent()
         self._cands = (np.zeros((0, 3)), None)
         self._bounds = (np.array([-1.0, -1.0, 0.0]), np.array([1.0, 1.0, 2.0]))
+        self._wires = None              # (list of per-body segments, set of close bodies)
+        self._rec = None
+        self.clearance = None           # the last PoseClearance drawn
         for pw in self.plots:
             pw.disableAutoRange()
 
@@ -123,6 +151,18 @@ class Scene2D(QtWidgets.QWidget):
             a, b = plane
             pw.setRange(xRange=(self._bounds[0][a], self._bounds[1][a]),
                         yRange=(self._bounds[0][b], self._bounds[1][b]), padding=0.05)
+        self._draw_floor()
+
+    def _draw_floor(self):
+        """The floor (z = 0) as a line on the views that show z, when the cell has one."""
+        lo, hi = self._bounds
+        for plane, it in zip(self.planes, self._items):
+            if self._cell.floor and plane[1] == 2:
+                a = plane[0]
+                w = hi[a] - lo[a]
+                it["floor"].setData([lo[a] - w, hi[a] + w], [0.0, 0.0])
+            else:
+                it["floor"].setData([], [])
 
     # ---- content -------------------------------------------------------------------------
     def set_pose(self, info: PoseInfo):
@@ -169,7 +209,62 @@ class Scene2D(QtWidgets.QWidget):
                 it["boxes"].setData(e[:, 0], e[:, 1], connect="pairs")
             else:
                 it["boxes"].setData([], [])
+            if cell.cylinders:
+                e = np.vstack([cylinder_edges(c.center, c.axis, c.radius, c.height)[:, pl] for c in cell.cylinders])
+                it["pillars"].setData(e[:, 0], e[:, 1], connect="pairs")
+            else:
+                it["pillars"].setData([], [])
+            if cell.keep_outs:
+                e = np.vstack([stripe_segments(k)[:, pl] for k in cell.keep_outs])
+                it["keepout"].setData(e[:, 0], e[:, 1], connect="pairs")
+            else:
+                it["keepout"].setData([], [])
+        self._draw_floor()
         self.set_candidates(cell.candidates, cell.candidate_scores)
+
+    def set_bodies(self, arm, q, clearance=None):
+        """The arm's collision shapes at pose ``q``; bodies in ``clearance.close_bodies`` (a
+        :class:`workbench.gui.cellview.PoseClearance`) red."""
+        self.clearance = clearance
+        if not arm.model.has_shapes and not arm.model.base_shapes:
+            self._wires = None
+        else:
+            self._wires = (body_wires(arm, q), set(clearance.close_bodies) if clearance is not None else set())
+        self._draw_bodies()
+
+    def _draw_bodies(self):
+        for plane, it in zip(self.planes, self._items):
+            if self._wires is None:
+                it["shapes"].setData([], [])
+                it["close"].setData([], [])
+                continue
+            wires, close = self._wires
+            pl = list(plane)
+            for key, pick in (("shapes", lambda b: b not in close), ("close", lambda b: b in close)):
+                segs = [w[:, pl] for b, w in enumerate(wires) if len(w) and pick(b)]
+                if segs:
+                    e = np.vstack(segs)
+                    it[key].setData(e[:, 0], e[:, 1], connect="pairs")
+                else:
+                    it[key].setData([], [])
+
+    def close_xy(self) -> np.ndarray:
+        """(m, 2) top-view points of the shapes drawn red (for tests)."""
+        x, y = self._items[0]["close"].getData()
+        return np.zeros((0, 2)) if x is None else np.column_stack([x, y])
+
+    def set_recommended(self, xyz=None, label=""):
+        """Mark the recommended mount (3,) (m, cell frame), or clear the mark (None)."""
+        self._rec = None if xyz is None else np.asarray(xyz, float).reshape(3)
+        for plane, it in zip(self.planes, self._items):
+            if self._rec is None:
+                it["rec"].setData([])
+            else:
+                it["rec"].setData(pos=self._rec[list(plane)][None])
+                it["rec"].setToolTip(label or "recommended mount")
+
+    def recommended(self):
+        return None if self._rec is None else self._rec.copy()
 
     def set_candidates(self, pts, scores=None):
         """Mount candidates (c, 3) coloured by ``scores`` (c,) in [0, 1] (NaN grey)."""
@@ -196,6 +291,8 @@ class Scene2D(QtWidgets.QWidget):
             self.set_pose(self._info)
         self.set_ghosts(self._ghosts)
         self.set_cell(self._cell)
+        self._draw_bodies()
+        self.set_recommended(self._rec)
         self.fit(*self._bounds)
 
     def arm_xy(self):
@@ -255,11 +352,20 @@ class Scene3D(QtWidgets.QWidget):
         self.paths = gl.GLLinePlotItem(width=3, color=_c((40, 150, 60)), mode="lines", glOptions=tr)
         self.boxes = gl.GLLinePlotItem(width=2, color=_c((80, 80, 80)), mode="lines", glOptions=tr)
         self.cands = gl.GLScatterPlotItem(size=8, glOptions=tr)
-        for it in (self.boxes, self.paths, self.points, self.cands, self.ghosts, self.arm, self.joints,
-                   self.tcp, self.ellipsoid):
+        self.keepout = _keep_out_class(gl)(width=2, color=_c(KEEP_OUT_COLOUR), mode="lines", glOptions=tr)
+        self.rec = gl.GLScatterPlotItem(size=22, color=_c(REC_COLOUR), glOptions=tr)
+        self.rec_line = gl.GLLinePlotItem(width=4, color=_c(REC_COLOUR), mode="lines", glOptions=tr)
+        for it in (self.boxes, self.keepout, self.paths, self.points, self.cands, self.rec, self.rec_line,
+                   self.ghosts, self.arm, self.joints, self.tcp, self.ellipsoid):
             self.view.addItem(it)
         self._cyl = []
         self._ghosts = None
+        self._obstacle_meshes = []      # translucent boxes and pillars of the cell
+        self._floor = None
+        self._shape_items = []          # (body, GLMeshItem) of the arm's collision shapes
+        self._shape_model = None
+        self._rec = None
+        self.clearance = None
         self.set_view("iso")
 
     def set_pose(self, info: PoseInfo):
@@ -313,11 +419,75 @@ class Scene3D(QtWidgets.QWidget):
             self.paths.setData(pos=segs)
         else:
             self.paths.setData(pos=np.zeros((0, 3)))
-        if cell.boxes:
-            self.boxes.setData(pos=np.vstack([box_edges(b) for b in cell.boxes]))
-        else:
-            self.boxes.setData(pos=np.zeros((0, 3)))
+        edges = [box_edges(b) for b in cell.boxes] + [cylinder_edges(c.center, c.axis, c.radius, c.height)
+                                                      for c in cell.cylinders]
+        self.boxes.setData(pos=np.vstack(edges) if edges else np.zeros((0, 3)))
+        self.keepout.setData(pos=np.vstack([stripe_segments(k) for k in cell.keep_outs]) if cell.keep_outs
+                             else np.zeros((0, 3)))
+        self._draw_obstacles(cell)
         self.set_candidates(cell.candidates, cell.candidate_scores)
+
+    def _draw_obstacles(self, cell):
+        """Translucent solid boxes and pillars (keep-out zones stay hatched only) and the floor."""
+        from .cellview import _BOX_FACES, _cylinder_mesh
+
+        gl = self._gl
+        for it in self._obstacle_meshes:
+            self.view.removeItem(it)
+        self._obstacle_meshes = []
+        solids = [(b, _BOX_FACES, collide) for b, collide in
+                  zip(cell.boxes, cell.box_collide or [True] * len(cell.boxes))]
+        solids += [(*_cylinder_mesh(c.center, c.axis, c.radius, c.height), c.collide) for c in cell.cylinders]
+        for v, f, collide in solids:
+            it = gl.GLMeshItem(vertexes=np.asarray(v, float), faces=f, smooth=False, drawEdges=False,
+                               color=(0.45, 0.45, 0.45, 0.28 if collide else 0.12), glOptions="translucent")
+            self.view.addItem(it)
+            self._obstacle_meshes.append(it)
+        if self._floor is not None:
+            self.view.removeItem(self._floor)
+            self._floor = None
+        if cell.floor:
+            s = 2.0
+            v = np.array([[-s, -s, 0], [s, -s, 0], [s, s, 0], [-s, s, 0]], float)
+            self._floor = gl.GLMeshItem(vertexes=v, faces=np.array([[0, 1, 2], [0, 2, 3]]), smooth=False,
+                                        color=(0.75, 0.65, 0.5, 0.25), glOptions="translucent")
+            self.view.addItem(self._floor)
+
+    def set_bodies(self, arm, q, clearance=None):
+        """The arm's collision shapes at pose ``q`` as translucent solids; bodies within the
+        clearance setting (``clearance.close_bodies``) red."""
+        gl = self._gl
+        self.clearance = clearance
+        model = arm.model
+        if self._shape_model is not model:          # new arm: build the meshes once, in body frames
+            for _b, it in self._shape_items:
+                self.view.removeItem(it)
+            self._shape_items = []
+            for b, v, f in body_meshes(model):
+                it = gl.GLMeshItem(vertexes=v, faces=f, smooth=True, drawEdges=False, glOptions="translucent",
+                                   color=_c(SHAPE_COLOUR, 0.3))
+                self.view.addItem(it)
+                self._shape_items.append((b, it))
+            self._shape_model = model
+        if not self._shape_items:
+            return
+        F = body_frames(arm, q)
+        close = set(clearance.close_bodies) if clearance is not None else set()
+        for b, it in self._shape_items:
+            it.setTransform(QtGui.QMatrix4x4(*np.asarray(F[b], float).reshape(-1)))
+            it.setColor(_c(CLOSE_COLOUR, 0.55) if b in close else _c(SHAPE_COLOUR, 0.3))
+
+    def set_recommended(self, xyz=None, label=""):
+        self._rec = None if xyz is None else np.asarray(xyz, float).reshape(3)
+        if self._rec is None:
+            self.rec.setData(pos=np.zeros((0, 3)))
+            self.rec_line.setData(pos=np.zeros((0, 3)))
+            return
+        self.rec.setData(pos=self._rec[None])
+        self.rec_line.setData(pos=np.array([self._rec, self._rec + [0, 0, 0.5]]))
+
+    def recommended(self):
+        return None if self._rec is None else self._rec.copy()
 
     def set_candidates(self, pts, scores=None):
         pts = np.zeros((0, 3)) if pts is None else np.asarray(pts, float)
@@ -357,6 +527,20 @@ class Scene3D(QtWidgets.QWidget):
 
     def ghost_count(self) -> int:
         return 0 if self._ghosts is None else len(self._ghosts)
+
+
+_KEEP_OUT_3D = None
+
+
+def _keep_out_class(gl):
+    """The 3D keep-out item type (made on first use: pyqtgraph.opengl loads only with OpenGL)."""
+    global _KEEP_OUT_3D
+    if _KEEP_OUT_3D is None:
+        class KeepOut3D(gl.GLLinePlotItem):
+            """A keep-out zone's hatched outline in the 3D view."""
+
+        _KEEP_OUT_3D = KeepOut3D
+    return _KEEP_OUT_3D
 
 
 def camera_distance(lo, hi, fov_deg, width, height, margin=1.08) -> float:

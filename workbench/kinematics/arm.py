@@ -179,7 +179,7 @@ class Arm:
         """Fused FK -> Jacobian -> singular values (..., m) of the selected, scaled rows, descending.
 
         ``length`` is the characteristic length (m) dividing translational rows when the selection
-        mixes translation and rotation; default: the arm's nominal reach.
+        mixes translation and rotation; default: the arm's characteristic length.
         """
         return self._sv_map(q, frame, rows, length, point, world, False)
 
@@ -215,16 +215,15 @@ class Arm:
         return lanes.measures_from_sv(sv) if with_measures else sv
 
     # ------------------------------------------------------------------------------------------
+    def characteristic_length(self) -> float:
+        """The arm's characteristic length (m): the value stated in its file, else the length of
+        its axis chain (:func:`workbench.arm.model.axis_chain_length`), the same whatever form
+        (DH, modified DH, origins, URDF) describes the arm. The default length of every measure."""
+        return self.model.characteristic_length
+
     def nominal_reach(self) -> float:
-        """Sum of the fixed link offsets and tool length (m): an upper bound on the reach from the
-        first joint for arms without prismatic joints; the default characteristic length."""
-        m = self.model
-        total = float(np.linalg.norm(m.origins[1:, :3, 3], axis=-1).sum()) if m.n > 1 else 0.0
-        total += float(np.linalg.norm(m.tcp_offset[:3, 3]))
-        for j in range(m.n):
-            if m.kinds[j] == 1 and np.isfinite(m.upper[j]):
-                total += max(abs(m.upper[j]), abs(m.lower[j]))
-        return total if total > 0 else 1.0
+        """Same as :meth:`characteristic_length` (the older name)."""
+        return self.model.characteristic_length
 
     def base_to_world(self):
         return self.model.mount

@@ -263,6 +263,9 @@ def appendices(r, cell, arm_model) -> list:
                      f"{fmt_number(float(a.get('elapsed_s', float('nan'))))} s on {_s(a.get('executor', '?'))} "
                      f"({_s(a.get('workers', '?'))} workers)"),
              ("complete", "no: the run was cancelled, unfinished cells are blank" if r.incomplete else "yes"),
+             ("characteristic length used", (f"{fmt_mm(float(a['characteristic_length_m']))} mm "
+                                             f"({_s(a.get('characteristic_length_source', '?'))})")
+              if "characteristic_length_m" in a else "not recorded (results written before it was stored)"),
              ("study file", f"{_s(a.get('study_path', '-'))}"), ("study file sha256", fingerprint(r.study_text)),
              ("arm file", f"{_s(a.get('arm_path', '-'))}"), ("arm file sha256", fingerprint(r.arm_text)),
              ("cell file", f"{_s(a.get('cell_path', '-'))}"), ("cell file sha256", fingerprint(r.cell_text))]
@@ -291,8 +294,11 @@ def _arm_blocks(m) -> list:
     from ..kinematics import Arm
 
     arm = Arm(m)
-    out = [D.Para(f"{m.name}: {m.n} joints, nominal reach {fmt_mm(arm.nominal_reach())} mm (the default "
-                  f"characteristic length of the measures)." + (f" {m.description}" if m.description else ""))]
+    how = ("stated in the arm file" if m.stated_length is not None else
+           "its axis chain: the reach from the first joint axis, the same for every file form of the arm")
+    out = [D.Para(f"{m.name}: {m.n} joints, characteristic length {fmt_mm(arm.characteristic_length())} mm "
+                  f"({how}; the default length dividing the translational rows of the measures)."
+                  + (f" {m.description}" if m.description else ""))]
     rows = []
     for j in m.joints:
         rev = j.revolute

@@ -52,7 +52,7 @@ from ..errors import WorkbenchError
 __all__ = [
     "StudyError", "Axis", "Field", "Chunk", "Plan", "Table", "Estimate", "StudyKind",
     "KINDS", "register_kind", "get_kind", "kind_names", "split_chunks", "block_rng",
-    "calibrate", "DEFAULT_CHUNK_CELLS", "RNG_BLOCK", "MAX_SEEDS",
+    "calibrate", "length_attrs", "DEFAULT_CHUNK_CELLS", "RNG_BLOCK", "MAX_SEEDS",
 ]
 
 #: default number of grid cells per chunk before the runner calibrates (it re-chunks to ~0.25 s)
@@ -468,6 +468,25 @@ def get_kind(name: str, where: str = "kind") -> StudyKind:
     inst = target() if isinstance(target, type) else target
     _INSTANCES[name] = inst
     return inst
+
+
+def length_attrs(plan: "Plan", arm) -> dict:
+    """Results-file attributes naming the characteristic length the measures used (m) and where
+    it came from: the study's ``length`` setting, the arm file's ``characteristic_length``, or
+    the arm's axis chain (:func:`workbench.arm.model.axis_chain_length`)."""
+    if arm is None:
+        return {}
+    model = getattr(arm, "model", arm)
+    written = getattr(plan.spec, "settings", None) or {}
+    given = getattr(plan.settings, "length", None)
+    if given is not None and "length" in written:
+        used, source = float(given), "study setting 'length'"
+    elif getattr(model, "stated_length", None) is not None:
+        used, source = float(model.stated_length), "arm file 'characteristic_length'"
+    else:
+        used, source = float(model.axis_chain_length), "axis chain of the arm (default)"
+    return {"characteristic_length_m": used, "characteristic_length_source": source,
+            "arm_axis_chain_length_m": float(model.axis_chain_length)}
 
 
 def check_rows(value, where: str):

@@ -75,13 +75,13 @@ def arm_warnings(arm) -> list[str]:
     if math.isfinite(reach) and reach < lo:
         hint = (" (metre values in a length_unit = 'mm' file?)" if unit == "mm" else
                 " (is the length unit right?)")
-        out.append(f"{where}: the arm reaches only {_fmt_len(reach)} (sum of link offsets and tool); arms are "
+        out.append(f"{where}: the arm reaches only {_fmt_len(reach)} (its axis-chain length, an upper bound on the reach from the first axis); arms are "
                    f"{_fmt_len(lo)} to {hi:g} m{hint}")
     elif math.isfinite(reach) and reach > hi:
         hint = (" (a URDF written in millimetres? URDF lengths are metres)" if _is_urdf(m) else
                 " (millimetre values in a length_unit = 'm' file?)" if unit == "m" else
                 " (is the length unit right?)")
-        out.append(f"{where}: the arm reaches {_fmt_len(reach)} (sum of link offsets and tool); arms are "
+        out.append(f"{where}: the arm reaches {_fmt_len(reach)} (its axis-chain length, an upper bound on the reach from the first axis); arms are "
                    f"{_fmt_len(lo)} to {hi:g} m{hint}")
     if _is_urdf(m):
         wide = [j.name for j in m.joints if j.revolute and

@@ -1,0 +1,159 @@
+"""The scene's collision shapes, obstacles, keep-out zones and the clearance note of the arm panel.
+
+The distances are worked by hand for a two-link arm whose links are capsules (the distance of a
+capsule to a box face it points at is the gap between the face and the capsule's end point minus
+the radius: elementary geometry, common practice)."""
+import numpy as np
+import pytest
+
+ARM = """
+[arm]
+name = "Two capsules (test)"
+geometry = "origins"
+length_unit = "m"
+home = [0, 0, 0]
+
+[[joint]]
+name = "a"
+type = "revolute"
+xyz = [0, 0, 0.5]
+axis = [0, 0, 1]
+limits = [-180, 180]
+radius = 0.05
+
+[[joint]]
+name = "b"
+type = "revolute"
+xyz = [0.5, 0, 0]
+axis = [0, 0, 1]
+limits = [-180, 180]
+radius = 0.04
+
+[[joint]]
+name = "c"
+type = "revolute"
+xyz = [0.3, 0, 0]
+axis = [1, 0, 0]
+limits = [-180, 180]
+
+[tool]
+xyz = [0.3, 0, 0]
+"""
+
+# box face at x = 0.844: link 2 (capsule (0.5, 0, 0.5)-(0.8, 0, 0.5), r 0.04) ends 4 mm short of it
+CELL = """
+[cell]
+name = "Clearance test cell"
+
+[[point]]
+name = "p"
+xyz = [0.6, 0.0, 0.5]
+
+[[box]]
+name = "conveyor"
+center = [0.944, 0.0, 0.5]
+size = [0.2, 0.6, 0.4]
+
+[[keep_out]]
+name = "operator"
+center = [-1.0, 0.0, 1.0]
+size = [0.4, 0.4, 2.0]
+
+[[cylinder]]
+name = "pillar"
+center = [0.0, 1.2, 1.0]
+radius = 0.1
+height = 2.0
+"""
+
+
+@pytest.fixture
+def files(tmp_path):
+    a = tmp_path / "two.toml"
+    a.write_text(ARM)
+    c = tmp_path / "cell.toml"
+    c.write_text(CELL)
+    return str(a), str(c)
+
+
+def _arm_and_cell(files):
+    from workbench.arm import read_arm_model
+    from workbench.kinematics import Arm
+    from workbench.studies.cell import read_cell_file
+
+    return Arm(read_arm_model(files[0])), read_cell_file(files[1])
+
+
+def test_pose_clearance_names_the_pair_with_the_hand_distance(files):
+    from workbench.gui.cellview import pose_clearance
+
+    arm, cell = _arm_and_cell(files)
+    pc = pose_clearance(arm, [0.0, 0.0, 0.0], cell, 0.01)
+    assert pc.pair == ("link 2", "box 'conveyor'")
+    assert pc.distance == pytest.approx(0.844 - 0.8 - 0.04, abs=1e-9)      # 4 mm, by hand
+    assert pc.close_bodies == {2}
+    assert pc.text() == "link 2 within 4 mm of box 'conveyor'"
+    # joint 2 at 30 deg: the end point (0.5 + 0.3 cos 30, 0.3 sin 30) is 44.2 mm from the face
+    pc = pose_clearance(arm, [0.0, np.radians(30), 0.0], cell, 0.01)
+    assert pc.distance == pytest.approx(0.844 - (0.5 + 0.3 * np.cos(np.radians(30))) - 0.04, abs=1e-9)
+    assert pc.close_bodies == set() and not pc.too_close
+    assert pc.text() == "nearest: link 2 to box 'conveyor', 44 mm"
+    # a bigger clearance setting takes it in again
+    assert pose_clearance(arm, [0.0, np.radians(30), 0.0], cell, 0.05).close_bodies == {2}
+
+
+def test_world_shapes_follow_the_pose(files):
+    from workbench.gui.cellview import body_wires, world_shapes
+
+    arm, _cell = _arm_and_cell(files)
+    q = [np.radians(90), 0.0, 0.0]                       # joint 1 at 90 deg: both links along +y
+    shapes = dict((b, s) for b, s in world_shapes(arm, q))
+    assert np.allclose(shapes[1].a, [0, 0, 0.5]) and np.allclose(shapes[1].b, [0, 0.5, 0.5], atol=1e-12)
+    assert np.allclose(shapes[2].a, [0, 0.5, 0.5], atol=1e-12) and np.allclose(shapes[2].b, [0, 0.8, 0.5], atol=1e-12)
+    w = body_wires(arm, q)[2]
+    # the wireframe of the link 2 capsule lies on its surface: every point at distance r of the axis
+    t = np.clip((w[:, 1] - 0.5) / 0.3, 0, 1)
+    axis_pt = np.column_stack([np.zeros_like(t), 0.5 + 0.3 * t, np.full_like(t, 0.5)])
+    assert np.allclose(np.linalg.norm(w - axis_pt, axis=1), 0.04, atol=1e-9)
+
+
+def test_stripes_stay_on_the_box_faces():
+    from workbench.gui.cellview import _corners_from_lo_hi, stripe_segments
+
+    lo, hi = np.array([-1.2, -0.2, 0.0]), np.array([-0.8, 0.2, 2.0])
+    s = stripe_segments(_corners_from_lo_hi(lo, hi), spacing=0.1)
+    assert len(s) > 24 + 40                           # the 12 edges and many stripes
+    assert np.all(s >= lo - 1e-12) and np.all(s <= hi + 1e-12)
+    on_side = np.isclose(s[:, 0], lo[0]) | np.isclose(s[:, 0], hi[0]) | np.isclose(s[:, 1], lo[1]) | \
+        np.isclose(s[:, 1], hi[1])
+    assert on_side.all()
+
+
+def test_window_turns_the_near_link_red_and_names_the_pair(window, files):
+    from workbench.gui.scene import KeepOutItem
+
+    assert window.open_file(files[0]) and window.open_file(files[1])
+    window.state.set_q([0.0, 0.0, 0.0])
+    assert window.arm_panel.clear_label.text() == "link 2 within 4 mm of box 'conveyor'"
+    red = window.scene.close_xy()
+    red = red[np.isfinite(red).all(axis=1)]
+    # only link 2 is red: its capsule spans x 0.46 .. 0.84 on the top view
+    assert len(red) and red[:, 0].min() == pytest.approx(0.46, abs=1e-6) and red[:, 0].max() == pytest.approx(0.84, abs=1e-6)
+    x, _y = window.scene._items[0]["shapes"].getData()
+    assert np.nanmin(x) == pytest.approx(-0.05, abs=1e-6)          # link 1 still drawn, not red
+    # move joint 2 away: nothing red, the panel gives the nearest pair and its distance
+    window.state.set_joint(1, np.radians(30))
+    assert len(window.scene.close_xy()) == 0
+    assert window.arm_panel.clear_label.text() == "nearest: link 2 to box 'conveyor', 44 mm"
+    # a larger clearance setting in the panel turns it red again
+    window.arm_panel.clear_spin.setValue(50.0)
+    assert len(window.scene.close_xy()) > 0
+    # the keep-out zone has its own item type and is not among the equipment boxes
+    ko = window.scene._items[0]["keepout"]
+    assert isinstance(ko, KeepOutItem)
+    kx, ky = ko.getData()
+    assert np.nanmin(kx) == pytest.approx(-1.2) and np.nanmax(kx) == pytest.approx(-0.8)
+    bx, _ = window.scene._items[0]["boxes"].getData()
+    assert np.nanmin(bx) == pytest.approx(0.844)
+    px, py = window.scene._items[0]["pillars"].getData()
+    assert np.nanmax(np.hypot(px, py - 1.2)) == pytest.approx(0.1)
