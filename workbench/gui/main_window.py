@@ -391,7 +391,8 @@ class MainWindow(QtWidgets.QMainWindow):
         return out
 
     def _fill_panels_menu(self):
-        self.panels_menu.clear()
+        for a in self.panels_menu.actions():       # removed, not cleared: the docks own them
+            self.panels_menu.removeAction(a)
         for title, a in self.panel_actions().items():
             a.setText(title)
             self.panels_menu.addAction(a)
