@@ -27,6 +27,7 @@ under the final name. A cancelled run is closed normally and says ``incomplete =
 from __future__ import annotations
 
 import json
+import math
 import os
 import tempfile
 import time
@@ -893,6 +894,55 @@ def _cell_columns(results, max_rows):
     return cols, units
 
 
+def recommended_mount(results: Results) -> dict | None:
+    """The mount search's recommended mount as stored (table ``recommended``), or None.
+
+    Returns
+    -------
+    dict with ``x``, ``y``, ``height`` (m), ``yaw``, ``tilt`` (rad) in the cell frame, ``style``,
+    ``rank_value``, ``score`` (quality), ``served``, ``points``, ``source`` ("refined" or "grid"),
+    ``grid_x``, ``grid_y`` (m), ``grid_yaw`` (rad), ``grid_rank_value``, ``map_best`` (bool: the grid
+    cell it comes from is the map's best).
+    """
+    t = results.tables.get("recommended")
+    if t is None or not t.rows:
+        return None
+
+    def val(k, scale=1.0):
+        v = t.columns[k][0]
+        if isinstance(v, bytes):
+            return v.decode()
+        if isinstance(v, str):
+            return v
+        return float(v) * scale
+
+    out = {k: val(k, 1e-3) for k in ("x", "y", "height", "grid_x", "grid_y") if k in t.columns}
+    out.update({k: val(k, math.pi / 180) for k in ("yaw", "tilt", "grid_yaw") if k in t.columns})
+    out.update({k: val(k) for k in ("style", "rank_value", "score", "served", "points", "source", "grid_rank_value")
+                if k in t.columns})
+    out["map_best"] = bool(val("map_best")) if "map_best" in t.columns else True
+    return out
+
+
+def _mark_recommended(ax, results, ax_x) -> None:
+    """Star and label the recommended mount on a floor map (x, y axes), and the grid cell it was
+    refined from when that differs."""
+    rec = recommended_mount(results)
+    if rec is None:
+        return
+    from .studies.base import display_factor
+
+    k = display_factor(ax_x.unit, ax_x.display_unit)
+    unit = ax_x.display_unit or "m"
+    u = 1000.0 if unit == "m" else 1.0  # label in mm
+    ax.plot([rec["x"] * k], [rec["y"] * k], marker="*", ms=16, mec="k", mfc="white", ls="none", zorder=9,
+            label=f"recommended mount ({rec['x'] * k * u:.0f}, {rec['y'] * k * u:.0f} mm)")
+    if rec.get("source") == "refined" and "grid_x" in rec:
+        ax.plot([rec["grid_x"] * k], [rec["grid_y"] * k], marker="s", ms=9, mec="k", mfc="none", mew=1.5, ls="none",
+                zorder=8, label="grid cell it was refined from" + ("" if rec["map_best"] else " (not the map's best)"))
+    ax.legend(loc="upper right", fontsize=8, framealpha=0.85)
+
+
 def export_png(results: Results, path, measure: str | None = None, dpi: int = 120) -> str:
     """Draw a map of ``measure`` as a PNG with a colour bar and axes in degrees or metres.
 
@@ -980,6 +1030,8 @@ def export_png(results: Results, path, measure: str | None = None, dpi: int = 12
             ax.set_xlabel(lab(a1))
             ax.set_ylabel(lab(a0))
             fig.colorbar(im, ax=ax, label=measure)
+            if (a0.name, a1.name) == ("y", "x"):
+                _mark_recommended(ax, results, a1)
     ax.set_title(title, fontsize=10)
     fig.tight_layout()
     try:

@@ -186,6 +186,11 @@ class MainWindow(QtWidgets.QMainWindow):
         self.summary_view = QtWidgets.QTextBrowser()
         self.summary_view.setHtml(tables_html({}))
         self.result_tabs.addTab(self.summary_view, "Summary")
+        from .verdict_view import VerdictView      # requirement verdicts (gui/verdict_view.py)
+
+        self.verdict_view = VerdictView()
+        self.result_tabs.addTab(self.verdict_view, "Verdicts")
+        self.verdict_view.recommendation_changed.connect(lambda xyz, label: self.scene.set_recommended(xyz, label))
         scene_box = QtWidgets.QWidget()
         sl = QtWidgets.QVBoxLayout(scene_box)
         sl.setContentsMargins(0, 0, 0, 0)
@@ -852,6 +857,7 @@ class MainWindow(QtWidgets.QMainWindow):
         self.pose_list.set_result(empty)
         self.pose_list.model.data_ = None
         self.summary_view.setHtml(tables_html({}))
+        self.verdict_view.show_file(None)
         self.scene.set_ghosts(None)
         self._show_candidates()
         self.map_view.show_hint(True)
@@ -929,6 +935,7 @@ class MainWindow(QtWidgets.QMainWindow):
                 except WorkbenchError as exc:
                     self.status.showMessage(f"summary tables not read: {exc}", 8000)
         self.summary_view.setHtml(tables_html(tables))
+        self.verdict_view.show_file(self.results_file)
 
     def _selection_changed(self, sel, source, final):
         if not final or self.result is None or sel.size != self.result.size:

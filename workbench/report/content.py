@@ -18,6 +18,7 @@ from ..decision import (FAIL, LIMIT_MARGIN, NOT_CHECKED, SENSITIVITY_DROP, fmt_d
                         fmt_percent)
 from . import document as D
 from . import figures as G
+from ..results import recommended_mount
 
 KIND_TITLES = {"mount_search": "Mount search", "path_audit": "Path audit", "load_map": "Load map",
                "reach_slice": "Reach slice", "joint_sweep": "Joint sweep"}
@@ -207,8 +208,8 @@ def decision_sections(r, dec, kind_words) -> list:
         lines.append(f"Joint-limit margin ≥ {fmt_number(LIMIT_MARGIN)}: no joint within "
                      f"{fmt_percent(LIMIT_MARGIN, 0)} of its half range of a limit (our default).")
     if dec.verdict("placement_error") is not None:
-        lines.append(f"Placement error: the sensitivity check's worst score within its offsets may lose at most "
-                     f"{fmt_percent(SENSITIVITY_DROP, 0)} (our default).")
+        lines.append(f"Placement error: the sensitivity check's worst placement within its offsets may lose no work "
+                     f"point and at most {fmt_percent(SENSITIVITY_DROP, 0)} of the quality score (our default).")
     lines.append("A requirement marked 'not checked' is not known to hold: the reason is in the table.")
     b += [D.Para(t, "bullet") for t in lines]
     b.append(D.Heading("Risks", 2))
@@ -463,21 +464,43 @@ def _mount_doc(r, dec, csv_name, progress) -> D.Document:
     # 3 maps
     progress(0.45, "drawing the maps")
     body.append(D.Heading("Maps of the candidate region"))
-    score = np.asarray(r.arrays["score"], float)
+    rank_name = "rank_value" if "rank_value" in r.arrays else "score"
+    score = np.asarray(r.arrays[rank_name], float)
     reached = np.asarray(r.arrays["reached_fraction"], float)
     ax_x = Axis("x", ax["x"].values, "m", "base x")
     ax_y = Axis("y", ax["y"].values, "m", "base y")
     mark = (rec.x, rec.y) if rec.kind == "mount" else None
     best = np.nanmax(score.reshape(-1, *score.shape[-2:]), axis=0) if np.isfinite(score).any() else score.reshape(
         -1, *score.shape[-2:])[0]
-    body.append(D.Heading("Mount score over the floor", 2))
-    body.append(D.Figure(G.map_figure(best, ax_x, ax_y, "map score (best over yaw, height and style)", cell=dec.cell,
-                                      draw_floor=True, mark=mark, mark_label="recommended mount"),
-                         "Map score over the candidate positions, the best over yaw, height and style; the star is "
-                         "the recommended mount. The map keeps the first IK solution per work point; the ranking "
-                         "re-scores its 40 leaders with every seed's solution and refines them off the grid, so its "
-                         "values are higher and its best need not be the map's brightest cell. " +
-                         _s(r.field("score").description)))
+    recm = recommended_mount(r)
+    extra, where_from = [], ""
+    if recm is not None and recm.get("source") == "refined" and "grid_x" in recm:
+        extra = [(recm["grid_x"], recm["grid_y"],
+                  "grid cell it was refined from" + ("" if recm["map_best"] else " (not the map's best)"))]
+        where_from = (f" The ranking refines the best grid cells off the grid: the recommended mount "
+                      f"({fmt_mm(rec.x)}, {fmt_mm(rec.y)} mm, rank value {fmt_number(recm['rank_value'], 4)}) comes from "
+                      f"the grid cell ({fmt_mm(recm['grid_x'])}, {fmt_mm(recm['grid_y'])} mm, square; rank value "
+                      f"{fmt_number(recm['grid_rank_value'], 4)})"
+                      + (", the map's best cell." if recm["map_best"] else
+                         ", which is not the map's best cell: its refinement ended higher than that of the best cell."))
+    if rank_name == "rank_value":
+        title, label = "Ranking value over the floor", "rank value (best over yaw, height and style)"
+        caption = ("Rank value over the candidate positions, the best over yaw, height and style: the value the "
+                   "ranking sorts (whole part: work points served; fraction: the quality Q as Q / (1 + Q)), from the "
+                   "same IK solutions; the star is the recommended mount." + where_from + " "
+                   + _s(r.field(rank_name).description))
+    else:  # older results files
+        title, label = "Mount score over the floor", "map score (best over yaw, height and style)"
+        caption = ("Map score over the candidate positions, the best over yaw, height and style; the star is the "
+                   "recommended mount. This results file was written before the feasibility-first ranking: its map "
+                   "keeps the first IK solution per work point and need not show the ranking's values. "
+                   + _s(r.field(rank_name).description))
+    body.append(D.Heading(title, 2))
+    body.append(D.Figure(G.map_figure(best, ax_x, ax_y, label, cell=dec.cell, draw_floor=True, mark=mark,
+                                      mark_label=(f"recommended mount ({fmt_mm(rec.x)}, {fmt_mm(rec.y)} mm)"
+                                                  if mark else ""), extra_marks=extra,
+                                      vmin=0.0 if rank_name == "rank_value" else None),
+                         caption))
     bestf = np.nanmax(reached.reshape(-1, *reached.shape[-2:]), axis=0) * 100
     body.append(D.Heading("Work points reached", 2))
     body.append(D.Figure(G.map_figure(bestf, ax_x, ax_y, "work points reached (%)", cell=dec.cell, draw_floor=True,
@@ -493,12 +516,15 @@ def _mount_doc(r, dec, csv_name, progress) -> D.Document:
             hi = int(np.argmin(np.abs(heights - rec.height)))
             yi = int(np.argmin(np.abs(((yaws - rec.yaw + np.pi) % (2 * np.pi)) - np.pi)))
             mc = (hi, yi, rec.x, rec.y)
-        title = "Mount score per yaw and height" + (f" (style {si + 1})" if S > 1 else "")
+        title = (("Rank value" if rank_name == "rank_value" else "Mount score") + " per yaw and height"
+                 + (f" (style {si + 1})" if S > 1 else ""))
         body.append(D.Heading(title, 2))
         body.append(D.Figure(G.small_multiples(score[si], ax_x, ax_y, [f"height {fmt_mm(h)} mm" for h in heights],
-                                               [f"yaw {fmt_deg(y, 0)} deg" for y in yaws], "map score", 0.0, vmax,
+                                               [f"yaw {fmt_deg(y, 0)} deg" for y in yaws],
+                                               "rank value" if rank_name == "rank_value" else "map score", 0.0, vmax,
                                                mark_cell=mc),
-                             "Map score per base yaw (columns) and height (rows), x and y in mm, one colour scale; "
+                             ("Rank value" if rank_name == "rank_value" else "Map score") +
+                             " per base yaw (columns) and height (rows), x and y in mm, one colour scale; "
                              "the star marks the grid panel nearest the recommended mount's yaw and height."))
     sens = r.tables.get("sensitivity")
     if sens is not None and sens.rows:
@@ -519,7 +545,7 @@ def _mount_doc(r, dec, csv_name, progress) -> D.Document:
     # 4 candidates
     progress(0.55, "tables")
     body.append(D.Heading("Candidates"))
-    formula = _s(r.field("score").description)
+    formula = _s(r.field("rank_value" if "rank_value" in r.arrays else "score").description)
     rank = r.tables.get("ranking")
     feasible_first = rank is not None and ("feasib" in (_s(rank.description) or "") or "feasible" in rank.columns)
     body.append(D.Para(f"How the candidates are ordered: {formula}." + (
@@ -892,7 +918,7 @@ def _compare_maps(results, decisions, L) -> list:
     if kind == "mount_search":
         Zs, axx, axy, marks, cells = [], [], [], [], []
         for r, d in zip(results, decisions):
-            s = np.asarray(r.arrays["score"], float)
+            s = np.asarray(r.arrays["rank_value" if "rank_value" in r.arrays else "score"], float)
             Zs.append(np.nanmax(s.reshape(-1, *s.shape[-2:]), axis=0))
             ax = {a.name: a for a in r.axes}
             axx.append(Axis("x", ax["x"].values, "m", "base x"))
@@ -902,17 +928,17 @@ def _compare_maps(results, decisions, L) -> list:
         vmax = max(float(np.nanmax(z)) for z in Zs if np.isfinite(z).any()) if any(
             np.isfinite(z).any() for z in Zs) else 1.0
         out.append(D.Figure(G.side_by_side_maps(Zs, [f"option {l}" for l in L], axx, axy,
-                                                "map score (best over yaw, height, style)", 0.0, vmax, cells, marks),
-                            "Map scores of the options on one colour scale (0 to the largest of all); stars: the "
-                            "recommended mounts."))
+                                                "rank value (best over yaw, height, style)", 0.0, vmax, cells, marks),
+                            "Rank values of the options on one colour scale (0 to the largest of all; whole part: "
+                            "work points served); stars: the recommended mounts."))
         rows = []
         for l, d in zip(L, decisions):
             iv = d.verdict("inverse_condition")
             lm = d.verdict("limit_margin")
-            rows.append([l, "-" if d.recommendation.score is None else fmt_number(d.recommendation.score),
+            rows.append([l, "-" if d.recommendation.score is None else fmt_number(d.recommendation.score, 4),
                          iv.worst if iv else "-", lm.worst if lm else "-"])
-        out.append(D.Table(["option", "score", "worst inverse condition", "smallest limit margin"], rows,
-                           "Scores and worst values of the recommended mounts", align=["l", "r", "r", "r"]))
+        out.append(D.Table(["option", "rank value", "worst inverse condition", "smallest limit margin"], rows,
+                           "Rank values and worst values of the recommended mounts", align=["l", "r", "r", "r"]))
     elif kind == "path_audit":
         names = sorted({n for r in results for n in _path_names(r)}, key=lambda n: [
             _path_names(results[0]).index(n) if n in _path_names(results[0]) else 99])

@@ -369,7 +369,7 @@ def axis_label(axis) -> str:
 
 
 def map_figure(Z, ax_x, ax_y, label, *, cell=None, draw_floor=False, mark=None, mark_label="", vmin=None,
-               vmax=None, cmap="viridis", height=3.9, categories=None, title=""):
+               vmax=None, cmap="viridis", height=3.9, categories=None, title="", extra_marks=()):
     """A heat map with its colour bar beside it (never over it).
 
     Parameters
@@ -379,7 +379,9 @@ def map_figure(Z, ax_x, ax_y, label, *, cell=None, draw_floor=False, mark=None, 
     label : str
         Colour bar label (with unit).
     mark : (x, y) in SI, optional
-        Marked with a star (the recommendation).
+        Marked with a star (the recommendation) and labelled ``mark_label`` in the legend.
+    extra_marks : sequence of (x, y, label) in SI
+        Marked with open squares (e.g. the grid cell the recommendation was refined from).
     categories : list of str, optional
         Discrete values 0..k-1 (colour bar ticks named).
     """
@@ -420,9 +422,13 @@ def map_figure(Z, ax_x, ax_y, label, *, cell=None, draw_floor=False, mark=None, 
         ax.set_xlim(_extent(ax_x, ax_y, sx, sy)[:2])
         ax.set_ylim(_extent(ax_x, ax_y, sx, sy)[2:])
         ax.set_aspect("equal", adjustable="box")
+    for ex, ey, elabel in extra_marks or ():
+        ax.plot([ex * sx], [ey * sy], marker="s", ms=8, mec="k", mfc="none", mew=1.3, ls="none", label=elabel,
+                zorder=8)
     if mark is not None:
-        ax.plot([mark[0] * sx], [mark[1] * sy], marker="*", ms=13, mec="k", mfc="white", ls="none",
+        ax.plot([mark[0] * sx], [mark[1] * sy], marker="*", ms=14, mec="k", mfc="white", ls="none",
                 label=mark_label or "recommended", zorder=9)
+    if mark is not None or extra_marks:
         ax.legend(loc="upper right", fontsize=FONT - 1, framealpha=0.85)
     if (~fin).any() and fin.any():
         ax.set_facecolor("#f2f2f2")
