@@ -82,6 +82,10 @@ def test_per_point_values_reproduce_the_score_and_the_measures(res, decs):
     w = min(p.inverse_condition for p in pts)
     mm = min(p.margin for p in pts)
     q = w * mm ** 0.5
+    if all(p.clearance is not None for p in pts):  # collisions checked: times min(1, c / 0.1 m)^0.5
+        from workbench.studies.mount_search import CLEARANCE_FULL
+
+        q *= min(1.0, min(p.clearance for p in pts) / CLEARANCE_FULL) ** 0.5
     assert len(pts) + q / (1 + q) == pytest.approx(d.recommendation.score, rel=1e-9)
     assert not d.notes
 
@@ -93,10 +97,16 @@ def test_mount_verdicts(decs):
     w = min(p.inverse_condition for p in d.points)
     assert v["inverse_condition"].value == pytest.approx(w) and v["inverse_condition"].status == (
         PASS if w >= 0.02 else FAIL)
-    # collisions and torques are not in these results: said so, with the reason, never left out
-    assert v["clearance"].status == NOT_CHECKED and v["clearance"].note
+    # torques are not in these results: said so, with the reason, never left out
     if arm_shapes(d.arm.model) is None:
+        assert v["clearance"].status == NOT_CHECKED and v["clearance"].note
         assert "no collision shapes" in v["clearance"].note and "Collisions not checked" in d.collisions
+    else:
+        # the arm has shapes: the clearance at the chosen solutions (best_points 'clearance', mm)
+        # is the verdict's worst value, against the default 10 mm
+        c = min(p.clearance for p in d.points)
+        assert v["clearance"].value == pytest.approx(c) and v["clearance"].status == (PASS if c >= 0.01 else FAIL)
+        assert "Collisions checked" in d.collisions
     assert v["torque_margin"].status == NOT_CHECKED
     assert v["path_speeds"].status == NOT_CHECKED and "path audit" in v["path_speeds"].note
     assert len(d.risks) == 3

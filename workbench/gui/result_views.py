@@ -13,19 +13,43 @@ from PySide6 import QtCore, QtGui, QtWidgets
 
 from ..measures import NEAR_SINGULAR
 
+from .formlogic import fmt_number
 from .resultdata import MEASURE_LABELS, ResultData
+from .style import FlowLayout, Legend
 from .selection import Selection, polygon_mask, range_mask, rect_mask, rows_mask
 
 __all__ = ["MapView", "HistogramView", "PoseTableModel", "PoseListView", "display_values", "measure_label"]
 
 HIST_BINS = 60
 SEL_RGBA = (255, 140, 0, 150)
+BRUSHED_ENTRY = (SEL_RGBA, "fill", "brushed")
+PICKED_ENTRY = ((220, 0, 0), "ring", "picked cell")
 CONTOUR_MAX_CELLS = 160          # the contour is traced on a grid of at most this many cells a side
 LOG_MEASURES = ("condition",)
 #: while a run goes on, a map with more cells than this is drawn from every k-th row and column
 #: (at most LIVE_SIDE a side); the final redraw shows every cell
 LIVE_MAX_CELLS = 250_000
 LIVE_SIDE = 500
+
+
+FIRST_HINT = ("No results yet: press Run (F5) for the study of the Study panel, or open a results "
+              "file (Ctrl+O). Earlier runs: Runs panel.")
+THRESHOLD_PEN = ((255, 255, 255), (0, 0, 0))      # the 1/k contour: white over a black shadow
+
+
+def _hint_stack(plot, text):
+    """A stack showing ``text`` in place of an empty ``plot`` (first start, no result)."""
+    stack = QtWidgets.QStackedWidget()
+    hint = QtWidgets.QLabel(text)
+    hint.setObjectName("empty_hint")
+    hint.setWordWrap(True)
+    hint.setAlignment(QtCore.Qt.AlignCenter)
+    hint.setMargin(12)
+    hint.setStyleSheet("color: #333; background: white; font-size: 11pt")
+    stack.addWidget(hint)
+    stack.addWidget(plot)
+    stack.setCurrentWidget(hint)
+    return stack, hint
 
 
 def measure_label(name) -> str:
@@ -71,7 +95,7 @@ class MapView(QtWidgets.QWidget):
         self.threshold = NEAR_SINGULAR
         lay = QtWidgets.QVBoxLayout(self)
         lay.setContentsMargins(0, 0, 0, 0)
-        bar = QtWidgets.QHBoxLayout()
+        bar = FlowLayout(spacing=6)       # wraps into rows in a narrow window: no clipped buttons
         bar.addWidget(QtWidgets.QLabel("Measure"))
         self.measure_combo = QtWidgets.QComboBox()
         self.measure_combo.setSizeAdjustPolicy(QtWidgets.QComboBox.AdjustToContents)
@@ -91,16 +115,15 @@ class MapView(QtWidgets.QWidget):
         self.clear_btn = QtWidgets.QPushButton("Clear brush")
         self.clear_btn.clicked.connect(lambda: self.selection.clear(source="map"))
         bar.addWidget(self.clear_btn)
-        bar.addStretch(1)
         lay.addLayout(bar)
-        self.legend = QtWidgets.QLabel("")
-        self.legend.setStyleSheet("color: #333")
-        self.legend.setWordWrap(True)
+        self.legend = Legend()
+        self.legend.setObjectName("map_legend")
         lay.addWidget(self.legend)
 
         self.plot = pg.PlotWidget()
         self.plot.setBackground("w")
-        lay.addWidget(self.plot, 1)
+        self.stack, self.hint = _hint_stack(self.plot, FIRST_HINT)
+        lay.addWidget(self.stack, 1)
         self.image = pg.ImageItem(axisOrder="row-major")
         self.plot.addItem(self.image)
         self.overlay = pg.ImageItem(axisOrder="row-major")
@@ -135,8 +158,17 @@ class MapView(QtWidgets.QWidget):
     def measure(self) -> str:
         return self.measure_combo.currentData() or ""
 
+    @property
+    def hint_shown(self) -> bool:
+        return self.stack.currentWidget() is self.hint
+
+    def show_hint(self, on=True):
+        """The first-start hint in place of the empty plot (``on``), or the plot."""
+        self.stack.setCurrentWidget(self.hint if on else self.plot)
+
     def set_result(self, data: ResultData):
         self.data = data
+        self.show_hint(False)
         for it in getattr(self, "_series_items", []):
             self.plot.removeItem(it)
         self._series_items = []
@@ -174,6 +206,7 @@ class MapView(QtWidgets.QWidget):
         self.brush_btn.setChecked(False)
         self._toggle_series_region(False)
         self.data = data
+        self.show_hint(False)
         self.measure_combo.blockSignals(True)
         self.measure_combo.clear()
         for m in data.measure_names:
@@ -235,11 +268,11 @@ class MapView(QtWidgets.QWidget):
         if d is None or "inverse_condition" not in d.measures:
             self.contour.setData(None)
             self.contour_shadow.setData(None)
+            entries = [BRUSHED_ENTRY, PICKED_ENTRY]
             if d is not None and d.mount_fn is not None:
-                self.legend.setText("each floor cell shows its best candidate over heights, yaws and mount "
-                                    "styles; click a cell to place the arm there; orange: brushed")
-            else:
-                self.legend.setText("orange: brushed")
+                entries.insert(0, ([(68, 1, 84), (33, 145, 140), (253, 231, 37)], "ramp",
+                                   "best candidate of each floor cell (click: place the arm)"))
+            self.legend.set_entries(entries)
             return
         g = d.grid("inverse_condition")
         s = max(1, int(np.ceil(max(g.shape) / CONTOUR_MAX_CELLS)))
@@ -251,8 +284,8 @@ class MapView(QtWidgets.QWidget):
         for item in (self.contour, self.contour_shadow):
             item.setData(sub, level=self.threshold)
             item.setTransform(tr)
-        self.legend.setText(f"white line: 1/k = {self.threshold:g} (near-singular side is below); "
-                            f"orange: brushed")
+        self.legend.set_entries([(THRESHOLD_PEN[0], "line", f"1/k = {fmt_number(self.threshold)} "
+                                  f"(near singular below)", THRESHOLD_PEN[1]), BRUSHED_ENTRY, PICKED_ENTRY])
 
     def _measure_chosen(self, _i):
         if self.data is not None and not self.data.is_map:
@@ -382,12 +415,18 @@ class HistogramView(QtWidgets.QWidget):
         self.info.setMinimumWidth(60)
         bar.addWidget(self.info, 1)
         lay.addLayout(bar)
+        self.legend = Legend([((150, 150, 150, 160), "fill", "all finished cells"),
+                              (SEL_RGBA, "fill", "brushed cells"),
+                              ((200, 0, 0), "dash", "near-singular threshold")])
+        self.legend.setObjectName("histogram_legend")
+        lay.addWidget(self.legend)
         self.plot = pg.PlotWidget()
         self.plot.setBackground("w")
         self.plot.setLabel("left", "cells")
         for ax in ("bottom", "left"):
             self.plot.getAxis(ax).enableAutoSIPrefix(False)
-        lay.addWidget(self.plot, 1)
+        self.stack, self.hint = _hint_stack(self.plot, "The histogram of the map's measure appears here.")
+        lay.addWidget(self.stack, 1)
         self.all_item = pg.PlotDataItem(stepMode="center", fillLevel=0, brush=(150, 150, 150, 160),
                                         pen=pg.mkPen((110, 110, 110)), name="all finished cells")
         self.sel_item = pg.PlotDataItem(stepMode="center", fillLevel=0, brush=SEL_RGBA,
@@ -404,8 +443,16 @@ class HistogramView(QtWidgets.QWidget):
         self.all_counts = np.zeros(HIST_BINS, dtype=np.int64)
         selection.subscribe(self._on_selection)
 
+    @property
+    def hint_shown(self) -> bool:
+        return self.stack.currentWidget() is self.hint
+
+    def show_hint(self, on=True):
+        self.stack.setCurrentWidget(self.hint if on else self.plot)
+
     def set_result(self, data: ResultData, measure: str):
         self.data = data
+        self.show_hint(False)
         self._toggle_region(False)
         self.range_btn.setChecked(False)
         self.set_measure(measure)
@@ -473,8 +520,8 @@ class HistogramView(QtWidgets.QWidget):
         else:
             self.sel_counts = np.zeros(HIST_BINS, dtype=np.int64)
         self.sel_item.setData(self.edges, self.sel_counts)
-        self.info.setText((f"{sel.count} of {int(self.all_counts.sum())} cells brushed" if sel.active
-                           else f"{int(self.all_counts.sum())} cells") + " · grey: all · orange: brushed")
+        n = int(self.all_counts.sum())
+        self.info.setText(f"{sel.count:,} of {n:,} cells brushed" if sel.active else f"{n:,} cells")
 
 
 class PoseTableModel(QtCore.QAbstractTableModel):
@@ -587,14 +634,16 @@ class PoseTableModel(QtCore.QAbstractTableModel):
             if key == "note":
                 return "near singular" if self._near()[c] else ""
             if key == "x":
-                return f"{round(d.cell_xy(c)[0], 9) + 0.0:.4g}"
+                return fmt_number(round(d.cell_xy(c)[0], 9))
             if key == "y":
-                return f"{round(d.cell_xy(c)[1], 9) + 0.0:.4g}"
+                return fmt_number(round(d.cell_xy(c)[1], 9))
             if key[0] == "q":
                 v = d.poses([c])[0, key[1]]
-                return "" if not np.isfinite(v) else (f"{np.degrees(v):.1f}" if key[2] == "revolute" else f"{v * 1000:.1f}")
-            v = d.measures[key[1]][c]
-            return "inf" if np.isinf(v) else ("" if np.isnan(v) else f"{v:.4g}")
+                if not np.isfinite(v):
+                    return ""
+                v = np.degrees(v) if key[2] == "revolute" else v * 1000.0
+                return f"{round(float(v), 1) + 0.0:,.1f}"      # + 0.0: no "-0.0"
+            return fmt_number(d.measures[key[1]][c])
         if role == QtCore.Qt.ForegroundRole and key == "note":
             return QtGui.QBrush(QtGui.QColor(180, 20, 20))
         return None

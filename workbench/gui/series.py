@@ -65,8 +65,10 @@ def show_series(view, data, threshold):
     plot.setLabel("bottom", data.x_label)
     plot.setLabel("left", measure_label(m))
     plot.setTitle(data.title or data.kind)
-    view.legend.setText("orange: brushed; the scene shows the TCP points coloured by the measure" if unordered
-                        else f"red bands: near singular (1/k < {threshold:g}); orange: brushed")
+    brushed = ((255, 140, 0), "dot", "brushed samples")
+    view.legend.set_entries([brushed, ((40, 150, 60), "dot", "TCP points in the scene (colour: measure)")]
+                            if unordered else
+                            [((220, 40, 40, 60), "fill", f"near singular (1/k < {threshold:g})"), brushed])
     plot.getPlotItem().vb.autoRange(padding=0.02)
     if getattr(view, "picked", None) is not None and view.picked < data.size:
         view.mark_cell(view.picked)     # the ring follows the measure shown
