@@ -83,6 +83,9 @@ def main(argv=None):
     win.result_tabs.setCurrentIndex(1)
     shots.append(_shot(app, win, out, "04_pose_list.png"))
     win.result_tabs.setCurrentIndex(0)
+    win.resize(1024, 700)                       # the smallest layout the window is made for
+    shots.append(_shot(app, win, out, "10_small_window.png"))
+    win.resize(*SIZE)
     mv.set_mode("pan")
     win.selection.clear()
 
