@@ -149,3 +149,80 @@ def test_bad_clearance_settings_are_one_clear_error(bad):
 def test_span_sentence_names_the_pair():
     assert collide.span_sentence(("link 3", "box 'conveyor'"), 0.004) == "link 3 within 4 mm of box 'conveyor'"
     assert collide.span_sentence(("tool", "floor"), -0.002) == "tool overlaps floor by 2 mm"
+
+
+# ----------------------------------------------------------------------------------------------
+# reach slice: the status bit "reached only by colliding solutions" and the clearance field
+
+
+def _elbow_boxes(*signs):
+    """Boxes 0.1 m on a side centred on the elbow of the solutions for the tip at (1.5, 0):
+    law of cosines (worked by hand) puts the elbow at (0.75, +-sqrt(1 - 0.75^2)) = (0.75, +-0.6614)."""
+    y = math.sqrt(1 - 0.75 ** 2)
+    return "".join(f"[[box]]\nname = \"elbow {'up' if sg > 0 else 'down'}\"\ncenter = [0.75, {sg * y!r}, 0.5]\n"
+                   f"size = [0.1, 0.1, 0.1]\n" for sg in signs)
+
+
+def run_slice(arm, boxes, settings=None):
+    from workbench.studies.reach_slice import ReachSlice
+
+    text = f"[cell]\nname = \"c\"\nfloor = false\n[[point]]\nname = \"p\"\nxyz = [1.5, 0, 0.5]\n{boxes}"
+    cell = parse_cell_text(text, "c.toml")
+    st = {"grid": "plane", "plane": "xy", "at": 0.5, "u": [1.5, 1.5], "v": [0.0, 0.0], "steps": [1, 1],
+          "orientation": "free", "seeds": 8, "rows": ["vx", "vy"], "best": "manipulability"}
+    st.update(settings or {})
+    kind = ReachSlice()
+    plan = kind.plan(StudySpec(kind="reach_slice", arm="2r", cell="c.toml", settings=st), arm, cell)
+    return plan, kind.compute_chunk(plan, arm, cell, Chunk(0, 0, plan.cells)), kind
+
+
+def test_reach_slice_status_bit_when_every_solution_collides():
+    from workbench.studies.reach_slice import COLLIDING, REACHED
+
+    arm = arm_2r()
+    plan, a, kind = run_slice(arm, _elbow_boxes(1, -1))
+    assert plan.fields[0].flags[COLLIDING] == "reached only by colliding solutions"
+    st = int(a["status"][0])
+    assert st & COLLIDING and not st & REACHED
+    assert a["solutions"][0] == 0 and np.all(np.isnan(a["q"][0]))
+    # each elbow's capsules run through their box's centre: the segment's deepest point is 0.05 m
+    # inside (half the box), so the signed distance is -(0.05 + 0.05) = -0.1 m (worked by hand)
+    assert a["clearance"][0] == pytest.approx(-0.1, abs=1e-6)
+    summary = kind.summarise(plan, a)["reach"].columns
+    assert summary["colliding_only"][0] == 1 and summary["reached"][0] == 0
+
+
+def test_reach_slice_keeps_the_clear_branch_and_its_clearance():
+    from workbench.studies.reach_slice import COLLIDING, REACHED
+
+    arm = arm_2r()
+    _plan, a, _k = run_slice(arm, _elbow_boxes(1))          # only the elbow-up branch is blocked
+    st = int(a["status"][0])
+    assert st & REACHED and not st & COLLIDING
+    assert a["solutions"][0] == 1
+    # the elbow-down solution (worked by hand): q1 = -acos(0.75), q2 = 2 acos(0.75)
+    c = math.acos(0.75)
+    np.testing.assert_allclose(a["q"][0], [-c, 2 * c], atol=1e-5)
+    # its clearance to the elbow-up box against dense sampling of both link axes (numpy, point to
+    # axis-aligned box distance), minus the capsule radius
+    e = np.array([0.75, -math.sqrt(1 - 0.75 ** 2)])
+    t = np.linspace(0, 1, 20001)[:, None]
+    pts = np.vstack([t * e, e + t * (np.array([1.5, 0]) - e)])
+    lo, hi = np.array([0.70, math.sqrt(1 - 0.75 ** 2) - 0.05]), np.array([0.80, math.sqrt(1 - 0.75 ** 2) + 0.05])
+    gap = np.maximum(np.maximum(lo - pts, pts - hi), 0)
+    ref = np.min(np.linalg.norm(gap, axis=1)) - R
+    assert a["clearance"][0] == pytest.approx(ref, abs=1e-4)
+
+
+def test_reach_slice_collisions_false_gives_the_old_results():
+    from workbench.studies.reach_slice import COLLIDING, REACHED
+
+    arm = arm_2r()
+    plan, a, _k = run_slice(arm, _elbow_boxes(1, -1), {"collisions": False})
+    _p0, a0, _k0 = run_slice(arm_2r(shapes=False), "", {})     # no shapes: nothing to check
+    assert int(a["status"][0]) & REACHED and not int(a["status"][0]) & COLLIDING
+    assert "clearance" not in a and "clearance" not in a0
+    for key in ("status", "solutions", "q", "manipulability"):
+        np.testing.assert_array_equal(a[key], a0[key])
+    assert plan.data["result_attrs"]["collisions"] == "not checked: switched off in the study settings (collisions = false)"
+    assert _p0.data["result_attrs"]["collisions"] == "not checked: the arm has no collision shapes"
