@@ -135,8 +135,8 @@ def test_verdicts_tab_and_the_recommended_mount(window, small_cell_results, qtbo
     rows = {r[0]: r for r in vv.rows()}
     served = rows["Work points served (reached, inside the joint limits)"]
     assert served[2] == "2 of 2" and served[4] == "pass"
-    # the scene marks the mount of the results file's own first refined row (mm -> m)
-    ref = read_results(ms, load=False).tables["refined"].columns
+    # the scene marks the results file's own recommended mount (its 'recommended' table, mm -> m)
+    ref = read_results(ms, load=False).tables["recommended"].columns
     want = np.array([ref["x"][0], ref["y"][0], ref["height"][0]]) / 1000.0
     assert np.allclose(window.scene.recommended(), want)
     # a path audit: samples reached counted from its arrays; a failed row is shown red

@@ -41,6 +41,17 @@ def torque_parts(arm, q, reqs=None) -> dict:
     return {k: np.asarray(v, float).reshape(arm.n) for k, v in parts.items()}
 
 
+def _nice_ceiling(v: float) -> float:
+    """The next value of 1, 1.5, 2, 3, 5 x 10^k at or above ``v`` (> 0): the y range moves in
+    steps, not on every slider step."""
+    v = max(float(v), 1e-9)
+    e = 10.0 ** np.floor(np.log10(v))
+    for m in (1.0, 1.5, 2.0, 3.0, 5.0, 10.0):
+        if m * e >= v * (1 - 1e-12):
+            return m * e
+    return 10.0 * e
+
+
 class TorqueChart(QtWidgets.QWidget):
     """The chart, the requirement chooser and a one-line verdict."""
 
@@ -88,6 +99,7 @@ class TorqueChart(QtWidgets.QWidget):
         self.scaled = False        # True: the bars are % of the limit
         self.heights = {}          # key -> (n,) bar heights as drawn
         self.error = ""
+        self._frame = None
 
     # ---- input ---------------------------------------------------------------------------
     def set_cell(self, cell):
@@ -171,11 +183,15 @@ class TorqueChart(QtWidgets.QWidget):
             ys = np.repeat(np.column_stack([lim[ok], -lim[ok]]), 2, axis=1).reshape(-1)
             self.limit_lines.setData(xs, ys, connect="pairs")
             top = max([float(np.nanmax(np.abs(h))) for h in self.heights.values()] + list(lim[ok]) + [1e-6]) * 1.1
-        self.plot.setYRange(-top, top, padding=0)
-        self.plot.setXRange(0.4, n + 0.6, padding=0)
-        ax = self.plot.getAxis("bottom")
-        ax.setTicks([[(k + 1, nm) for k, nm in enumerate(arm.names)]])
-        self.plot.setLabel("left", "% of the joint's limit" if self.scaled else "N m (rotary) / N (sliding)")
+        # axes change only when the arm or the scale changes: a slider step redraws bars, not axes
+        top = _nice_ceiling(top)
+        frame = (tuple(arm.names), self.scaled, top)
+        if frame != self._frame:
+            self._frame = frame
+            self.plot.setYRange(-top, top, padding=0)
+            self.plot.setXRange(0.4, n + 0.6, padding=0)
+            self.plot.getAxis("bottom").setTicks([[(k + 1, nm) for k, nm in enumerate(arm.names)]])
+            self.plot.setLabel("left", "% of the joint's limit" if self.scaled else "N m (rotary) / N (sliding)")
         tot = self.parts["total"]
         if self.scaled:
             use = np.abs(tot) / lim
