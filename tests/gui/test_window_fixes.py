@@ -38,8 +38,10 @@ def test_a_mount_search_results_file_opens(window, small_cell_results):
     S, H, Y, ny, nx = ms.shape
     assert d.shape == (ny, nx) and d.fraction_done == 1.0
     # each floor cell shows its best candidate over styles, heights and yaws (a max over the file)
-    best = np.nanmax(ms.flat("score").reshape(S * H * Y, ny * nx), axis=0)
-    assert np.allclose(d.measures["score"], best)
+    # by the ranking's own value, the rank value
+    best = np.nanmax(ms.flat("rank_value").reshape(S * H * Y, ny * nx), axis=0)
+    assert np.allclose(d.measures["rank_value"], best)
+    assert d.threshold_measure == "rank_value"
     # the study panel shows the file's study, not the defaults of another kind
     assert window.study_panel.kind.name == "mount_search"
     assert window.study_panel.edits["seeds"].text() == "4"

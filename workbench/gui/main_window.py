@@ -883,7 +883,7 @@ class MainWindow(QtWidgets.QMainWindow):
         self.hist_view.set_result(data, data.threshold_measure)
         self.pose_list.set_result(data)
         if data.mount_fn is not None and "mount_full_index" in data.extras:
-            col = next(i for i, c in enumerate(self.pose_list.model.columns) if c[1] == ("m", "score"))
+            col = next(i for i, c in enumerate(self.pose_list.model.columns) if c[1] == ("m", data.threshold_measure))
             self.pose_list.table.sortByColumn(col, QtCore.Qt.DescendingOrder)
         self._show_candidates()
         self._show_series()
@@ -913,8 +913,16 @@ class MainWindow(QtWidgets.QMainWindow):
             return
         X, Y = np.meshgrid(d.x, d.y)
         pts = np.column_stack([X.ravel(), Y.ravel(), np.zeros(X.size)])
-        sc = d.measures["score"]
+        key = d.threshold_measure if d.threshold_measure in d.measures else "score"
+        sc = d.measures[key]
         f = sc[np.isfinite(sc)]
+        if key == "rank_value" and f.size:  # colours over the cells serving the most points, fewer grey
+            k = np.floor(f.max())
+            span = f.max() - k
+            with np.errstate(invalid="ignore"):
+                col = np.where(np.isfinite(sc) & (sc >= k), (sc - k) / (span if span > 0 else 1.0), np.nan)
+            self.scene.set_candidates(pts, col)
+            return
         top = float(f.max()) if f.size and f.max() > 0 else 1.0
         self.scene.set_candidates(pts, np.where(np.isfinite(sc), sc / top, np.nan))
 

@@ -96,22 +96,23 @@ class StudySession:
         plan, arm = self.plan, self.arm
         S, H, Y, ny, nx = plan.shape
         ax = {a.name: a for a in plan.axes}
-        score = self.arrays["score"].reshape(S * H * Y, ny * nx)
+        key = "rank_value" if "rank_value" in self.arrays else "score"   # the ranking's own value
+        score = self.arrays[key].reshape(S * H * Y, ny * nx)
         best = np.argmax(np.where(np.isfinite(score), score, -np.inf), axis=0)   # (ny * nx,)
         self._mount_best = best
         cols = np.arange(ny * nx)
         full = best * (ny * nx) + cols
-        names = ("score", "reached_fraction", "worst_measure", "min_margin")
+        names = ("rank_value", "served", "score", "reached_fraction", "worst_measure", "min_margin")
         measures = {m: self.arrays[m][full].astype(float) for m in names if m in self.arrays}
         data = ResultData(kind=self.kind.title or plan.kind, shape=(ny, nx), x=ax["x"].values, y=ax["y"].values,
                           x_label="base x (m)", y_label="base y (m)", measures=measures, q=None,
                           joint_names=tuple(arm.names), joint_kinds=tuple(j.kind for j in arm.model.joints),
                           title=(self.spec.name if self.spec is not None else "") or self.kind.title,
-                          threshold_measure="score")
+                          threshold_measure=key)
         data.extras["mount_full_index"] = full
         data.pose_fn = self._mount_pose
         data.mount_fn = self._mount_of_cell
-        data.done = np.isfinite(measures["score"])
+        data.done = np.isfinite(measures[key])
         return data
 
     def refresh_derived(self):

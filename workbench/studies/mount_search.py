@@ -892,7 +892,9 @@ def summarise_mount_search(plan, arrays, top: int = 20) -> dict:
          "grid_height": np.array([float(ax["height"][b0]) * 1000]),
          "grid_style": np.array([styles[a0]], dtype=object),
          "grid_rank_value": np.array([best["grid_rank_value"]]),
-         "map_best": np.array([int(int(best["grid_index"]) == k0)])},
+         # the map's best cell: rank 1 of the grid, or a cell of the same value (ties, e.g. yaws that
+         # joint 1 takes up, count as the best)
+         "map_best": np.array([int(int(best["grid_index"]) == k0 or best["grid_rank_value"] >= rank[k0])])},
         {"x": "mm", "y": "mm", "height": "mm", "yaw": "deg", "tilt": "deg", "grid_x": "mm", "grid_y": "mm",
          "grid_yaw": "deg", "grid_height": "mm"},
         "the one recommended mount: " + ("the best refined mount rounded to 1 mm and 0.1 deg and scored again there"
