@@ -890,7 +890,7 @@ class MainWindow(QtWidgets.QMainWindow):
         self.scene.set_ghosts(None)
 
     def _show_candidates(self):
-        """Mount search: the floor cells drawn in the scene, coloured by their best score. Random
+        """Mount search: the floor cells drawn in the scene, coloured by their best rank value. Random
         samples: the cloud of TCP points (at most 20 000 drawn), coloured by the inverse condition."""
         d = self.result
         if d is not None and d.tcp is not None:

@@ -460,7 +460,7 @@ def _mount_doc(r, dec, csv_name, progress) -> D.Document:
     # 2 work points
     body.append(D.Heading("Work points at the recommended mount"))
     if dec.points:
-        body.append(D.Para("Joint values of the IK solution behind the ranking's score at each work point, the "
+        body.append(D.Para("Joint values of the IK solution behind the rank value at each work point, the "
                            "measures of the study's task rows there, the joint-limit margin and the joint nearest "
                            "its limit, and which requirement checks pass." +
                            (f" The same table with full precision is written beside this report as {csv_name}."

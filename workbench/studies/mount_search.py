@@ -757,6 +757,8 @@ def _torque_columns(plan, ev) -> dict:
 #: the recommended mount is rounded to this placement resolution (m, rad) before it is scored again
 ROUND_XY = 0.001
 ROUND_YAW = 0.1 * _DEG
+#: rank values closer than this count as equal for ``map_best`` (below the 6 digits shown)
+MAP_TIE = 1e-6
 
 
 def summarise_mount_search(plan, arrays, top: int = 20) -> dict:
@@ -892,14 +894,15 @@ def summarise_mount_search(plan, arrays, top: int = 20) -> dict:
          "grid_height": np.array([float(ax["height"][b0]) * 1000]),
          "grid_style": np.array([styles[a0]], dtype=object),
          "grid_rank_value": np.array([best["grid_rank_value"]]),
-         # the map's best cell: rank 1 of the grid, or a cell of the same value (ties, e.g. yaws that
+         # the map's best cell: rank 1 of the grid, or a cell within MAP_TIE of its value (ties, e.g. yaws that
          # joint 1 takes up, count as the best)
-         "map_best": np.array([int(int(best["grid_index"]) == k0 or best["grid_rank_value"] >= rank[k0])])},
+         "map_best": np.array([int(int(best["grid_index"]) == k0 or best["grid_rank_value"] >= rank[k0] - MAP_TIE)])},
         {"x": "mm", "y": "mm", "height": "mm", "yaw": "deg", "tilt": "deg", "grid_x": "mm", "grid_y": "mm",
          "grid_yaw": "deg", "grid_height": "mm"},
         "the one recommended mount: " + ("the best refined mount rounded to 1 mm and 0.1 deg and scored again there"
                                          if best["source"] == "refined" else "the best grid cell")
-        + "; grid_*: the grid cell it comes from (map_best = 1: the map's best cell); " + RANK_RULE)
+        + "; grid_*: the grid cell it comes from (map_best = 1: the map's best cell, or within 1e-6 of its "
+        "rank value); " + RANK_RULE)
     if s.sensitivity:
         sens = sensitivity(arm, points, s, best["x"], best["y"], best["height"], best["yaw"], best["tilt"],
                            q0=best["q"][None])
