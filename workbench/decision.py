@@ -205,7 +205,7 @@ class Recommendation:
         out = [("x", f"{fmt_mm(self.x)} mm"), ("y", f"{fmt_mm(self.y)} mm"), ("height", f"{fmt_mm(self.height)} mm"),
                ("yaw", f"{fmt_deg(self.yaw)} deg"), ("style", self.style)]
         if self.score is not None:
-            out.append(("rank value", fmt_number(self.score, 4)))
+            out.append(("rank value", fmt_number(self.score, 6)))
         return out
 
 
@@ -590,9 +590,16 @@ def _mount_decision(ctx: _Ctx) -> Decision:
     src = None
     if recd is not None and recd.rows:
         c, row = recd.columns, 0
-        src = ("the mount search's recommended mount (table 'Recommended mount': "
-               + ("the best refined mount rounded to 1 mm and 0.1 deg" if str(_s(c["source"][0])) == "refined"
-                  else "the best grid cell") + ")")
+        if str(_s(c["source"][0])) == "refined":
+            src = ("the mount search's recommended mount (table 'Recommended mount'): the best refined mount, "
+                   "rounded to 1 mm and 0.1 deg and scored there; refined off the grid from the grid cell "
+                   f"x = {fmt_number(float(c['grid_x'][0]), 6)} mm, y = {fmt_number(float(c['grid_y'][0]), 6)} mm, "
+                   f"yaw {fmt_number(float(c['grid_yaw'][0]), 4)} deg (rank value "
+                   f"{fmt_number(float(c['grid_rank_value'][0]), 6)}"
+                   + (", the map's best cell)" if int(c["map_best"][0]) else ", not the map's best cell: its "
+                      "refinement ended higher than the best cell's)"))
+        else:
+            src = "the mount search's recommended mount (table 'Recommended mount'): the best grid cell"
     elif ref is not None:
         c, row, src = ref.columns, 0, f"refined mount 1 of {ref.rows} of the mount search (table 'Refined mounts')"
     elif rank is not None:
@@ -722,7 +729,9 @@ def _mount_decision(ctx: _Ctx) -> Decision:
     served = int(reached.sum())
     fails = [v for v in verdicts if v.status == FAIL]
     answer = (f"Mount the base on the {style} at x = {fmt_mm(x)} mm, y = {fmt_mm(y)} mm, height {fmt_mm(h)} mm, "
-              f"yaw {fmt_deg(yaw)} deg (cell frame). From there it serves {served} of {P} work points; "
+              f"yaw {fmt_deg(yaw)} deg (cell frame). From there it serves {served} of {P} work points"
+              + (f" (rank value {fmt_number(score, 6)}: points served first, then quality)" if "rank_value" in c else "")
+              + "; "
               + (f"{len(fails)} requirement{'s' if len(fails) > 1 else ''} fail{'s' if len(fails) == 1 else ''} "
                  f"({', '.join(v.requirement.split(' (')[0].lower() for v in fails)})." if fails else
                  "every checked requirement passes."))

@@ -940,6 +940,10 @@ def _mark_recommended(ax, results, ax_x) -> None:
     if rec.get("source") == "refined" and "grid_x" in rec:
         ax.plot([rec["grid_x"] * k], [rec["grid_y"] * k], marker="s", ms=9, mec="k", mfc="none", mew=1.5, ls="none",
                 zorder=8, label="grid cell it was refined from" + ("" if rec["map_best"] else " (not the map's best)"))
+    rk = results.tables.get("ranking")
+    if rk is not None and rk.rows and not rec["map_best"]:
+        ax.plot([float(rk.columns["x"][0]) / 1000 * k], [float(rk.columns["y"][0]) / 1000 * k], marker="D", ms=8,
+                mec="k", mfc="none", mew=1.5, ls="none", zorder=8, label="map's best cell (grid rank 1)")
     ax.legend(loc="upper right", fontsize=8, framealpha=0.85)
 
 
@@ -1025,11 +1029,22 @@ def export_png(results: Results, path, measure: str | None = None, dpi: int = 12
             x, y = a0.display_values(), a1.display_values()
             dy, dx = (y[-1] - y[0]) / (y.size - 1), (x[-1] - x[0]) / (x.size - 1)  # cell centres on the values
             ext = [y[0] - dy / 2, y[-1] + dy / 2, x[0] - dx / 2, x[-1] + dx / 2]
-            im = ax.imshow(v, origin="lower", aspect="auto", extent=ext, cmap="viridis", vmax=vmax,
+            cmap, vmin, extend, cblabel = "viridis", None, "neither", measure
+            fin = np.isfinite(v)
+            if measure == "rank_value" and fin.any():
+                # the colours span the candidates serving the most work points; fewer: grey
+                import matplotlib
+
+                top = math.floor(float(np.nanmax(v)))
+                if (v[fin] < top).any() and float(np.nanmax(v)) > top:
+                    cmap = matplotlib.colormaps["viridis"].with_extremes(under="#d9d9d9")
+                    vmin, extend = float(top), "min"
+                    cblabel = f"rank_value = {top} + Q / (1 + Q) (grey: fewer than {top} work points served)"
+            im = ax.imshow(v, origin="lower", aspect="auto", extent=ext, cmap=cmap, vmin=vmin, vmax=vmax,
                            interpolation="nearest")
             ax.set_xlabel(lab(a1))
             ax.set_ylabel(lab(a0))
-            fig.colorbar(im, ax=ax, label=measure)
+            fig.colorbar(im, ax=ax, label=cblabel, extend=extend)
             if (a0.name, a1.name) == ("y", "x"):
                 _mark_recommended(ax, results, a1)
     ax.set_title(title, fontsize=10)
