@@ -36,13 +36,15 @@ def test_numbers_for_people():
 
 def test_mount_recommendation_is_the_rankings_first(res, decs):
     r, d = res["ms"], decs["ms"]
-    ref = r.tables["refined"].columns
+    ref = r.tables["recommended"].columns  # the refined mount 1, rounded to 1 mm / 0.1 deg
+    refined = r.tables["refined"].columns
+    assert abs(ref["x"][0] - refined["x"][0]) <= 0.5 + 1e-9 and abs(ref["y"][0] - refined["y"][0]) <= 0.5 + 1e-9
     rec = d.recommendation
     assert rec.kind == "mount"
     assert rec.x == pytest.approx(ref["x"][0] / 1000) and rec.y == pytest.approx(ref["y"][0] / 1000)
     assert rec.height == pytest.approx(ref["height"][0] / 1000)
     assert math.degrees(rec.yaw) == pytest.approx(ref["yaw"][0]) and rec.style == ref["style"][0]
-    assert rec.score == pytest.approx(ref["score"][0])
+    assert rec.score == pytest.approx(ref["rank_value"][0])
     # the stated values are the table's, rounded for people
     assert dict(rec.values())["x"] == f"{round(ref['x'][0])} mm".replace("-0 ", "0 ")
     assert f"x = {fmt_mm(rec.x)} mm" in rec.answer and f"yaw {fmt_deg(rec.yaw)} deg" in rec.answer
@@ -75,10 +77,16 @@ def test_per_point_values_reproduce_the_score_and_the_measures(res, decs):
         m = 1 - np.abs(p.q - (lo + hi) / 2) / ((hi - lo) / 2)
         assert p.margin == pytest.approx(min(1.0, m.min()), abs=1e-12)
         assert p.margin_joint == arm.model.names[int(np.argmin(m))]
-    # score = f^2 * w * m^0.5 by hand from these values equals the ranking's score (one answer)
+    # rank value = served + Q / (1 + Q), Q = w * m^0.5, by hand from these values equals the
+    # ranking's (one answer)
     w = min(p.inverse_condition for p in pts)
     mm = min(p.margin for p in pts)
-    assert 1.0 ** 2 * w * mm ** 0.5 == pytest.approx(d.recommendation.score, rel=1e-9)
+    q = w * mm ** 0.5
+    if all(p.clearance is not None for p in pts):  # collisions checked: times min(1, c / 0.1 m)^0.5
+        from workbench.studies.mount_search import CLEARANCE_FULL
+
+        q *= min(1.0, min(p.clearance for p in pts) / CLEARANCE_FULL) ** 0.5
+    assert len(pts) + q / (1 + q) == pytest.approx(d.recommendation.score, rel=1e-9)
     assert not d.notes
 
 
@@ -89,10 +97,16 @@ def test_mount_verdicts(decs):
     w = min(p.inverse_condition for p in d.points)
     assert v["inverse_condition"].value == pytest.approx(w) and v["inverse_condition"].status == (
         PASS if w >= 0.02 else FAIL)
-    # collisions and torques are not in these results: said so, with the reason, never left out
-    assert v["clearance"].status == NOT_CHECKED and v["clearance"].note
+    # torques are not in these results: said so, with the reason, never left out
     if arm_shapes(d.arm.model) is None:
+        assert v["clearance"].status == NOT_CHECKED and v["clearance"].note
         assert "no collision shapes" in v["clearance"].note and "Collisions not checked" in d.collisions
+    else:
+        # the arm has shapes: the clearance at the chosen solutions (best_points 'clearance', mm)
+        # is the verdict's worst value, against the default 10 mm
+        c = min(p.clearance for p in d.points)
+        assert v["clearance"].value == pytest.approx(c) and v["clearance"].status == (PASS if c >= 0.01 else FAIL)
+        assert "Collisions checked" in d.collisions
     assert v["torque_margin"].status == NOT_CHECKED
     assert v["path_speeds"].status == NOT_CHECKED and "path audit" in v["path_speeds"].note
     assert len(d.risks) == 3

@@ -141,8 +141,8 @@ def test_ten_billion_samples_are_refused_before_allocating(tmp_path, capsys):
 
 
 def test_cell_positions_are_bounded(tmp_path, capsys):
-    text = TRAY.read_text().replace("xyz = [0.55, 0.75, 0.35]", "xyz = [1000000.0, 0.75, 0.35]")
-    with pytest.raises(CellFileError, match=r"\[\[point\]\] 1 'xyz' \(line 12\): value 1e\+06 m is beyond the "
+    text = TRAY.read_text().replace("xyz = [0.55, 0.72, 0.35]", "xyz = [1000000.0, 0.75, 0.35]")
+    with pytest.raises(CellFileError, match=r"\[\[point\]\] 1 'xyz' \(line 13\): value 1e\+06 m is beyond the "
                                             r"limit of 1000 m"):
         parse_cell_text(text, "c.toml")
     mm = "[cell]\nname = 'c'\nlength_unit = 'mm'\n[[point]]\nname = 'p'\nxyz = [2000000, 0, 0]\n"

@@ -178,7 +178,8 @@ class Recommendation:
         Where the values come from ("refined mount 1 of 3 of the mount search", "the cell's
         [placement]" ...).
     score : float or None
-        The mount score of the ranking (mount search).
+        The rank value of the recommended mount (mount search: points served + Q / (1 + Q), Q the
+        quality; see :mod:`workbench.studies.mount_search`).
     pose : (n,) ndarray or None
         A representative pose to draw (rad / m), described by ``pose_label``.
     pose_label : str
@@ -204,7 +205,7 @@ class Recommendation:
         out = [("x", f"{fmt_mm(self.x)} mm"), ("y", f"{fmt_mm(self.y)} mm"), ("height", f"{fmt_mm(self.height)} mm"),
                ("yaw", f"{fmt_deg(self.yaw)} deg"), ("style", self.style)]
         if self.score is not None:
-            out.append(("score", fmt_number(self.score)))
+            out.append(("rank value", fmt_number(self.score, 6)))
         return out
 
 
@@ -516,6 +517,18 @@ def _not_checked(key, requirement, reason, threshold="-"):
     return Verdict(key, requirement, threshold, "-", "-", NOT_CHECKED, reason)
 
 
+def _map_clearance(r):
+    """(values, where) of a map's ``clearance`` field over its reached cells (status bit 1 of the
+    ``status`` or ``reached`` field), or (None, []) when the results hold none."""
+    if "clearance" not in r.arrays:
+        return None, []
+    c = np.asarray(r.arrays["clearance"], float).reshape(-1)
+    st = r.arrays.get("status", r.arrays.get("reached"))
+    if st is not None:
+        c = np.where((np.asarray(st).reshape(-1).astype(np.int64) & 1) > 0, c, np.nan)
+    return c, []
+
+
 def _clearance_verdict(ctx, values, where, checked, asked, sentence):
     """Clearance >= the asked clearance, or not checked with the reason."""
     if values is None or not checked:
@@ -573,8 +586,21 @@ def _mount_decision(ctx: _Ctx) -> Decision:
     notes = []
     ref = ctx.table("refined")
     rank = ctx.table("ranking")
+    recd = ctx.table("recommended")
     src = None
-    if ref is not None:
+    if recd is not None and recd.rows:
+        c, row = recd.columns, 0
+        if str(_s(c["source"][0])) == "refined":
+            src = ("the mount search's recommended mount (table 'Recommended mount'): the best refined mount, "
+                   "rounded to 1 mm and 0.1 deg and scored there; refined off the grid from the grid cell "
+                   f"x = {fmt_number(float(c['grid_x'][0]), 6)} mm, y = {fmt_number(float(c['grid_y'][0]), 6)} mm, "
+                   f"yaw {fmt_number(float(c['grid_yaw'][0]), 4)} deg (rank value "
+                   f"{fmt_number(float(c['grid_rank_value'][0]), 6)}"
+                   + (", the map's best cell)" if int(c["map_best"][0]) else ", not the map's best cell: its "
+                      "refinement ended higher than the best cell's)"))
+        else:
+            src = "the mount search's recommended mount (table 'Recommended mount'): the best grid cell"
+    elif ref is not None:
         c, row, src = ref.columns, 0, f"refined mount 1 of {ref.rows} of the mount search (table 'Refined mounts')"
     elif rank is not None:
         c, row, src = rank.columns, 0, "rank 1 of the mount search's grid ranking"
@@ -591,7 +617,7 @@ def _mount_decision(ctx: _Ctx) -> Decision:
     style = str(_s(c["style"][row]))
     styles = list(plan.data["styles"])
     tilt = float(plan.data["tilts"][styles.index(style)]) if style in styles else 0.0
-    score = float(c["score"][row])
+    score = float(c["rank_value"][row]) if "rank_value" in c else float(c["score"][row])
     M = mount_transforms(x, y, h, yaw, tilt)
     arm = _mounted(arm0, M)
     ctx.progress(0.1, "per work point values at the recommended mount")
@@ -618,14 +644,23 @@ def _mount_decision(ctx: _Ctx) -> Decision:
     clearance = _point_column(bp, "clearance", P, 1e-3)
     torque = _point_column(bp, "torque_margin", P, 1.0)
     names = [p.name for p in points]
-    # the score from these values must be the ranking's score (one answer everywhere)
+    # the rank value from these values must be the ranking's (one answer everywhere)
     if reached.any():
         sm = getattr(s, "measure", "inverse_condition")
         w = np.nanmin(np.where(reached, meas.get(sm, meas["inverse_condition"]), np.nan))
-        f = reached.mean()
-        check = f ** s.reach_power * max(w, 0) ** s.measure_power * max(np.nanmin(margin), 0) ** s.margin_power
+        if "rank_value" in c:
+            from .studies.mount_search import score_candidates
+
+            tq = None if torque is None else torque[None]
+            cl = None if clearance is None else clearance[None]
+            sc = score_candidates(reached[None], np.where(reached, meas.get(sm, meas["inverse_condition"]), 0)[None],
+                                  np.where(reached, margin, 0)[None], s, torque=tq, clearance=cl)
+            check = float(sc["rank_value"][0])
+        else:  # older files: the score f^p * w^a * m^b
+            check = (reached.mean() ** getattr(s, "reach_power", 2.0) * max(w, 0) ** s.measure_power
+                     * max(np.nanmin(margin), 0) ** s.margin_power)
         if abs(check - score) > 1e-6 * max(abs(score), 1e-12) + 1e-9:
-            notes.append(f"The per-point values give a score of {fmt_number(check, 4)}, the ranking "
+            notes.append(f"The per-point values give a rank value of {fmt_number(check, 4)}, the ranking "
                          f"{fmt_number(score, 4)}: this results file was written by an older version whose per-point "
                          f"table used other IK solutions.")
 
@@ -647,7 +682,11 @@ def _mount_decision(ctx: _Ctx) -> Decision:
     if sens is not None:
         kinds = [str(_s(k)) for k in sens.columns["offset_kind"]]
         off = np.asarray(sens.columns["offset"], float)
-        drop = np.asarray(sens.columns["score_drop"], float) / max(score, 1e-300)
+        nominal = float(np.asarray(sens.columns["nominal_score"], float)[0]) if "nominal_score" in sens.columns else score
+        drop = np.asarray(sens.columns["score_drop"], float) / max(nominal, 1e-300)
+        lost = (np.asarray(sens.columns["points_lost"], float) if "points_lost" in sens.columns
+                else np.zeros(len(drop)))
+        drop = np.where(lost > 0, np.inf, drop)
         k = int(np.argmax(drop))
         unit = "mm" if kinds[k] == "position" else "deg"
         parts = []
@@ -656,13 +695,16 @@ def _mount_decision(ctx: _Ctx) -> Decision:
             if o:
                 parts.append(f"±{fmt_number(o[0])}" + (f"-{fmt_number(o[-1])}" if len(o) > 1 else "") + f" {unit_}")
         big = ", ".join(parts)
-        verdicts.append(Verdict("placement_error", f"Score kept when the base is placed off ({big})",
-                                f"≤ {fmt_percent(SENSITIVITY_DROP, 0)} lost", f"{fmt_percent(max(drop[k], 0))} lost",
+        worst_txt = (f"{int(lost[k])} work point{'s' if lost[k] > 1 else ''} lost" if lost[k] > 0
+                     else f"{fmt_percent(max(drop[k], 0))} lost")
+        verdicts.append(Verdict("placement_error", f"Quality kept when the base is placed off ({big})",
+                                f"≤ {fmt_percent(SENSITIVITY_DROP, 0)} lost, no point lost", worst_txt,
                                 f"{fmt_number(off[k])} {unit} off" + (" (turned)" if kinds[k] == "yaw" else ""),
-                                PASS if drop[k] <= SENSITIVITY_DROP else FAIL, "", float(max(drop[k], 0)),
+                                PASS if drop[k] <= SENSITIVITY_DROP else FAIL, "",
+                                float(max(drop[k], 0)) if np.isfinite(drop[k]) else float("inf"),
                                 SENSITIVITY_DROP, "", "lower"))
     else:
-        verdicts.append(_not_checked("placement_error", "Score kept when the base is placed off",
+        verdicts.append(_not_checked("placement_error", "Quality kept when the base is placed off",
                                      "the sensitivity check was switched off (sensitivity = false)"))
     verdicts.append(_not_checked("path_speeds", "Joint speeds and singular spans along the paths",
                                  "a mount search checks work points, not motion: run a path audit from this mount"
@@ -687,7 +729,9 @@ def _mount_decision(ctx: _Ctx) -> Decision:
     served = int(reached.sum())
     fails = [v for v in verdicts if v.status == FAIL]
     answer = (f"Mount the base on the {style} at x = {fmt_mm(x)} mm, y = {fmt_mm(y)} mm, height {fmt_mm(h)} mm, "
-              f"yaw {fmt_deg(yaw)} deg (cell frame). From there it serves {served} of {P} work points; "
+              f"yaw {fmt_deg(yaw)} deg (cell frame). From there it serves {served} of {P} work points"
+              + (f" (rank value {fmt_number(score, 6)}: points served first, then quality)" if "rank_value" in c else "")
+              + "; "
               + (f"{len(fails)} requirement{'s' if len(fails) > 1 else ''} fail{'s' if len(fails) == 1 else ''} "
                  f"({', '.join(v.requirement.split(' (')[0].lower() for v in fails)})." if fails else
                  "every checked requirement passes."))
@@ -807,9 +851,14 @@ def _mount_risks(ctx, arm, points, q, reached, meas, margin, mj, thr, s, length,
         risks.append(Risk("limit_margin", names[k], what, change, LIMIT_MARGIN / max(margin[k], 1e-300), q[k],
                           np.asarray(points[k].position, float)))
     pv = next((v for v in verdicts if v.key == "placement_error"), None)
-    if pv is not None and pv.value is not None:
+    if pv is not None and pv.value is not None and not math.isfinite(pv.value):
         risks.append(Risk("placement_error", "the base placement",
-                          f"placing the base {pv.where} costs {fmt_percent(pv.value)} of the score",
+                          f"placing the base {pv.where} loses a work point ({pv.worst})",
+                          "place the base precisely, or choose a mount farther from the edge of the served region",
+                          10.0))
+    elif pv is not None and pv.value is not None:
+        risks.append(Risk("placement_error", "the base placement",
+                          f"placing the base {pv.where} costs {fmt_percent(pv.value)} of the quality score",
                           "place the base within that tolerance" if pv.value > 0.02 else
                           "the placement tolerance of ordinary fixings is enough", pv.value / SENSITIVITY_DROP))
     return risks
@@ -1104,7 +1153,7 @@ def _load_decision(ctx: _Ctx) -> Decision:
         verdicts.append(Verdict("own_load", "The arm holds its own weight (gravity torque / limit)", "≤ 1",
                                 fmt_number(omax), where_of(ko), PASS if omax <= 1 else FAIL, "", omax, 1.0, "",
                                 "lower"))
-    verdicts.append(_clearance_verdict(ctx, None, [], checked, asked, coll))
+    verdicts.append(_clearance_verdict(ctx, *_map_clearance(r), checked, asked, coll))
 
     risks = []
     if k is not None:
@@ -1235,7 +1284,7 @@ def _generic_decision(ctx: _Ctx) -> Decision:
         verdicts.append(Verdict("reached", "Slice points reached (information)", "-",
                                 f"{int(rr.sum())} of {rr.size} ({fmt_percent(rr.mean(), 0)})", "-", NOT_CHECKED,
                                 "the slice is a survey, not a requirement", float(rr.sum()), None))
-    verdicts.append(_clearance_verdict(ctx, None, [], checked, asked, coll))
+    verdicts.append(_clearance_verdict(ctx, *_map_clearance(r), checked, asked, coll))
     top, rest = _rank_risks(risks)
     answer = (f"The base stands as in the arm file (x = {fmt_mm(x)} mm, y = {fmt_mm(y)} mm, height {fmt_mm(h)} mm, "
               f"yaw {fmt_deg(yaw)} deg). ")

@@ -27,6 +27,7 @@ under the final name. A cancelled run is closed normally and says ``incomplete =
 from __future__ import annotations
 
 import json
+import math
 import sys
 import os
 import tempfile
@@ -966,6 +967,59 @@ def _cell_columns(results, max_rows):
     return cols, units
 
 
+def recommended_mount(results: Results) -> dict | None:
+    """The mount search's recommended mount as stored (table ``recommended``), or None.
+
+    Returns
+    -------
+    dict with ``x``, ``y``, ``height`` (m), ``yaw``, ``tilt`` (rad) in the cell frame, ``style``,
+    ``rank_value``, ``score`` (quality), ``served``, ``points``, ``source`` ("refined" or "grid"),
+    ``grid_x``, ``grid_y`` (m), ``grid_yaw`` (rad), ``grid_rank_value``, ``map_best`` (bool: the grid
+    cell it comes from is the map's best).
+    """
+    t = results.tables.get("recommended")
+    if t is None or not t.rows:
+        return None
+
+    def val(k, scale=1.0):
+        v = t.columns[k][0]
+        if isinstance(v, bytes):
+            return v.decode()
+        if isinstance(v, str):
+            return v
+        return float(v) * scale
+
+    out = {k: val(k, 1e-3) for k in ("x", "y", "height", "grid_x", "grid_y") if k in t.columns}
+    out.update({k: val(k, math.pi / 180) for k in ("yaw", "tilt", "grid_yaw") if k in t.columns})
+    out.update({k: val(k) for k in ("style", "rank_value", "score", "served", "points", "source", "grid_rank_value")
+                if k in t.columns})
+    out["map_best"] = bool(val("map_best")) if "map_best" in t.columns else True
+    return out
+
+
+def _mark_recommended(ax, results, ax_x) -> None:
+    """Star and label the recommended mount on a floor map (x, y axes), and the grid cell it was
+    refined from when that differs."""
+    rec = recommended_mount(results)
+    if rec is None:
+        return
+    from .studies.base import display_factor
+
+    k = display_factor(ax_x.unit, ax_x.display_unit)
+    unit = ax_x.display_unit or "m"
+    u = 1000.0 if unit == "m" else 1.0  # label in mm
+    ax.plot([rec["x"] * k], [rec["y"] * k], marker="*", ms=16, mec="k", mfc="white", ls="none", zorder=9,
+            label=f"recommended mount ({rec['x'] * k * u:.0f}, {rec['y'] * k * u:.0f} mm)")
+    if rec.get("source") == "refined" and "grid_x" in rec:
+        ax.plot([rec["grid_x"] * k], [rec["grid_y"] * k], marker="s", ms=9, mec="k", mfc="none", mew=1.5, ls="none",
+                zorder=8, label="grid cell it was refined from" + ("" if rec["map_best"] else " (not the map's best)"))
+    rk = results.tables.get("ranking")
+    if rk is not None and rk.rows and not rec["map_best"]:
+        ax.plot([float(rk.columns["x"][0]) / 1000 * k], [float(rk.columns["y"][0]) / 1000 * k], marker="D", ms=8,
+                mec="k", mfc="none", mew=1.5, ls="none", zorder=8, label="map's best cell (grid rank 1)")
+    ax.legend(loc="upper right", fontsize=8, framealpha=0.85)
+
+
 def export_png(results: Results, path, measure: str | None = None, dpi: int = 120) -> str:
     """Draw a map of ``measure`` as a PNG with a colour bar and axes in degrees or metres.
 
@@ -1048,11 +1102,24 @@ def export_png(results: Results, path, measure: str | None = None, dpi: int = 12
             x, y = a0.display_values(), a1.display_values()
             dy, dx = (y[-1] - y[0]) / (y.size - 1), (x[-1] - x[0]) / (x.size - 1)  # cell centres on the values
             ext = [y[0] - dy / 2, y[-1] + dy / 2, x[0] - dx / 2, x[-1] + dx / 2]
-            im = ax.imshow(v, origin="lower", aspect="auto", extent=ext, cmap="viridis", vmax=vmax,
+            cmap, vmin, extend, cblabel = "viridis", None, "neither", measure
+            fin = np.isfinite(v)
+            if measure == "rank_value" and fin.any():
+                # the colours span the candidates serving the most work points; fewer: grey
+                import matplotlib
+
+                top = math.floor(float(np.nanmax(v)))
+                if (v[fin] < top).any() and float(np.nanmax(v)) > top:
+                    cmap = matplotlib.colormaps["viridis"].with_extremes(under="#d9d9d9")
+                    vmin, extend = float(top), "min"
+                    cblabel = f"rank_value = {top} + Q / (1 + Q) (grey: fewer than {top} work points served)"
+            im = ax.imshow(v, origin="lower", aspect="auto", extent=ext, cmap=cmap, vmin=vmin, vmax=vmax,
                            interpolation="nearest")
             ax.set_xlabel(lab(a1))
             ax.set_ylabel(lab(a0))
-            fig.colorbar(im, ax=ax, label=measure)
+            fig.colorbar(im, ax=ax, label=cblabel, extend=extend)
+            if (a0.name, a1.name) == ("y", "x"):
+                _mark_recommended(ax, results, a1)
     ax.set_title(title, fontsize=10)
     fig.tight_layout()
     try:

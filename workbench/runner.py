@@ -435,6 +435,7 @@ def run_study(study, out=None, executor="inprocess", workers=None, scheduler=Non
 
         attrs = {"executor": executor, "workers": n_workers if executor != "inprocess" else 1,
                  "estimate_s": float(est.seconds), **length_attrs(plan, arm)}
+        attrs.update((plan.data or {}).get("result_attrs", {}) if isinstance(plan.data, dict) else {})
         writer = (ResultsWriter(out, plan, prep.texts, attrs, compression=compression) if out is not None
                   else MemoryWriter(plan, prep.texts, attrs))
         done_cells = 0

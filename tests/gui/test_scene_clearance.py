@@ -157,3 +157,33 @@ def test_window_turns_the_near_link_red_and_names_the_pair(window, files):
     assert np.nanmin(bx) == pytest.approx(0.844)
     px, py = window.scene._items[0]["pillars"].getData()
     assert np.nanmax(np.hypot(px, py - 1.2)) == pytest.approx(0.1)
+
+
+@pytest.mark.skipif(not __import__("shutil").which("xvfb-run"), reason="needs xvfb-run for a real OpenGL context")
+def test_the_3d_scene_draws_shapes_keep_out_and_the_red_link(tmp_path):
+    """The 3D scene under a virtual display (offscreen Qt has no OpenGL): its own keep-out item
+    type, drawn amber on screen; link 2 (within 4 mm of the box) red, link 1 in the shape colour."""
+    import json
+    import os
+    import subprocess
+    import sys
+
+    from workbench.gui.scene import CLOSE_COLOUR, SHAPE_COLOUR
+
+    env = {k: v for k, v in os.environ.items() if k != "QT_QPA_PLATFORM"}
+    probe = os.path.join(os.path.dirname(__file__), "scene3d_probe.py")
+    r = subprocess.run(["xvfb-run", "-a", "-s", "-screen 0 1280x1024x24", sys.executable, probe, str(tmp_path)],
+                       capture_output=True, text=True, env=env, timeout=300)
+    line = [ln for ln in r.stdout.splitlines() if ln.startswith("{")]
+    assert line, r.stderr[-2000:]
+    out = json.loads(line[-1])
+    if not out["is_3d"]:
+        pytest.skip(f"no OpenGL under the virtual display: {out['note']}")
+    assert out["keepout_type"] == "KeepOut3D" and out["boxes_type"] != "KeepOut3D"
+    assert out["keepout_points"] > 24                       # edges and stripes
+    assert out["amber_pixels"] > 50                         # and they are on screen
+    cols = out["shape_colours"]
+    assert np.allclose(cols["2"][:3], np.array(CLOSE_COLOUR) / 255)
+    assert np.allclose(cols["1"][:3], np.array(SHAPE_COLOUR) / 255)
+    assert out["recommended"] == [0.5, 0.5, 0.0]
+    assert out["obstacles"] == 2                            # the box and the pillar as solids

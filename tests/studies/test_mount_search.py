@@ -100,14 +100,16 @@ def test_base_placed_by_inversion_reaches_the_goal():
 def test_score_formula_is_stated_and_zero_when_nothing_is_reached():
     s = MountSettings()
     text = score_formula(s)
-    assert "f^2" in text and "w^1" in text and "m^0.5" in text
+    assert "rank value = k + Q / (1 + Q)" in text and "w^1" in text and "m^0.5" in text
     reached = np.array([[True, True], [True, False], [False, False]])
     meas = np.array([[0.5, 0.2], [0.4, 0.0], [0.0, 0.0]])
     marg = np.array([[0.81, 0.25], [0.36, 0.0], [0.0, 0.0]])
     sc = score_candidates(reached, meas, marg, s)
-    # worked by hand: 1^2 * 0.2 * sqrt(0.25) = 0.1; 0.5^2 * 0.4 * sqrt(0.36) = 0.06; nothing reached: 0
-    np.testing.assert_allclose(sc["score"], [0.1, 0.06, 0.0])
+    # worked by hand: quality 0.2 * sqrt(0.25) = 0.1; 0.4 * sqrt(0.36) = 0.24 over the one served
+    # point; nothing served: 0. Rank value = served + Q / (1 + Q)
+    np.testing.assert_allclose(sc["score"], [0.1, 0.24, 0.0])
     np.testing.assert_allclose(sc["reached_fraction"], [1.0, 0.5, 0.0])
+    np.testing.assert_allclose(sc["rank_value"], [2 + 0.1 / 1.1, 1 + 0.24 / 1.24, 0.0])
 
 
 CELL_FAR = """

@@ -1,6 +1,7 @@
 """The arm panel: summary, one slider + spin box per joint (degrees, mm for prismatic joints), the
 measures at the current pose, the plain-words note near a singularity, the TCP pose, the clearance
-check of the pose (the nearest pair named, "link 3 within 4 mm of box 'conveyor'"), and the
+check of the pose (the nearest pair named, "link 3 within 4 mm of box 'conveyor'"), the holding
+torques per joint (:mod:`workbench.gui.torque_view`), and the
 settings that choose what is measured (task rows, frame, characteristic length, threshold,
 clearance)."""
 from __future__ import annotations
@@ -12,6 +13,7 @@ from ..arm.transforms import matrix_to_rpy
 from ..errors import WorkbenchError
 from .cellview import DEFAULT_CLEARANCE, PoseClearance, pose_clearance
 from .posestate import ROW_CHOICES, PoseState
+from .torque_view import TorqueChart
 
 __all__ = ["ArmPanel", "to_display", "from_display"]
 
@@ -157,6 +159,12 @@ class ArmPanel(QtWidgets.QWidget):
         self.note.setStyleSheet("color: #b01010; font-weight: bold")
         mform.addRow(self.note)
         outer.addWidget(mbox)
+        tbox = QtWidgets.QGroupBox("Holding torques at this pose")
+        tl = QtWidgets.QVBoxLayout(tbox)
+        tl.setContentsMargins(4, 4, 4, 4)
+        self.torques = TorqueChart()
+        tl.addWidget(self.torques)
+        outer.addWidget(tbox)
         outer.addStretch(1)
         self.error_reporter = None   # set by the main window: fn(message)
         self.cell_source = lambda: None
@@ -239,6 +247,8 @@ class ArmPanel(QtWidgets.QWidget):
         self.note.setText(info.note)
         self.m_labels["inverse_condition"].setStyleSheet("color: #b01010" if info.near_singular else "")
         self._check_clearance(info.q)
+        self.torques.set_cell(self.cell_source())
+        self.torques.set_pose(self.state.arm, info.q)
 
     @property
     def clearance_setting(self) -> float:

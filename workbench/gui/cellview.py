@@ -156,14 +156,17 @@ def box_edges(corners) -> np.ndarray:
                        if (i ^ j) in (1, 2, 4) for t in (0, 1)])
 
 
-def stripe_segments(corners, spacing=0.05) -> np.ndarray:
+def stripe_segments(corners, spacing=None) -> np.ndarray:
     """Warning stripes on the four side faces of a box given by its 8 corners: segments at 45
-    degrees every ``spacing`` m along each face, plus the edges -> (2k, 3) segment end points.
+    degrees every ``spacing`` m along each face (default: a tenth of the box's largest edge, at
+    least 0.1 m), plus the edges -> (2k, 3) segment end points.
 
     A keep-out zone is drawn this way (hatched) so it never reads as solid equipment."""
     c = np.asarray(corners, float)
     o = c[0]
     ex, ey, ez = c[4] - o, c[2] - o, c[1] - o       # index bits: x = 4, y = 2, z = 1
+    if spacing is None:
+        spacing = max(0.1, max(float(np.linalg.norm(e)) for e in (ex, ey, ez)) / 10)
     segs = [box_edges(c)]
     for origin, u in ((o, ex), (o + ey, ex), (o, ey), (o + ex, ey)):
         w, h = float(np.linalg.norm(u)), float(np.linalg.norm(ez))

@@ -9,12 +9,13 @@ import tomllib
 
 from ..errors import WorkbenchError
 
-__all__ = ["parse_value", "format_value", "unit_hint", "check_fields"]
+__all__ = ["parse_value", "format_value", "unit_hint", "check_fields", "fmt_number", "takes_pose", "pose_to_file",
+           "POSE_SOURCES"]
 
 # what the screen says next to a setting (file units; the kinds read degrees and metres)
 UNIT_HINTS = {
-    "ranges": "deg (m: sliding)",
-    "pose": "deg (m: sliding)",
+    "ranges": "deg / m",       # degrees for turning joints, metres for sliding ones
+    "pose": "deg / m",
     "steps": "points",
     "coarse_steps": "points",
     "length": "m",
@@ -222,3 +223,54 @@ def choices(kind_name: str, key: str, arm=None, value=None):
     if isinstance(value, str) and value not in vals:
         vals = vals + (value,)
     return tuple(vals), editable
+
+
+# ---- numbers for people --------------------------------------------------------------------
+def fmt_number(v, digits=4, scale=None) -> str:
+    """A number as people read it: ``digits`` significant figures, thousands separated, no
+    exponent between 0.001 and 10^7, no "-0", and values below 1e-9 of ``scale`` (e.g. the
+    largest magnitude of their column) shown as 0 (rounding noise such as 5.6e-14).
+
+    >>> fmt_number(12345.678), fmt_number(-0.0), fmt_number(5.551e-14, scale=1.0), fmt_number(0.05)
+    ('12,350', '0', '0', '0.05')
+    """
+    try:
+        x = float(v)
+    except (TypeError, ValueError):
+        return str(v)
+    if math.isnan(x):
+        return ""
+    if math.isinf(x):
+        return "∞" if x > 0 else "-∞"
+    if scale is not None and math.isfinite(scale) and abs(x) < 1e-9 * abs(scale):
+        x = 0.0
+    r = float(f"{x:.{digits}g}")
+    if r == 0.0:
+        return "0"
+    a = abs(r)
+    if a < 1e-3 or a >= 1e7:
+        m, e = f"{r:.{digits - 1}e}".split("e")
+        m = m.rstrip("0").rstrip(".")
+        return f"{m}e{int(e)}"
+    dec = max(0, digits - 1 - int(math.floor(math.log10(a))))
+    s = f"{r:,.{dec}f}"
+    if "." in s:
+        s = s.rstrip("0").rstrip(".")
+    return s
+
+
+# ---- the pose of the joints a study does not sweep -------------------------------------------
+#: study kinds whose ``pose`` setting fixes the joints they do not sweep
+POSE_KINDS = ("joint_sweep", "load_map")
+POSE_SOURCES = ("home pose", "current sliders", "explicit")
+
+
+def takes_pose(kind_name: str) -> bool:
+    return kind_name in POSE_KINDS
+
+
+def pose_to_file(arm, q) -> list:
+    """Joint values (n,) in rad / m -> a study file's ``pose`` (degrees / metres, rounded)."""
+    import numpy as np
+
+    return [round(float(np.degrees(v)) if arm.kinds[k] == 0 else float(v), 6) for k, v in enumerate(q)]

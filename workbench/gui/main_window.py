@@ -15,6 +15,7 @@ from .. import __version__
 from ..errors import WorkbenchError
 from .arm_panel import ArmPanel
 from .cellview import CellContent, cell_content
+from .formlogic import fmt_number
 from .files import DEMO_ARM, FILE_FILTER, classify, find_demo_cell
 from .posestate import PoseState
 from .result_views import LIVE_MAX_CELLS, HistogramView, MapView, PoseListView
@@ -55,19 +56,39 @@ def tables_html(tables, max_rows=15) -> str:
         cols = list(t.columns)
         head = "".join(f"<th>{html.escape(c)}{' (' + t.units[c] + ')' if t.units.get(c) else ''}</th>" for c in cols)
         rows = []
+        scale = {}
+        for c in cols:
+            col = t.columns[c]
+            if len(col) and isinstance(col[0], (float, np.floating)):
+                f = np.abs(np.asarray(col, float))
+                f = f[np.isfinite(f)]
+                scale[c] = float(f.max()) if f.size else None
         for r in range(min(t.rows, max_rows)):
             cells = []
             for c in cols:
                 v = t.columns[c][r]
                 if isinstance(v, (float, np.floating)):
-                    v = f"{float(v):.4g}"
+                    v = fmt_number(v, scale=scale.get(c))
                 cells.append(f"<td>{html.escape(str(v))}</td>")
             rows.append("<tr>" + "".join(cells) + "</tr>")
-        more = f"<p style='color:#555'>{t.rows - max_rows} more rows in the results file.</p>" if t.rows > max_rows else ""
+        more = f"<p style='color:#555'>{t.rows - max_rows:,} more rows in the results file.</p>" if t.rows > max_rows else ""
         desc = f"<p style='color:#555'>{html.escape(t.description)}</p>" if t.description else ""
         parts.append(f"<h3>{html.escape(t.title or name)}</h3>{desc}<table border='1' cellspacing='0' "
                      f"cellpadding='3'><tr>{head}</tr>{''.join(rows)}</table>{more}")
     return "".join(parts)
+
+
+def scene_legend_entries():
+    """What the scene draws, one legend entry each (colours from the scene module)."""
+    from . import scene as sc
+
+    arm = getattr(sc, "ARM_COLOUR", (60, 110, 200))
+    near = getattr(sc, "NEAR_COLOUR", (210, 40, 40))
+    ghost = getattr(sc, "GHOST_COLOUR", (230, 120, 30))
+    return [(arm, "line", "arm"), (near, "line", "arm near a singularity"),
+            ((153, 64, 178, 110), "fill", "velocity ellipsoid"), (ghost, "line", "brushed poses"),
+            ((40, 150, 60), "dot", "work points and paths"), ((80, 80, 80, 60), "fill", "equipment"),
+            ([(68, 1, 84), (33, 145, 140), (253, 231, 37)], "ramp", "mount candidates (colour: score)")]
 
 
 def _load_arm(path):
@@ -148,6 +169,10 @@ class MainWindow(QtWidgets.QMainWindow):
 
         apply_plot_style()
         self.scene, gl_note = make_scene(self)
+        # aspect-locked 2D views with self-sizing axes can resize each other without end at some
+        # window sizes (tick labels change the axis width, which changes the range...): fixed widths
+        for pw in getattr(self.scene, "plots", ()):
+            pw.getAxis("left").setWidth(40)
         self.map_view = MapView(self.selection)
         self.hist_view = HistogramView(self.selection)
         self.pose_list = PoseListView(self.selection)
@@ -161,23 +186,28 @@ class MainWindow(QtWidgets.QMainWindow):
         self.summary_view = QtWidgets.QTextBrowser()
         self.summary_view.setHtml(tables_html({}))
         self.result_tabs.addTab(self.summary_view, "Summary")
+        from .verdict_view import VerdictView      # requirement verdicts (gui/verdict_view.py)
+
+        self.verdict_view = VerdictView()
+        self.result_tabs.addTab(self.verdict_view, "Verdicts")
+        self.verdict_view.recommendation_changed.connect(lambda xyz, label: self.scene.set_recommended(xyz, label))
         scene_box = QtWidgets.QWidget()
         sl = QtWidgets.QVBoxLayout(scene_box)
         sl.setContentsMargins(0, 0, 0, 0)
-        vb = QtWidgets.QHBoxLayout()
+        from .style import FlowLayout
+
+        vb = FlowLayout(spacing=4)
         vb.addWidget(QtWidgets.QLabel("View:"))
         for name in ("iso", "top", "front", "side"):
             b = QtWidgets.QPushButton(name)
             b.clicked.connect(lambda _=False, n=name: self.scene.set_view(n))
             vb.addWidget(b)
-        self.scene_caption = QtWidgets.QLabel("blue: arm (red near a singularity) · purple: velocity "
-                                              "ellipsoid · orange: brushed poses · green: work points, paths "
-                                              "· grey: equipment · dots: mount candidates (colour = score)")
-        self.scene_caption.setStyleSheet("color: #444")
-        self.scene_caption.setWordWrap(True)
-        self.scene_caption.setMinimumWidth(100)
-        vb.addWidget(self.scene_caption, 1)
         sl.addLayout(vb)
+        from .style import Legend
+
+        self.scene_legend = Legend(scene_legend_entries())
+        self.scene_legend.setObjectName("scene_legend")
+        sl.addWidget(self.scene_legend)
         sl.addWidget(self.scene, 1)
         self.central = QtWidgets.QSplitter(QtCore.Qt.Vertical)
         self.central.setObjectName("central_splitter")
@@ -191,6 +221,7 @@ class MainWindow(QtWidgets.QMainWindow):
         self.arm_panel.cell_source = lambda: self.cell          # clearance of the pose (gui/cellview.py)
         self.arm_panel.pose_checked.connect(self.scene.set_bodies)
         self.study_panel = StudyPanel()
+        self.study_panel.pose_provider = lambda: self.state.q       # "current sliders"
         self.study_panel.set_estimator(self._estimate_text)
         for title, w, area, name in (("Arm", self.arm_panel, QtCore.Qt.LeftDockWidgetArea, "arm_dock"),
                                      ("Study", self.study_panel, QtCore.Qt.RightDockWidgetArea, "study_dock")):
@@ -200,7 +231,7 @@ class MainWindow(QtWidgets.QMainWindow):
             scroll.setWidgetResizable(True)
             scroll.setWidget(w)
             dock.setWidget(scroll)
-            dock.setMinimumWidth(300)
+            dock.setMinimumWidth(250)
             self.addDockWidget(area, dock)
             setattr(self, name, dock)
         self.resizeDocks([self.arm_dock, self.study_dock], [330, 350], QtCore.Qt.Horizontal)
@@ -235,6 +266,7 @@ class MainWindow(QtWidgets.QMainWindow):
         self.study_panel.cancel_requested.connect(self.cancel_run)
         self.study_panel.save_requested.connect(self.save_study_dialog)
         self.study_panel.load_requested.connect(lambda: self.open_dialog("Load a study file"))
+        self.study_panel.spec_changed.connect(self._sync_actions)
         self._refresh_timer = QtCore.QTimer(self)
         self._refresh_timer.setSingleShot(True)
         self._refresh_timer.setInterval(REDRAW_MS)
@@ -265,35 +297,153 @@ class MainWindow(QtWidgets.QMainWindow):
         if gl_note:
             self.status.showMessage(gl_note, 15000)
         self.gl_note = gl_note
+        if self.result is None:             # first start: say what to do, not empty axes
+            self.map_view.show_hint(True)
+            self.hist_view.show_hint(True)
+        self._sync_actions()
 
     # ---- menus ---------------------------------------------------------------------------
+    def _icon(self, theme, standard):
+        """A theme icon where the desktop has one, else the style's standard pixmap."""
+        return QtGui.QIcon.fromTheme(theme, self.style().standardIcon(standard))
+
     def _build_menus(self):
+        """Menus, the toolbar and the shortcuts (Open Ctrl+O, Run Ctrl+R / F5, Cancel Esc, Report
+        Ctrl+P, Save study Ctrl+S, Quit Ctrl+Q)."""
+        SP = QtWidgets.QStyle
+        K = QtGui.QKeySequence
+
+        def act(text, slot, theme=None, std=None, keys=(), tip=""):
+            a = QtGui.QAction(text, self)
+            if theme or std is not None:
+                a.setIcon(self._icon(theme or "", std))
+            if keys:
+                a.setShortcuts([K(k) for k in keys])
+            shown = " / ".join(K(k).toString(K.NativeText) for k in keys)
+            a.setToolTip(f"{tip or text.replace('&', '').rstrip('…')}" + (f" ({shown})" if shown else ""))
+            a.setStatusTip(tip)
+            a.triggered.connect(lambda _=False: slot())
+            a.setShortcutContext(QtCore.Qt.WindowShortcut)
+            self.addAction(a)
+            return a
+
+        self.act_open = act("&Open…", self.open_dialog, "document-open", SP.SP_DialogOpenButton, ("Ctrl+O",),
+                            "Open an arm, URDF, cell, study or results file")
+        self.act_save_study = act("&Save study…", self.save_study_dialog, "document-save",
+                                  SP.SP_DialogSaveButton, ("Ctrl+S",), "Save the study settings to a file")
+        self.act_run = act("&Run", self._run_action, "media-playback-start", SP.SP_MediaPlay, ("Ctrl+R", "F5"),
+                           "Run the study of the Study panel")
+        self.act_cancel = act("&Cancel run", self.cancel_run, "process-stop", SP.SP_MediaStop, ("Esc",),
+                              "Stop the run; the finished chunks are kept")
+        self.act_clear_brush = act("Clear &brush", self.clear_brush, "edit-clear", SP.SP_DialogResetButton, (),
+                                   "Clear the brush in every view (Esc when no study runs)")
+        self.act_report = act("Layout &report…", self.export_report_dialog, "document-print",
+                              SP.SP_FileDialogDetailedView, ("Ctrl+P",), "Write the layout report (PDF or HTML)")
+        self.act_export_map = act("Export &map…", self.export_map_dialog, "image-x-generic",
+                                  SP.SP_DesktopIcon, ("Ctrl+E",), "Export the map as PNG or SVG")
+        self.act_quit = act("&Quit", self.close, "application-exit", SP.SP_DialogCloseButton, ("Ctrl+Q",),
+                            "Quit (asks first while a study runs)")
+        self.act_cancel.setEnabled(False)
+
         mb = self.menuBar()
         f = mb.addMenu("&File")
-        a = f.addAction("&Open…", lambda: self.open_dialog())
-        a.setShortcut(QtGui.QKeySequence.Open)
+        f.addAction(self.act_open)
         self.recent_menu = f.addMenu("Open &recent")
         self.recent_menu.aboutToShow.connect(self._fill_recent)
         f.addAction("Open the &demo arm", lambda: self.open_file(DEMO_ARM))
         f.addSeparator()
-        f.addAction("&Save study…", self.save_study_dialog)
+        f.addAction(self.act_save_study)
         f.addAction("Results &folder…", self.choose_project_dialog)
         f.addSeparator()
         e = f.addMenu("&Export")
-        e.addAction("Map image (PNG or SVG)…", self.export_map_dialog)
+        e.addAction(self.act_export_map)
         e.addAction("Pose list (CSV)…", self.export_csv_dialog)
         e.addAction("Results file (HDF5)…", self.export_results_dialog)
-        e.addAction("Layout report (PDF or HTML)…", self.export_report_dialog)
+        e.addAction(self.act_report)
         f.addSeparator()
-        q = f.addAction("&Quit", self.close)
-        q.setShortcut(QtGui.QKeySequence.Quit)
-        v = mb.addMenu("&View")
+        f.addAction(self.act_quit)
+        s = mb.addMenu("&Study")
+        s.addAction(self.act_run)
+        s.addAction(self.act_cancel)
+        self.view_menu = v = mb.addMenu("&View")
+        self.panels_menu = v.addMenu("&Panels")
+        self.panels_menu.aboutToShow.connect(self._fill_panels_menu)
+        v.addSeparator()
         for name in ("iso", "top", "front", "side"):
             v.addAction(f"{name.capitalize()} view", lambda n=name: self.scene.set_view(n))
         v.addSeparator()
-        v.addAction("Clear brush", lambda: self.selection.clear(source="menu"))
+        v.addAction(self.act_clear_brush)
         h = mb.addMenu("&Help")
         h.addAction("&About and cautions", self.show_about)
+
+        tb = self.toolbar = QtWidgets.QToolBar("Main toolbar", self)
+        tb.setObjectName("main_toolbar")
+        tb.setIconSize(QtCore.QSize(20, 20))
+        tb.setToolButtonStyle(QtCore.Qt.ToolButtonTextBesideIcon)
+        for a in (self.act_open, self.act_save_study, None, self.act_run, self.act_cancel, None,
+                  self.act_clear_brush, None, self.act_export_map, self.act_report):
+            tb.addSeparator() if a is None else tb.addAction(a)
+        self.addToolBar(QtCore.Qt.TopToolBarArea, tb)
+        self._fill_panels_menu()
+
+    def panel_actions(self) -> dict:
+        """Title -> the action that shows or hides it, for every dock panel and the toolbar (docks
+        other parts of the window add later are found here too)."""
+        out = {}
+        for dock in self.findChildren(QtWidgets.QDockWidget):
+            out[dock.windowTitle()] = dock.toggleViewAction()
+        out["Toolbar"] = self.toolbar.toggleViewAction()
+        return out
+
+    def _fill_panels_menu(self):
+        for a in self.panels_menu.actions():       # removed, not cleared: the docks own them
+            self.panels_menu.removeAction(a)
+        for title, a in self.panel_actions().items():
+            a.setText(title)
+            self.panels_menu.addAction(a)
+
+    def _run_action(self):
+        if self.running:
+            self.status.showMessage("a study is already running", 4000)
+            return
+        self.study_panel._run_clicked()
+
+    def clear_brush(self):
+        """No brush in any view (Esc when no study runs)."""
+        clear = getattr(self.map_view, "clear_brushes", None)
+        if clear is not None:
+            clear()
+        self.selection.clear(source="menu")
+
+    def _sync_actions(self):
+        """Toolbar and menu actions follow the run state; Esc cancels a run, else clears the brush."""
+        running = self.running
+        self.act_run.setEnabled(not running and self.study_panel.run_btn.isEnabled())
+        self.act_cancel.setEnabled(running)
+        self.act_clear_brush.setShortcuts([] if running else [QtGui.QKeySequence("Esc")])
+        has = self.result is not None
+        self.act_export_map.setEnabled(has)
+        self.act_report.setEnabled(bool(self.results_file))
+        self.update_title()
+
+    def update_title(self):
+        """Window title: the study and the file behind the views (results file, else the study
+        file), then the application's name."""
+        parts = []
+        name = ""
+        if self.session is not None:
+            name = self.session.spec.name
+        elif self.study_panel.kind is not None:
+            name = self.study_panel.name or self.study_panel.kind.title or self.study_panel.kind.name
+        if name:
+            parts.append(name)
+        path = self.results_file or self.study_file
+        if path:
+            parts.append(os.path.basename(path) + f" ({os.path.dirname(os.path.abspath(path))})")
+        elif self.session is not None and self.running:
+            parts.append("running…")
+        parts.append("Manipulability Workbench")
+        self.setWindowTitle(" — ".join(parts))
 
     # ---- errors and messages -------------------------------------------------------------
     def show_error(self, message: str):
@@ -342,6 +492,7 @@ class MainWindow(QtWidgets.QMainWindow):
             self.show_error(f"{path}: could not be opened ({exc.__class__.__name__}: {exc})")
             return False
         self._add_recent(path)
+        self._sync_actions()
         self.settings.setValue("last_dir", os.path.dirname(os.path.abspath(path)))
         self.status.showMessage(f"opened {kind} file {path}", 8000)
         return True
@@ -417,6 +568,11 @@ class MainWindow(QtWidgets.QMainWindow):
         except WorkbenchError as exc:
             self.status.showMessage(f"the study of this file is not offered here: {exc}", 8000)
         self.show_result(session.data)
+        from .selection import brush_file, load_brushes
+
+        saved = load_brushes(brush_file(self.results_file))
+        if saved:                   # the brushes kept with this file, evaluated on it again
+            self.selection.set_brushes(saved, source="reopen")
         self.settings.setValue("last_results", self.results_file)
         self.status.showMessage(f"results of {session.spec.name}: {100 * session.data.fraction_done:.0f}% of "
                                 f"the cells computed" + (" (incomplete run)" if res.incomplete else ""), 10000)
@@ -602,6 +758,7 @@ class MainWindow(QtWidgets.QMainWindow):
         self.study_panel.set_running(True)
         self._run_t0 = time.perf_counter()
         self.thread = start_worker(self.worker, self)
+        self._sync_actions()
         self.status.showMessage(f"running {spec.name}: {session.plan.cells:,} cells", 5000)
         return True
 
@@ -635,6 +792,7 @@ class MainWindow(QtWidgets.QMainWindow):
             self.session.refresh_derived()
         running = self.running
         d = self.result
+        self.selection.reevaluate()         # brushes are shapes and ranges: new cells may fall in them
         if not running or d.tcp is not None or d.mount_fn is not None:
             self._show_candidates()          # only these change with new chunks
         self.map_view.refresh(final=not running)
@@ -661,7 +819,9 @@ class MainWindow(QtWidgets.QMainWindow):
         if path:
             self.results_file = path
             self.settings.setValue("last_results", path)
+            self._save_brushes()          # brushes drawn during the run stay with its file
         self.refresh_runs()
+        self._sync_actions()
         if status.startswith("failed"):
             self.show_error(status)
         elif not self._closing:
@@ -704,8 +864,12 @@ class MainWindow(QtWidgets.QMainWindow):
         self.pose_list.set_result(empty)
         self.pose_list.model.data_ = None
         self.summary_view.setHtml(tables_html({}))
+        self.verdict_view.show_file(None)
         self.scene.set_ghosts(None)
         self._show_candidates()
+        self.map_view.show_hint(True)
+        self.hist_view.show_hint(True)
+        self._sync_actions()
 
     def show_result(self, data: ResultData):
         self.result = data
@@ -715,8 +879,6 @@ class MainWindow(QtWidgets.QMainWindow):
             self.map_view.set_result(data)
             self.map_view.set_threshold(self.state.threshold)
         else:
-            if self.map_view.roi is not None:
-                self.map_view.brush_btn.setChecked(False)
             self.map_view.set_result_series(data)
         self.hist_view.set_result(data, data.threshold_measure)
         self.pose_list.set_result(data)
@@ -778,10 +940,28 @@ class MainWindow(QtWidgets.QMainWindow):
                 except WorkbenchError as exc:
                     self.status.showMessage(f"summary tables not read: {exc}", 8000)
         self.summary_view.setHtml(tables_html(tables))
+        self.verdict_view.show_file(self.results_file)
+
+    def _save_brushes(self):
+        """Keep the brushes beside the results file (in the project folder), for its reopening."""
+        from .selection import brush_file, save_brushes
+
+        if not self.results_file or self.running:
+            return
+        path = brush_file(self.results_file)
+        try:
+            if self.selection.brushes:
+                save_brushes(path, self.selection.brushes)
+            elif os.path.exists(path):
+                os.unlink(path)
+        except OSError as exc:
+            self.status.showMessage(f"brushes not kept: {exc.strerror or exc}", 6000)
 
     def _selection_changed(self, sel, source, final):
         if not final or self.result is None or sel.size != self.result.size:
             return
+        if source not in (None, "reopen"):     # None: a new result starting empty
+            self._save_brushes()
         if not self.result.is_map:
             self._show_series()
         if not sel.active or sel.count == 0 or not self.result.has_poses:
@@ -822,8 +1002,8 @@ class MainWindow(QtWidgets.QMainWindow):
         self.state.set_q(q)
         self.map_view.mark_cell(c)
         x, y = d.cell_xy(c)
-        self.status.showMessage(f"cell {c} ({d.x_label} {x:.4g}" + (f", {d.y_label} {y:.4g}" if y is not None else "")
-                                + ")", 6000)
+        self.status.showMessage(f"cell {c:,} ({d.x_label} {fmt_number(x)}"
+                                + (f", {d.y_label} {fmt_number(y)}" if y is not None else "") + ")", 6000)
         return True
 
     # ---- export --------------------------------------------------------------------------

@@ -6,7 +6,7 @@ import numpy as np
 import pyqtgraph as pg
 
 from .result_views import display_values, measure_label
-from .selection import range_mask
+
 
 __all__ = ["show_series", "near_spans"]
 
@@ -65,14 +65,12 @@ def show_series(view, data, threshold):
     plot.setLabel("bottom", data.x_label)
     plot.setLabel("left", measure_label(m))
     plot.setTitle(data.title or data.kind)
-    view.legend.setText("orange: brushed; the scene shows the TCP points coloured by the measure" if unordered
-                        else f"red bands: near singular (1/k < {threshold:g}); orange: brushed")
+    brushed = ((255, 140, 0), "dot", "brushed samples")
+    view.legend.set_entries([brushed, ((40, 150, 60), "dot", "TCP points in the scene (colour: measure)")]
+                            if unordered else
+                            [((220, 40, 40, 60), "fill", f"near singular (1/k < {threshold:g})"), brushed])
     plot.getPlotItem().vb.autoRange(padding=0.02)
     if getattr(view, "picked", None) is not None and view.picked < data.size:
         view.mark_cell(view.picked)     # the ring follows the measure shown
 
-    def brush(lo, hi, final=True):
-        sel.set_mask(range_mask(x, lo, hi), source="series", final=final)
-
-    view.brush_series = brush
-    view.series_x = x
+    view.series_x = x     # brushing: MapView.brush_series (an "xrange" brush over data.x)

@@ -11,7 +11,7 @@ from PySide6 import QtCore, QtWidgets
 from ..errors import WorkbenchError
 from ..studies import StudySpec, get_kind, kind_names
 from ..studies.base import unused_note
-from .formlogic import check_fields, choices, format_value, unit_hint
+from .formlogic import POSE_SOURCES, check_fields, choices, format_value, pose_to_file, takes_pose, unit_hint
 
 __all__ = ["StudyPanel"]
 
@@ -137,6 +137,9 @@ class StudyPanel(QtWidgets.QWidget):
         self._check_timer.setInterval(200)
         self._check_timer.timeout.connect(self.check)
         self._estimate_fn = None
+        #: () -> (n,) joint values (rad / m) of the arm panel's sliders (the window sets it)
+        self.pose_provider = None
+        self.pose_source = None
 
     # ---- context -------------------------------------------------------------------------
     def set_context(self, arm, arm_path, cell=None, cell_path=None):
@@ -195,6 +198,10 @@ class StudyPanel(QtWidgets.QWidget):
                 w.setParent(None)
                 w.deleteLater()
         self.edits, self.reasons = {}, {}
+        self.pose_source = None
+        settings = dict(settings)
+        pose = settings.pop("pose", None) if takes_pose(self.kind.name) else None
+        r = -1
         for r, (key, value) in enumerate(settings.items()):
             lab = QtWidgets.QLabel(key.replace("_", " "))
             offered = choices(self.kind.name, key, self.arm, value)
@@ -218,11 +225,82 @@ class StudyPanel(QtWidgets.QWidget):
             self.form.addWidget(reason, 2 * r + 1, 1, 1, 2)
             self.edits[key] = edit
             self.reasons[key] = reason
+        if takes_pose(self.kind.name):
+            self._add_pose_row(2 * (r + 1), pose)
         self.check()
+
+    def _add_pose_row(self, row, pose):
+        """The pose of the joints the study does not sweep: the arm's home pose, the sliders'
+        pose (read when the study is checked and run) or values typed in (degrees / mm as m)."""
+        lab = QtWidgets.QLabel("other joints")
+        lab.setToolTip("The pose of the joints the study does not sweep")
+        src = ChoiceEdit(POSE_SOURCES)
+        src.setObjectName("pose_source")
+        src.setToolTip("home pose: the arm file's home; current sliders: the arm panel's pose; "
+                       "explicit: the values typed below")
+        src.setText("home pose" if pose is None else "explicit")
+        edit = QtWidgets.QLineEdit(format_value(pose) if pose is not None else "")
+        edit.setObjectName("setting_pose")
+        edit.setMinimumWidth(110)
+        edit.textChanged.connect(lambda _t: self._check_timer.start())
+        src.textChanged.connect(self._pose_source_chosen)
+        unit = QtWidgets.QLabel(unit_hint("pose"))
+        unit.setStyleSheet("color: #555")
+        reason = QtWidgets.QLabel("")
+        reason.setWordWrap(True)
+        reason.setStyleSheet("color: #b01010")
+        reason.hide()
+        self.form.addWidget(lab, row, 0)
+        self.form.addWidget(src, row, 1, 1, 2)
+        self.form.addWidget(edit, row + 1, 1)
+        self.form.addWidget(unit, row + 1, 2)
+        self.form.addWidget(reason, row + 2, 1, 1, 2)
+        self.pose_source = src
+        self.edits["pose"] = edit
+        self.reasons["pose"] = reason
+        self._pose_source_chosen()
+
+    def _pose_source_chosen(self, _t=None):
+        src = self.pose_source.text()
+        edit = self.edits["pose"]
+        edit.setReadOnly(src != "explicit")
+        if src == "explicit" and not edit.text().strip() and self.arm is not None:
+            edit.setText(format_value(pose_to_file(self.arm, self.arm.home_q)))
+        self._sync_pose()
+        self._check_timer.start()
+
+    def _sync_pose(self):
+        """Show the pose the study will use (home or sliders) in the read-only pose field."""
+        if self.pose_source is None or self.arm is None:
+            return
+        src = self.pose_source.text()
+        edit = self.edits["pose"]
+        q = None
+        if src == "home pose":
+            q = self.arm.home_q
+        elif src == "current sliders":
+            q = self.pose_provider() if self.pose_provider is not None else self.arm.home_q
+        if q is not None:
+            edit.blockSignals(True)
+            edit.setText(format_value(pose_to_file(self.arm, q)))
+            edit.blockSignals(False)
+
+    def use_pose(self, source: str, values=None):
+        """Choose the pose of the other joints: "home pose", "current sliders" or "explicit"
+        (``values`` in degrees / metres)."""
+        if self.pose_source is None:
+            raise WorkbenchError(f"the {self.kind.name} study has no pose of other joints")
+        if values is not None:
+            self.edits["pose"].setText(format_value(list(values)))
+        self.pose_source.setText(source)
+        return self.check()
 
     # ---- validation ----------------------------------------------------------------------
     def texts(self) -> dict:
-        return {k: e.text() for k, e in self.edits.items()}
+        """Setting name -> field text (no ``pose`` when the home pose is chosen: the study's own
+        default)."""
+        home = self.pose_source is not None and self.pose_source.text() == "home pose"
+        return {k: e.text() for k, e in self.edits.items() if not (home and k == "pose")}
 
     def check(self) -> bool:
         """Check every field now; mark bad ones with their reason; enable Run when all are good."""
@@ -230,6 +308,7 @@ class StudyPanel(QtWidgets.QWidget):
         if self.kind is None:
             self.run_btn.setEnabled(False)
             return False
+        self._sync_pose()
         values, errors, summary = check_fields(self.kind, self.texts(), self.defaults, self.arm, self.cell)
         self.values, self.errors = values, errors
         for k, e in self.edits.items():

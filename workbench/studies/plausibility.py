@@ -279,4 +279,9 @@ def study_warnings(prepared) -> list[str]:
         mount = getattr(plan.settings, "mount", None)
         mount = mount if isinstance(mount, np.ndarray) and mount.shape == (4, 4) else None
         out.extend(cell_warnings(arm, cell, settings_mount=mount, uses_region=plan.kind == "mount_search"))
+    coll = (plan.data.get("result_attrs") or {}).get("collisions", "") if isinstance(plan.data, dict) else ""
+    if "no collision shapes" in coll:
+        from .collide import NO_SHAPES_WARNING
+
+        out.append(NO_SHAPES_WARNING)
     return out

@@ -56,15 +56,16 @@ import numpy as np
 
 from ..arm.transforms import inverse_transform, make_transform
 from ..measures import NEAR_SINGULAR as _NEAR_DEFAULT
+from . import collide
 from .base import Axis, Chunk, Field, Plan, StudyError, StudyKind, Table, check_rows
 
 __all__ = ["ReachSlice", "ReachSettings", "sphere_orientations", "bench_reach_slice",
-           "REACHED", "NEAR_SINGULAR", "OUT_OF_REACH", "LIMITS", "NOT_CONVERGED"]
+           "REACHED", "NEAR_SINGULAR", "OUT_OF_REACH", "LIMITS", "NOT_CONVERGED", "COLLIDING"]
 
 _DEG = math.pi / 180.0
 _KEYS = {"grid", "plane", "at", "origin", "plane_rpy", "u", "v", "x", "y", "z", "step", "steps",
          "orientation", "rpy", "axis", "directions", "spins", "seeds", "frame", "rows", "length", "best",
-         "distinct_tol", "near_singular", "mount_xyz", "mount_rpy", "neighbour_seeds"}
+         "distinct_tol", "near_singular", "mount_xyz", "mount_rpy", "neighbour_seeds"} | collide.KEYS
 _PLANES = {"xy": (0, 1, 2), "xz": (0, 2, 1), "yz": (1, 2, 0)}
 _BEST = {"inverse_condition": 1.0, "manipulability": 1.0, "min_sv": 1.0, "condition": -1.0}
 MAX_POINTS = 4_000_000
@@ -76,8 +77,10 @@ NEAR_SINGULAR = 2
 OUT_OF_REACH = 4
 LIMITS = 8
 NOT_CONVERGED = 16
+COLLIDING = 32   # IK reaches the point, but only with solutions below the clearance setting
 _FLAGS = {REACHED: "reached", NEAR_SINGULAR: "near singular at the best solution",
-          OUT_OF_REACH: "out of reach", LIMITS: "blocked by joint limits", NOT_CONVERGED: "IK did not converge"}
+          OUT_OF_REACH: "out of reach", LIMITS: "blocked by joint limits", NOT_CONVERGED: "IK did not converge",
+          COLLIDING: "reached only by colliding solutions"}
 
 
 @dataclass(frozen=True, eq=False)
@@ -105,6 +108,7 @@ class ReachSettings:
     near_singular: float
     mount: np.ndarray
     neighbour_seeds: bool = True
+    collisions: collide.CollisionSettings = collide.CollisionSettings(False)
 
 
 def sphere_orientations(directions: int, spins: int) -> np.ndarray:
@@ -283,7 +287,8 @@ def _validate(settings: Mapping, arm, cell, where: str) -> ReachSettings:
     return ReachSettings(grid=grid, axes_values=vals, plane=plane if grid == "plane" else "", plane_frame=F,
                          orientation=orientation, rule=rule, rotations=np.ascontiguousarray(rot), seeds=seeds,
                          frame=str(frame), rows=rows if isinstance(rows, str) else list(rows), length=length,
-                         best=best, distinct_tol=dtol, near_singular=near, mount=mount, neighbour_seeds=nbs)
+                         best=best, distinct_tol=dtol, near_singular=near, mount=mount, neighbour_seeds=nbs,
+                         collisions=collide.collision_settings(settings, arm, where))
 
 
 def _ik_status_bits(status):
@@ -369,11 +374,17 @@ class ReachSlice(StudyKind):
         else:
             fields.append(Field("solutions", (), "int16", "", f"distinct IK solutions found from {s.seeds} seeds",
                                 fill=0))
+        if s.collisions.on:
+            fields.append(Field("clearance", (), "float64", "m",
+                                f"clearance (m) at the best solution (points reached only by colliding solutions: "
+                                f"the largest over them); a solution counts with at least "
+                                f"{s.collisions.clearance * 1000:g} mm"))
         fields.append(Field("q", (n,), "float64", "rad/m", "joint values of the best solution", kind="pose"))
         fields.append(Field("target", (3,), "float64", "m", "grid point in the cell frame", kind="point"))
         default_chunk = 4096 if s.orientation != "sampled" else max(16, 4096 // len(s.rotations))
         return Plan(self.name, spec, s, axes, tuple(fields), chunk_cells=chunk_cells or default_chunk,
-                    data={"base_from_cell": inverse_transform(s.mount)})
+                    data={"base_from_cell": inverse_transform(s.mount),
+                          "result_attrs": collide.result_attrs(s.collisions), "cell": cell})
 
     # ------------------------------------------------------------------------------------------
     def points(self, plan: Plan, start: int, stop: int) -> np.ndarray:
@@ -411,7 +422,21 @@ class ReachSlice(StudyKind):
         s = plan.settings
         Tb = self._targets(plan, self.points_at(plan, idx))[:, 0]
         res = solve_ik(arm, Tb, seeds=s.seeds, orientation=s.rule, all_solutions=True)
-        return res.q, res.status, distinct_solutions(arm, res.q, res.status, s.distinct_tol)
+        keep = distinct_solutions(arm, res.q, res.status, s.distinct_tol)
+        return res.q, res.status, self._clear(plan, arm, res.q, keep)
+
+    @staticmethod
+    def _clear(plan, arm, q, keep):
+        """``keep`` (count, S) restricted to solutions with the clearance asked (one batched call
+        of :func:`workbench.collision.clearance` over every kept solution)."""
+        cs = plan.settings.collisions
+        if not cs.on or not keep.any():
+            return keep
+        out = keep.copy()
+        r, c = np.nonzero(keep)
+        _d, good = collide.clear_of(arm, q[r, c], plan.data.get("cell"), cs, mounts=plan.settings.mount)
+        out[r, c] = good
+        return out
 
     @staticmethod
     def _neighbours(plan, idx):
@@ -471,7 +496,7 @@ class ReachSlice(StudyKind):
             Tb = self._targets(plan, self.points_at(plan, idx[r_]))[:, 0]
             res = solve_ik(arm, Tb, seeds=0, q_seed=np.ascontiguousarray(seeds[sel, :c]), orientation=s.rule,
                            all_solutions=True)
-            k2 = distinct_solutions(arm, res.q, res.status, s.distinct_tol)
+            k2 = self._clear(plan, arm, res.q, distinct_solutions(arm, res.q, res.status, s.distinct_tol))
             got = k2.any(axis=1)
             g = r_[got]
             q[g, :c] = res.q[got]
@@ -494,6 +519,8 @@ class ReachSlice(StudyKind):
             Tb = self._targets(plan, P)
             res = solve_ik(arm, Tb, seeds=s.seeds, orientation=s.rule)  # (M, K)
             q, ok, status = res.q, res.status == CONVERGED, res.status
+            if s.collisions.on:
+                q, ok = self._clear_sampled(plan, arm, Tb, q, ok)
             reach_index = ok.mean(axis=1)
         else:
             q, status, ok = self._first_pass(plan, arm, idx)                     # (M, S, ...)
@@ -513,6 +540,9 @@ class ReachSlice(StudyKind):
         pen = joint_limit_penalty(qb, arm.model.lower, arm.model.upper)
         out["limit_aware_manipulability"] = np.where(reached, pen * out["manipulability"], np.nan)
         bits = _ik_status_bits(status)
+        if s.collisions.on:  # converged somewhere, but no solution with the clearance asked
+            hit = ~reached & np.any(status == CONVERGED, axis=1)
+            bits = np.where(hit, COLLIDING, bits)
         bits = np.where(reached, REACHED, bits).astype(np.uint8)
         bits |= np.where(reached & (out["inverse_condition"] < s.near_singular), NEAR_SINGULAR, 0).astype(np.uint8)
         out["status"] = bits
@@ -520,9 +550,48 @@ class ReachSlice(StudyKind):
             out["reachability"] = reach_index
         else:
             out["solutions"] = count
+        if s.collisions.on:
+            out["clearance"] = self._clearance_field(plan, arm, cell, q, status, qb, reached, hit)
         out["q"] = np.where(reached[:, None], qb, np.nan)
         out["target"] = P
         return out
+
+    @staticmethod
+    def _clearance_field(plan, arm, cell, q, status, qb, reached, hit):
+        """Clearance (m) per point: at the best solution where reached; where only colliding
+        solutions reach it, the largest clearance among the converged ones; NaN elsewhere."""
+        from ..kinematics.ik import CONVERGED
+
+        cs, mount = plan.settings.collisions, plan.settings.mount
+        d = np.full(len(qb), np.nan)
+        if reached.any():
+            d[reached] = collide.clear_of(arm, qb[reached], cell, cs, mounts=mount)[0]
+        if hit.any():
+            conv = status[hit] == CONVERGED
+            dh = collide.clear_of(arm, np.where(conv[..., None], q[hit], 0.0), cell, cs, mounts=mount)[0]
+            d[hit] = np.max(np.where(conv, dh, -np.inf), axis=1)
+        return d
+
+    def _clear_sampled(self, plan, arm, Tb, q, ok):
+        """Sampled orientations: where the first converged solution collides, run every seed of
+        those targets again and keep the first clear one (one IK call, one clearance call)."""
+        from ..kinematics.ik import CONVERGED, solve_ik
+
+        s = plan.settings
+        cell = plan.data.get("cell")
+        _d, good = collide.clear_of(arm, np.where(np.isfinite(q), q, 0.0), cell, s.collisions, mounts=s.mount)
+        redo = ok & ~good
+        if not redo.any():
+            return q, ok
+        r, c = np.nonzero(redo)
+        res = solve_ik(arm, np.ascontiguousarray(Tb[r, c]), seeds=s.seeds, orientation=s.rule, all_solutions=True)
+        conv = res.status == CONVERGED
+        _dk, gk = collide.clear_of(arm, np.where(np.isfinite(res.q), res.q, 0.0), cell, s.collisions, mounts=s.mount)
+        pick, found = collide.first_clear(conv & gk)
+        q, ok = q.copy(), ok.copy()
+        q[r, c] = res.q[np.arange(len(r)), pick]
+        ok[r, c] = found
+        return q, ok
 
     def summarise(self, plan, arrays) -> dict:
         s = plan.settings
@@ -537,10 +606,20 @@ class ReachSlice(StudyKind):
                 "blocked_by_limits": np.array([int(((st & LIMITS) != 0).sum())]),
                 "not_converged": np.array([int(((st & NOT_CONVERGED) != 0).sum())]),
                 "near_singular": np.array([int(((st & NEAR_SINGULAR) != 0).sum())])}
+        if s.collisions.on:
+            cols["colliding_only"] = np.array([int(((st & COLLIDING) != 0).sum())])
+            clr = np.asarray(arrays["clearance"], float)
+            if reached.any():
+                cols["min_clearance"] = np.array([float(np.nanmin(clr[reached]))])
         if reached.any():
             cols["min_inverse_condition"] = np.array([float(np.nanmin(inv[reached]))])
             cols["median_inverse_condition"] = np.array([float(np.nanmedian(inv[reached]))])
-        tables = {"reach": Table("Reach summary", cols, {}, f"orientation rule: {s.orientation}")}
+        note = f"orientation rule: {s.orientation}"
+        if s.collisions.on:
+            note += (f"; a point counts as reached only by a solution with at least "
+                     f"{s.collisions.clearance * 1000:g} mm clearance (colliding_only: reached only by colliding "
+                     f"solutions; min_clearance in m)")
+        tables = {"reach": Table("Reach summary", cols, {}, note)}
         if reached.any():
             tgt = np.asarray(arrays["target"], float)
             idx = np.where(reached)[0]
