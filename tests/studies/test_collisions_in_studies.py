@@ -356,3 +356,33 @@ def test_load_map_holds_only_with_clear_solutions():
     plan, o = run_load(arm, _elbow_boxes(1, -1), {"collisions": False})
     assert int(o["reached"][0]) == 1 and "clearance" not in o
     assert o["payload"][0] == pytest.approx((20 / 9.81 - 0.375) / 0.75, rel=1e-6)
+
+
+def test_workbench_run_warns_when_the_arm_has_no_shapes(tmp_path):
+    # the demo planar 2R arm file has no collision shapes: a real `workbench run` of a reach slice
+    # prints the warning line and stores the note in the results file
+    import os
+    import subprocess
+    import sys
+    from pathlib import Path
+
+    from workbench.results import read_results
+
+    root = Path(__file__).resolve().parents[2]
+    study = tmp_path / "s.toml"
+    study.write_text(f"[study]\nname = \"no shapes\"\nkind = \"reach_slice\"\narm = \"{(root / 'arms' / 'demo_planar2r.toml').as_posix()}\"\n"
+                     "[settings]\nplane = \"xy\"\nu = [0.2, 0.6]\nv = [-0.2, 0.2]\nsteps = [3, 3]\n"
+                     "orientation = \"free\"\nrows = [\"vx\", \"vy\"]\nseeds = 2\n")
+    out = tmp_path / "r.h5"
+    env = dict(os.environ, PYTHONPATH=str(root))
+    p = subprocess.run([sys.executable, "-m", "workbench", "run", str(study), "--out", str(out), "--in-process"],
+                       capture_output=True, text=True, env=env, cwd=tmp_path, timeout=600)
+    assert p.returncode == 0, p.stderr
+    assert f"warning: {collide.NO_SHAPES_WARNING}" in p.stderr.splitlines()
+    r = read_results(out)
+    assert r.attrs["collisions"] == "not checked: the arm has no collision shapes"
+    assert not any(f.name == "clearance" for f in r.fields)
+    from workbench.decision import collision_status
+
+    checked, _asked, sentence = collision_status(r)
+    assert not checked and "the arm has no collision shapes" in sentence  # from the results' note alone
