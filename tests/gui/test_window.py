@@ -170,16 +170,14 @@ def test_run_brush_and_pick(window, qtbot):
     shown = float(window.arm_panel.m_labels["inverse_condition"].text())
     assert shown == pytest.approx(d.measures["inverse_condition"][c], abs=1e-4)
     # the lasso: its corners in axis units, and the cells inside it
-    window.map_view.lasso_btn.setChecked(True)
-    poly = window.map_view.lasso_points()
-    assert poly.shape == (4, 2)
+    poly = np.array([[-80.0, -40.0], [0.0, -110.0], [60.0, -40.0], [0.0, 30.0]])
+    window.map_view.brush_polygon(poly)
     from matplotlib.path import Path
 
     X, Y = np.meshgrid(d.x, d.y)
     inside = Path(poly).contains_points(np.column_stack([X.ravel(), Y.ravel()]))
     assert inside.any() and np.array_equal(window.selection.mask, inside)
     assert window.pose_list.model.rowCount() == inside.sum()
-    window.map_view.lasso_btn.setChecked(False)
     # a value range on the histogram selects exactly the cells with values in it
     v = d.measures["inverse_condition"]
     lo, hi = np.quantile(v, [0.2, 0.4])

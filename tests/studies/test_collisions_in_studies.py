@@ -226,3 +226,86 @@ def test_reach_slice_collisions_false_gives_the_old_results():
         np.testing.assert_array_equal(a[key], a0[key])
     assert plan.data["result_attrs"]["collisions"] == "not checked: switched off in the study settings (collisions = false)"
     assert _p0.data["result_attrs"]["collisions"] == "not checked: the arm has no collision shapes"
+
+
+# ----------------------------------------------------------------------------------------------
+# path audit: clearance along the path and the spans below the setting, with the pair named
+
+PATH_CELL = """[cell]
+name = "c"
+floor = false
+[[point]]
+name = "a"
+xyz = [1.5, -0.31, 0.5]
+orientation = "free"
+[[point]]
+name = "b"
+xyz = [1.5, 0.31, 0.5]
+orientation = "free"
+[[path]]
+name = "line"
+speed = 100
+through = ["a", "b"]
+[[box]]
+name = "post"
+center = [1.75, 0, 0.5]
+size = [0.1, 0.1, 1.0]
+"""
+
+
+def run_audit(arm, settings):
+    from workbench.studies.path_audit import PathAudit
+
+    cell = parse_cell_text(PATH_CELL, "c.toml")
+    kind = PathAudit()
+    st = {"spacing": 0.02, "rows": ["vx", "vy"], "seeds": 8}
+    st.update(settings)
+    plan = kind.plan(StudySpec(kind="path_audit", arm="2r", cell="c.toml", settings=st), arm, cell)
+    a = kind.compute_chunk(plan, arm, cell, Chunk(0, 0, plan.cells))
+    return plan, a, kind.summarise(plan, a)
+
+
+def test_path_audit_clearance_along_the_path_and_the_span_named():
+    from workbench.studies.path_audit import COLLIDING, REACHED
+
+    arm = arm_2r()
+    plan, a, tables = run_audit(arm, {"clearance": 0.2})
+    y = -0.31 + a["distance"]
+    # reference: dense sampling of both link axes at the tracked joint values (planar FK by hand:
+    # elbow (cos q1, sin q1), tip elbow + (cos(q1 + q2), sin(q1 + q2))), point to the post's
+    # footprint x 1.70 .. 1.80, y -0.05 .. 0.05, minus the capsule radius
+    q = a["q"]
+    e = np.stack([np.cos(q[:, 0]), np.sin(q[:, 0])], axis=1)
+    tip = e + np.stack([np.cos(q.sum(axis=1)), np.sin(q.sum(axis=1))], axis=1)
+    t = np.linspace(0, 1, 4001)[None, :, None]
+    pts = np.concatenate([t * e[:, None], e[:, None] + t * (tip - e)[:, None]], axis=1)
+    gap = np.maximum(np.maximum(np.array([1.70, -0.05]) - pts, pts - np.array([1.80, 0.05])), 0)
+    ref = np.linalg.norm(gap, axis=2).min(axis=1) - R
+    np.testing.assert_allclose(a["clearance"], ref, atol=1e-5)
+    # inside the span the tip is the nearest point (worked by hand): the face x = 1.70 for
+    # |y| <= 0.05 (0.15 m), else the edge at y = +-0.05: sqrt(0.2^2 + (|y| - 0.05)^2) - 0.05
+    span = np.abs(y) < 0.2
+    hand = np.where(np.abs(y) <= 0.05, 0.15, np.hypot(0.2, np.abs(y) - 0.05) - R)
+    np.testing.assert_allclose(a["clearance"][span], hand[span], atol=1e-5)
+    # below 0.2 m exactly where |y| < 0.2, i.e. path distance 0.11 .. 0.51: samples 0.12 .. 0.50
+    low = a["clearance"] < 0.2
+    np.testing.assert_array_equal(low, np.abs(y) < 0.2)
+    assert np.all((a["flags"][low] & COLLIDING) > 0) and not np.any(a["flags"][~low] & COLLIDING)
+    assert np.all((a["flags"] & REACHED) > 0)   # the tracked branch reaches them: measures kept
+    t = tables["clearance_spans"].columns
+    assert len(t["path"]) == 1 and t["path"][0] == "line"
+    assert t["from"][0] == pytest.approx(120, abs=1e-6) and t["to"][0] == pytest.approx(500, abs=1e-6)
+    assert t["min_clearance"][0] == pytest.approx(150, abs=1e-2)
+    assert t["note"][0] == "link 2 within 150 mm of box 'post'"
+    assert plan.data["result_attrs"] == {"collisions": "checked", "clearance": 0.2}
+
+
+def test_path_audit_collisions_false_gives_the_old_results():
+    from workbench.studies.path_audit import REACHED
+
+    _p, a, tables = run_audit(arm_2r(), {"clearance": 0.2, "collisions": False})
+    _p0, a0, _t0 = run_audit(arm_2r(shapes=False), {})
+    assert "clearance" not in a and "clearance_spans" not in tables
+    assert np.all((a["flags"] & REACHED) > 0)
+    for key in ("flags", "q", "manipulability", "speed_ratio"):
+        np.testing.assert_array_equal(a[key], a0[key])

@@ -568,6 +568,11 @@ class MainWindow(QtWidgets.QMainWindow):
         except WorkbenchError as exc:
             self.status.showMessage(f"the study of this file is not offered here: {exc}", 8000)
         self.show_result(session.data)
+        from .selection import brush_file, load_brushes
+
+        saved = load_brushes(brush_file(self.results_file))
+        if saved:                   # the brushes kept with this file, evaluated on it again
+            self.selection.set_brushes(saved, source="reopen")
         self.settings.setValue("last_results", self.results_file)
         self.status.showMessage(f"results of {session.spec.name}: {100 * session.data.fraction_done:.0f}% of "
                                 f"the cells computed" + (" (incomplete run)" if res.incomplete else ""), 10000)
@@ -787,6 +792,7 @@ class MainWindow(QtWidgets.QMainWindow):
             self.session.refresh_derived()
         running = self.running
         d = self.result
+        self.selection.reevaluate()         # brushes are shapes and ranges: new cells may fall in them
         if not running or d.tcp is not None or d.mount_fn is not None:
             self._show_candidates()          # only these change with new chunks
         self.map_view.refresh(final=not running)
@@ -813,6 +819,7 @@ class MainWindow(QtWidgets.QMainWindow):
         if path:
             self.results_file = path
             self.settings.setValue("last_results", path)
+            self._save_brushes()          # brushes drawn during the run stay with its file
         self.refresh_runs()
         self._sync_actions()
         if status.startswith("failed"):
@@ -872,8 +879,6 @@ class MainWindow(QtWidgets.QMainWindow):
             self.map_view.set_result(data)
             self.map_view.set_threshold(self.state.threshold)
         else:
-            if self.map_view.roi is not None:
-                self.map_view.brush_btn.setChecked(False)
             self.map_view.set_result_series(data)
         self.hist_view.set_result(data, data.threshold_measure)
         self.pose_list.set_result(data)
@@ -937,9 +942,26 @@ class MainWindow(QtWidgets.QMainWindow):
         self.summary_view.setHtml(tables_html(tables))
         self.verdict_view.show_file(self.results_file)
 
+    def _save_brushes(self):
+        """Keep the brushes beside the results file (in the project folder), for its reopening."""
+        from .selection import brush_file, save_brushes
+
+        if not self.results_file or self.running:
+            return
+        path = brush_file(self.results_file)
+        try:
+            if self.selection.brushes:
+                save_brushes(path, self.selection.brushes)
+            elif os.path.exists(path):
+                os.unlink(path)
+        except OSError as exc:
+            self.status.showMessage(f"brushes not kept: {exc.strerror or exc}", 6000)
+
     def _selection_changed(self, sel, source, final):
         if not final or self.result is None or sel.size != self.result.size:
             return
+        if source not in (None, "reopen"):     # None: a new result starting empty
+            self._save_brushes()
         if not self.result.is_map:
             self._show_series()
         if not sel.active or sel.count == 0 or not self.result.has_poses:

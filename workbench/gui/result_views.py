@@ -16,7 +16,7 @@ from ..measures import NEAR_SINGULAR
 from .formlogic import fmt_number
 from .resultdata import MEASURE_LABELS, ResultData
 from .style import FlowLayout, Legend
-from .selection import Selection, polygon_mask, range_mask, rect_mask, rows_mask
+from .selection import Brush, Selection, rows_mask
 
 __all__ = ["MapView", "HistogramView", "PoseTableModel", "PoseListView", "display_values", "measure_label"]
 
@@ -101,17 +101,25 @@ class MapView(QtWidgets.QWidget):
         self.measure_combo.setSizeAdjustPolicy(QtWidgets.QComboBox.AdjustToContents)
         self.measure_combo.currentIndexChanged.connect(self._measure_chosen)
         bar.addWidget(self.measure_combo)
-        self.brush_btn = QtWidgets.QPushButton("Brush rectangle")
-        self.brush_btn.setCheckable(True)
-        self.brush_btn.setToolTip("Show a rectangle on the map; drag it or its corner to brush cells")
-        self.brush_btn.toggled.connect(self._toggle_roi)
-        bar.addWidget(self.brush_btn)
-        self.lasso_btn = QtWidgets.QPushButton("Lasso")
-        self.lasso_btn.setCheckable(True)
-        self.lasso_btn.setToolTip("Show a polygon on the map; drag its corners (double-click an edge for "
-                                  "a new corner) to brush the cells inside")
-        self.lasso_btn.toggled.connect(self._toggle_lasso)
-        bar.addWidget(self.lasso_btn)
+        # brushing like a data tool: a mode switch; in Rectangle and Lasso a drag draws (Shift adds,
+        # Alt or Ctrl removes, Esc clears), in Pan a drag moves the view
+        self.mode_group = QtWidgets.QButtonGroup(self)
+        self.mode_group.setExclusive(True)
+        self.mode_buttons = {}
+        for name, text, tip in (("pan", "Pan", "Drag moves the view, the wheel zooms"),
+                                ("rect", "Rectangle", "Drag draws a rectangle brush; Shift adds, Alt/Ctrl removes"),
+                                ("lasso", "Lasso", "Drag draws a free-hand brush; Shift adds, Alt/Ctrl removes")):
+            b = QtWidgets.QToolButton()
+            b.setText(text)
+            b.setCheckable(True)
+            b.setToolTip(tip)
+            b.setObjectName(f"mode_{name}")
+            b.clicked.connect(lambda _=False, n=name: self.set_mode(n))
+            self.mode_group.addButton(b)
+            self.mode_buttons[name] = b
+            bar.addWidget(b)
+        self.lasso_btn = self.mode_buttons["lasso"]
+        self.mode = "pan"
         self.clear_btn = QtWidgets.QPushButton("Clear brush")
         self.clear_btn.clicked.connect(lambda: self.selection.clear(source="map"))
         bar.addWidget(self.clear_btn)
@@ -141,9 +149,14 @@ class MapView(QtWidgets.QWidget):
         self.cbar.setImageItem(self.image, insert_in=self.plot.getPlotItem())
         for ax in (self.plot.getAxis("bottom"), self.plot.getAxis("left"), self.cbar.axis):
             ax.enableAutoSIPrefix(False)
-        self.roi = None
-        self.lasso = None
         self._contour_stride = 1
+        self._drag = None                # points of the gesture being drawn (axis units)
+        self._drag_px = None
+        self.preview = pg.PlotCurveItem(pen=pg.mkPen((255, 140, 0), width=2, style=QtCore.Qt.DashLine))
+        self.preview.setZValue(40)
+        self.plot.addItem(self.preview)
+        self.shape_items = []            # outlines of the kept brushes
+        self.plot.viewport().installEventFilter(self)
         # the picked cell: a ring that stays over the cell while other views change
         self.pick_marker = pg.ScatterPlotItem(size=16, symbol="o", pen=pg.mkPen((220, 0, 0), width=3),
                                               brush=None)
@@ -172,9 +185,6 @@ class MapView(QtWidgets.QWidget):
         for it in getattr(self, "_series_items", []):
             self.plot.removeItem(it)
         self._series_items = []
-        if getattr(self, "series_region", None) is not None:
-            self.plot.removeItem(self.series_region)
-            self.series_region = None
         self.image.show()
         self.cbar.show()
         self.measure_combo.blockSignals(True)
@@ -191,10 +201,9 @@ class MapView(QtWidgets.QWidget):
         self.plot.setLabel("bottom", data.x_label)
         self.plot.setLabel("left", data.y_label)
         self.plot.setTitle(data.title or data.kind)
-        self._toggle_roi(False)
-        self.brush_btn.setChecked(False)
-        self._toggle_lasso(False)
-        self.lasso_btn.setChecked(False)
+        self.selection.bind(data, lambda m, d=data: display_values(d, m))
+        self._draw_shapes()
+        self.set_mode(self.mode)
         self.overlay.clear()
         self.mark_cell(None)
         self.refresh(final=True)
@@ -203,9 +212,9 @@ class MapView(QtWidgets.QWidget):
 
     def set_result_series(self, data: ResultData):
         """A series result: the series module draws it into this plot."""
-        self.brush_btn.setChecked(False)
-        self._toggle_series_region(False)
         self.data = data
+        self.selection.bind(data, lambda m, d=data: display_values(d, m))
+        self._draw_shapes()
         self.show_hint(False)
         self.measure_combo.blockSignals(True)
         self.measure_combo.clear()
@@ -297,80 +306,119 @@ class MapView(QtWidgets.QWidget):
         self.measure_changed.emit(self.measure)
 
     # ---- brushing ------------------------------------------------------------------------
-    def _toggle_roi(self, on):
-        if self.data is not None and not self.data.is_map:
-            self._toggle_series_region(on)
-            return
-        if on and self.data is not None and self.data.is_map and self.roi is None:
-            r = self._rect
-            self.roi = pg.RectROI([r.x() + r.width() * 0.3, r.y() + r.height() * 0.3],
-                                  [r.width() * 0.3, r.height() * 0.3], pen=pg.mkPen((255, 140, 0), width=2))
-            self.roi.setZValue(20)
-            self.plot.addItem(self.roi)
-            self.roi.sigRegionChanged.connect(lambda *_: self._roi_moved(False))
-            self.roi.sigRegionChangeFinished.connect(lambda *_: self._roi_moved(True))
-            self._roi_moved(True)
-        elif not on and self.roi is not None:
-            self.plot.removeItem(self.roi)
-            self.roi = None
+    def set_mode(self, mode):
+        """"pan" (a drag moves the view), "rect" or "lasso" (a drag draws a brush)."""
+        if mode not in self.mode_buttons:
+            raise ValueError(f"brush mode: expected pan, rect or lasso, got {mode!r}")
+        self.mode = mode
+        self.mode_buttons[mode].setChecked(True)
+        pan = mode == "pan"
+        self.plot.getPlotItem().vb.setMouseEnabled(x=pan, y=pan)
+        self.plot.viewport().setCursor(QtCore.Qt.OpenHandCursor if pan else QtCore.Qt.CrossCursor)
 
-    def _toggle_series_region(self, on):
-        reg = getattr(self, "series_region", None)
-        if on and reg is None:
-            x = self.data.x
-            lo, hi = float(np.nanmin(x)), float(np.nanmax(x))
-            reg = pg.LinearRegionItem([lo + 0.3 * (hi - lo), lo + 0.5 * (hi - lo)], brush=(255, 140, 0, 60))
-            reg.setZValue(20)
-            self.plot.addItem(reg)
-            reg.sigRegionChangeFinished.connect(lambda *_: self.brush_series(*reg.getRegion(), final=True))
-            self.series_region = reg
-            self.brush_series(*reg.getRegion(), final=True)
-        elif not on and reg is not None:
-            self.plot.removeItem(reg)
-            self.series_region = None
+    @staticmethod
+    def op_of(modifiers) -> str:
+        """Shift adds, Alt or Ctrl removes, else the brush replaces the earlier ones."""
+        if modifiers & (QtCore.Qt.AltModifier | QtCore.Qt.ControlModifier):
+            return "remove"
+        if modifiers & QtCore.Qt.ShiftModifier:
+            return "add"
+        return "replace"
 
-    def _toggle_lasso(self, on):
-        if on and self.data is not None and self.data.is_map and self.lasso is None:
-            r = self._rect
-            cx, cy, w, h = r.center().x(), r.center().y(), r.width(), r.height()
-            pts = [(cx - 0.2 * w, cy), (cx, cy - 0.2 * h), (cx + 0.2 * w, cy), (cx, cy + 0.2 * h)]
-            self.lasso = pg.PolyLineROI(pts, closed=True, pen=pg.mkPen((255, 140, 0), width=2))
-            self.lasso.setZValue(20)
-            self.plot.addItem(self.lasso)
-            self.lasso.sigRegionChangeFinished.connect(lambda *_: self._lasso_moved())
-            self._lasso_moved()
-        elif not on and self.lasso is not None:
-            self.plot.removeItem(self.lasso)
-            self.lasso = None
+    def _to_axes(self, pos):
+        p = self.plot.getPlotItem().vb.mapSceneToView(self.plot.mapToScene(pos.toPoint()))
+        return float(p.x()), float(p.y())
 
-    def lasso_points(self):
-        """(k, 2) corners of the lasso in axis units."""
-        roi = self.lasso
-        return np.array([[p.x(), p.y()] for p in (roi.mapToParent(h.pos()) for h in roi.getHandles())])
+    def eventFilter(self, obj, ev):
+        if obj is not self.plot.viewport() or self.mode == "pan" or self.data is None:
+            return False
+        t = ev.type()
+        if t == QtCore.QEvent.MouseButtonPress and ev.button() == QtCore.Qt.LeftButton:
+            self._drag = [self._to_axes(ev.position())]
+            self._drag_px = ev.position()
+            self._drag_op = self.op_of(ev.modifiers())
+            return True
+        if t == QtCore.QEvent.MouseMove and self._drag is not None:
+            p = self._to_axes(ev.position())
+            if self.mode == "lasso":
+                self._drag.append(p)
+            else:
+                self._drag = [self._drag[0], p]
+            self._show_preview()
+            return True
+        if t == QtCore.QEvent.MouseButtonRelease and ev.button() == QtCore.Qt.LeftButton and self._drag is not None:
+            pts, self._drag = self._drag + [self._to_axes(ev.position())], None
+            self.preview.setData([], [])
+            moved = (ev.position() - self._drag_px).manhattanLength() > 3
+            if not moved:        # a click: pick the cell, as in Pan
+                self._pick_at(*pts[0])
+            else:
+                self._finish(pts, self._drag_op)
+            return True
+        return False
 
-    def brush_polygon(self, polygon, final=True):
+    def _show_preview(self):
+        pts = np.asarray(self._drag, float)
+        if self.mode == "rect" or not self.data.is_map:
+            (x0, y0), (x1, y1) = pts[0], pts[-1]
+            pts = np.array([[x0, y0], [x1, y0], [x1, y1], [x0, y1], [x0, y0]])
+        else:
+            pts = np.vstack([pts, pts[:1]])
+        self.preview.setData(pts[:, 0], pts[:, 1])
+
+    def _finish(self, pts, op):
+        pts = np.asarray(pts, float)
+        d = self.data
+        if not d.is_map:          # a series: the drag's span along the axis
+            self.brush_series(float(pts[0, 0]), float(pts[-1, 0]), op=op)
+        elif self.mode == "rect":
+            self.brush_rect(pts[0, 0], pts[-1, 0], pts[0, 1], pts[-1, 1], op=op)
+        elif len(pts) >= 3:
+            self.brush_polygon(pts, op=op)
+
+    def brush_polygon(self, polygon, final=True, op="replace"):
         """Brush the cells whose centres lie inside ``polygon`` (k, 2) (axis units)."""
-        d = self.data
-        self.selection.set_mask(polygon_mask(d.x, d.y, polygon), source="map", final=final)
+        self.selection.brush(Brush("polygon", polygon, op), source="map", final=final)
 
-    def _lasso_moved(self):
-        if self.lasso is not None:
-            self.brush_polygon(self.lasso_points(), final=True)
-
-    def brush_rect(self, x0, x1, y0, y1, final=True):
+    def brush_rect(self, x0, x1, y0, y1, final=True, op="replace"):
         """Brush the cells whose centres lie in [x0, x1] x [y0, y1] (axis units)."""
-        d = self.data
-        self.selection.set_mask(rect_mask(d.x, d.y, x0, x1, y0, y1), source="map", final=final)
+        self.selection.brush(Brush("rect", (x0, x1, y0, y1), op), source="map", final=final)
 
-    def _roi_moved(self, final):
-        if self.roi is None:
+    def brush_series(self, lo, hi, final=True, op="replace"):
+        """A series: brush the samples whose axis value lies in [lo, hi]."""
+        self.selection.brush(Brush("xrange", (lo, hi), op), source="series", final=final)
+
+    def clear_brushes(self):
+        self.selection.clear(source="map")
+
+    def _draw_shapes(self):
+        """Outlines of the kept rectangle and lasso brushes (dashed red: removing ones)."""
+        for it in self.shape_items:
+            self.plot.removeItem(it)
+        self.shape_items = []
+        d = self.data
+        if d is None or not d.is_map or self.selection.size != d.size:
             return
-        p, s = self.roi.pos(), self.roi.size()
-        self.brush_rect(p.x(), p.x() + s.x(), p.y(), p.y() + s.y(), final=final)
+        for b in self.selection.brushes:
+            if b.kind == "rect":
+                x0, x1, y0, y1 = b.shape
+                pts = np.array([[x0, y0], [x1, y0], [x1, y1], [x0, y1], [x0, y0]])
+            elif b.kind == "polygon":
+                pts = np.vstack([b.shape, b.shape[:1]])
+            else:
+                continue
+            pen = (pg.mkPen((170, 0, 0), width=2, style=QtCore.Qt.DashLine) if b.op == "remove"
+                   else pg.mkPen((255, 140, 0), width=2))
+            it = pg.PlotCurveItem(pts[:, 0], pts[:, 1], pen=pen)
+            it.setZValue(35)
+            self.plot.addItem(it)
+            self.shape_items.append(it)
 
     def _on_selection(self, sel, source, final):
         if self.data is None or not self.data.is_map or sel.size != self.data.size:
             return
+        if final:
+            self._draw_shapes()
         if not sel.active:
             self.overlay.clear()
             return
@@ -379,16 +427,20 @@ class MapView(QtWidgets.QWidget):
         self.overlay.setRect(QtCore.QRectF(0, 0, self.data.shape[1], self.data.shape[0]))
 
     def _clicked(self, ev):
-        d = self.data
-        if d is None or ev.button() != QtCore.Qt.LeftButton:
+        if self.data is None or ev.button() != QtCore.Qt.LeftButton:
             return
+        p = self.plot.getPlotItem().vb.mapSceneToView(ev.scenePos())
+        self._pick_at(p.x(), p.y())
+
+    def _pick_at(self, x, y):
+        """Pick the cell (or series sample) at axis point (x, y)."""
+        d = self.data
         if not d.is_map:   # a series: the sample nearest to the click along the axis
-            p = self.plot.getPlotItem().vb.mapSceneToView(ev.scenePos())
             ok = np.flatnonzero(d.done)
             if ok.size:
-                self.cell_picked.emit(int(ok[np.argmin(np.abs(d.x[ok] - p.x()))]))
+                self.cell_picked.emit(int(ok[np.argmin(np.abs(d.x[ok] - x))]))
             return
-        p = self.image.mapFromScene(ev.scenePos())
+        p = self.image.mapFromParent(QtCore.QPointF(x, y))
         i, j = int(np.floor(p.x())), int(np.floor(p.y()))
         if 0 <= i < d.shape[1] and 0 <= j < d.shape[0]:
             self.cell_picked.emit(j * d.shape[1] + i)
@@ -406,11 +458,9 @@ class HistogramView(QtWidgets.QWidget):
         lay = QtWidgets.QVBoxLayout(self)
         lay.setContentsMargins(0, 0, 0, 0)
         bar = QtWidgets.QHBoxLayout()
-        self.range_btn = QtWidgets.QPushButton("Brush value range")
-        self.range_btn.setCheckable(True)
-        self.range_btn.toggled.connect(self._toggle_region)
-        bar.addWidget(self.range_btn)
         self.info = QtWidgets.QLabel("")
+        self.info.setToolTip("Drag across the histogram to brush a value range; Shift adds, Alt/Ctrl "
+                             "removes; the right button and the wheel zoom")
         self.info.setWordWrap(True)
         self.info.setMinimumWidth(60)
         bar.addWidget(self.info, 1)
@@ -436,7 +486,14 @@ class HistogramView(QtWidgets.QWidget):
         self.thr_line = pg.InfiniteLine(angle=90, pen=pg.mkPen((200, 0, 0), style=QtCore.Qt.DashLine))
         self.plot.addItem(self.thr_line)
         self.thr_line.hide()
-        self.region = None
+        self.regions = []               # the kept value ranges of the measure shown
+        self._drag = None
+        self.preview = pg.LinearRegionItem([0, 0], movable=False, brush=(255, 140, 0, 40))
+        self.preview.setZValue(30)
+        self.preview.hide()
+        self.plot.addItem(self.preview)
+        self.plot.getPlotItem().vb.setMouseEnabled(x=False, y=False)
+        self.plot.viewport().installEventFilter(self)
         self.edges = np.linspace(0, 1, HIST_BINS + 1)
         self.bin_index = None
         self.sel_counts = np.zeros(HIST_BINS, dtype=np.int64)
@@ -453,8 +510,7 @@ class HistogramView(QtWidgets.QWidget):
     def set_result(self, data: ResultData, measure: str):
         self.data = data
         self.show_hint(False)
-        self._toggle_region(False)
-        self.range_btn.setChecked(False)
+        self.selection.bind(data, lambda m, d=data: display_values(d, m))
         self.set_measure(measure)
 
     def set_measure(self, measure, threshold=None):
@@ -483,38 +539,57 @@ class HistogramView(QtWidgets.QWidget):
             self.thr_line.setValue(t)
             self.thr_line.show()
 
-    def _toggle_region(self, on):
-        if on and self.region is None and self.data is not None:
-            a, b = self.edges[0], self.edges[-1]
-            self.region = pg.LinearRegionItem([a + 0.1 * (b - a), a + 0.3 * (b - a)],
-                                              brush=(255, 140, 0, 50))
-            self.region.setZValue(20)
-            self.plot.addItem(self.region)
-            self.region.sigRegionChanged.connect(lambda *_: self._region_moved(False))
-            self.region.sigRegionChangeFinished.connect(lambda *_: self._region_moved(True))
-            self._region_moved(True)
-        elif not on and self.region is not None:
-            self.plot.removeItem(self.region)
-            self.region = None
+    def _x_of(self, pos):
+        return float(self.plot.getPlotItem().vb.mapSceneToView(self.plot.mapToScene(pos.toPoint())).x())
 
-    def brush_range(self, lo, hi, final=True):
-        """Brush the cells whose shown value lies in [lo, hi]."""
-        v = display_values(self.data, self.measure)
-        self.selection.set_mask(range_mask(v, lo, hi), source="histogram", final=final)
+    def eventFilter(self, obj, ev):
+        """A left drag across the histogram brushes a value range (Shift adds, Alt/Ctrl removes)."""
+        if obj is not self.plot.viewport() or self.data is None:
+            return False
+        t = ev.type()
+        if t == QtCore.QEvent.MouseButtonPress and ev.button() == QtCore.Qt.LeftButton:
+            self._drag = [self._x_of(ev.position())] * 2
+            self._drag_op = MapView.op_of(ev.modifiers())
+            return True
+        if t == QtCore.QEvent.MouseMove and self._drag is not None:
+            self._drag[1] = self._x_of(ev.position())
+            self.preview.setRegion(sorted(self._drag))
+            self.preview.show()
+            return True
+        if t == QtCore.QEvent.MouseButtonRelease and ev.button() == QtCore.Qt.LeftButton and self._drag is not None:
+            self._drag[1] = self._x_of(ev.position())
+            lo, hi = sorted(self._drag)
+            self._drag = None
+            self.preview.hide()
+            if hi > lo:
+                self.brush_range(lo, hi, op=self._drag_op)
+            return True
+        return False
 
-    def _region_moved(self, final):
-        if self.region is None:
-            return
-        if not final:
-            return  # a value brush over 1e6 cells is cheap but the list and scene wait for release
-        lo, hi = self.region.getRegion()
-        self.brush_range(lo, hi, final=True)
+    def brush_range(self, lo, hi, final=True, op="replace"):
+        """Brush the cells whose shown value of the current measure lies in [lo, hi]."""
+        self.selection.brush(Brush("range", (lo, hi), op, measure=self.measure), source="histogram", final=final)
+
+    def _draw_ranges(self):
+        """The kept value ranges of the measure shown (ranges of other measures are not drawn
+        here: their cells are still counted in orange)."""
+        for r in self.regions:
+            self.plot.removeItem(r)
+        self.regions = []
+        for b in self.selection.brushes:
+            if b.kind == "range" and b.measure == self.measure:
+                reg = pg.LinearRegionItem(list(b.shape), movable=False,
+                                          brush=(170, 0, 0, 40) if b.op == "remove" else (255, 140, 0, 50))
+                reg.setZValue(20)
+                self.plot.addItem(reg)
+                self.regions.append(reg)
 
     def _on_selection(self, sel, source, final):
         if self.bin_index is None or sel.size != self.bin_index.size:
             return
         if not final and source != "histogram":
             return
+        self._draw_ranges()
         if sel.active:
             self.sel_counts = np.bincount(self.bin_index[sel.mask], minlength=HIST_BINS + 1)[:HIST_BINS]
         else:
@@ -706,7 +781,7 @@ class PoseListView(QtWidgets.QWidget):
         if not rows or self.model.data_ is None:
             return
         cells = self.model.order[np.asarray(rows)]
-        self.selection.set_mask(rows_mask(self.model.data_.size, cells), source="list", final=True)
+        self.selection.brush(Brush("cells", cells), source="list", final=True)
 
     def _on_selection(self, sel, source, final):
         if not final or self.model.data_ is None or sel.size != self.model.data_.size or source == "list":

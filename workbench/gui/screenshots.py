@@ -71,9 +71,9 @@ def main(argv=None):
 
     # brush a rectangle across the wrist-over-base band; ghosts show the poses; pick one
     mv = win.map_view
-    mv.brush_btn.setChecked(True)
-    mv.roi.setPos((-20, -60))
-    mv.roi.setSize((40, 35))
+    mv.set_mode("rect")
+    mv.brush_rect(-20, 20, -60, -25)
+    mv.brush_rect(40, 70, -95, -75, op="add")        # Shift + drag: a second rectangle
     _wait(app, lambda: True)
     m = win.pose_list.model
     col = next(k for k, c in enumerate(m.columns) if c[1] == ("m", "inverse_condition"))
@@ -83,7 +83,10 @@ def main(argv=None):
     win.result_tabs.setCurrentIndex(1)
     shots.append(_shot(app, win, out, "04_pose_list.png"))
     win.result_tabs.setCurrentIndex(0)
-    mv.brush_btn.setChecked(False)
+    win.resize(1024, 700)                       # the smallest layout the window is made for
+    shots.append(_shot(app, win, out, "10_small_window.png"))
+    win.resize(*SIZE)
+    mv.set_mode("pan")
     win.selection.clear()
 
     # a reach slice of the demo arm: reachable points of a plane and their best measures
@@ -116,8 +119,6 @@ def main(argv=None):
         d = win.result
         worst = int(np.nanargmin(np.where(d.done, d.measures["inverse_condition"], np.nan)))
         lo, hi = d.x[worst] - 0.08, d.x[worst] + 0.08
-        mv.brush_btn.setChecked(True)
-        mv.series_region.setRegion((lo, hi))
         mv.brush_series(lo, hi)
         win.pick_cell(worst)
         win.scene.set_view("iso")

@@ -6,7 +6,7 @@ import numpy as np
 import pyqtgraph as pg
 
 from .result_views import display_values, measure_label
-from .selection import range_mask
+
 
 __all__ = ["show_series", "near_spans"]
 
@@ -73,8 +73,4 @@ def show_series(view, data, threshold):
     if getattr(view, "picked", None) is not None and view.picked < data.size:
         view.mark_cell(view.picked)     # the ring follows the measure shown
 
-    def brush(lo, hi, final=True):
-        sel.set_mask(range_mask(x, lo, hi), source="series", final=final)
-
-    view.brush_series = brush
-    view.series_x = x
+    view.series_x = x     # brushing: MapView.brush_series (an "xrange" brush over data.x)

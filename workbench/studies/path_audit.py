@@ -22,6 +22,12 @@ estimate per path (table ``cycle_time``, :func:`workbench.studies.timing.time_pa
 joint speed and acceleration limits and the path's tool speed, rest to rest, dynamics neglected)
 against the path's required ``time``.
 
+Collisions (settings ``clearance``, ``collisions``; :mod:`workbench.studies.collide`): the first
+sample's branch is chosen among the clear solutions; every tracked pose's clearance and nearest
+pair are fields (``clearance``, ``clearance_pair``), samples below the setting are flagged
+COLLIDING (they keep their measures) and listed as spans in the table ``clearance_spans`` with the
+pair in words ("link 3 within 4 mm of box 'conveyor'").
+
 Summaries: the near-singular spans (inverse condition below ``near_singular``) with their path
 distances, the worst joint-speed ratio in them and a plain-words note
 (:func:`workbench.measures.explain_singularity`); the worst joint-speed ratio of every path and
@@ -38,6 +44,7 @@ import numpy as np
 
 from ..arm.transforms import inverse_transform, make_transform
 from ..measures import NEAR_SINGULAR as _NEAR_DEFAULT
+from . import collide
 from .base import MAX_SEEDS, Axis, Field, Plan, StudyError, StudyKind, Table, check_rows
 from ..limits import MAX_PATH_SAMPLES
 from .cell import sample_path
@@ -47,10 +54,11 @@ __all__ = ["PathAudit", "PathSettings", "track_path", "joint_speeds", "task_rows
 
 _DEG = math.pi / 180.0
 
-REACHED, FORCED, JUMP, NEAR_SINGULAR, OVER_SPEED = 1, 2, 4, 8, 16
+REACHED, FORCED, JUMP, NEAR_SINGULAR, OVER_SPEED, COLLIDING = 1, 2, 4, 8, 16, 32
 FLAGS = {REACHED: "reached", FORCED: "re-solved from several seeds (tracking lost)",
          JUMP: "large joint step from the previous sample (branch flip)",
-         NEAR_SINGULAR: "near singular", OVER_SPEED: "a joint would exceed its speed limit"}
+         NEAR_SINGULAR: "near singular", OVER_SPEED: "a joint would exceed its speed limit",
+         COLLIDING: "the tracked pose is closer than the clearance setting (fails the clearance requirement)"}
 
 
 @dataclass(frozen=True)
@@ -75,10 +83,11 @@ class PathSettings:
     seeds: int = 16
     mount: np.ndarray | None = None
     trajectories: tuple = ()
+    collisions: collide.CollisionSettings = collide.CollisionSettings(False)
 
 
 _KEYS = {"paths", "spacing", "rows", "length", "near_singular", "jump", "seeds", "mount_xyz", "mount_rpy",
-         "trajectories"}
+         "trajectories"} | collide.KEYS
 
 
 def _validate(settings: Mapping, arm, cell, where: str) -> PathSettings:
@@ -141,6 +150,7 @@ def _validate(settings: Mapping, arm, cell, where: str) -> PathSettings:
                 raise StudyError(f"{where} {key}: expected a list of 3 finite numbers (m / deg), got {v!r}")
         mount = make_transform(np.array(xyz, float), np.array(rpy, float) * _DEG)
     out["mount"] = mount
+    out["collisions"] = collide.collision_settings(settings, arm, where)
     return PathSettings(**out)
 
 
@@ -160,13 +170,15 @@ def _joint_step(arm, a, b):
     return float(np.max(np.abs(np.asarray(a) - np.asarray(b)))) if a is not None else 0.0
 
 
-def track_path(arm, targets, rule: str, seeds: int = 16, jump: float = 10 * _DEG, q_start=None):
+def track_path(arm, targets, rule: str, seeds: int = 16, jump: float = 10 * _DEG, q_start=None, clear=None):
     """Follow targets (N, 4, 4) (arm base frame) by continuation.
 
     Sample k starts from the solution of sample k-1 only; if that does not converge the sample is
     re-solved from ``seeds`` seeds plus the previous solution and the converged solution nearest
     to the previous one is kept (flag FORCED). Steps larger than ``jump`` (rad, largest joint
-    change) are flagged JUMP.
+    change) are flagged JUMP. ``clear`` (optional): a function of joint values (K, n) -> (K,) bool
+    (clearance at least the setting); the first sample's branch is then chosen among the clear
+    solutions (the most central of them) when there are any.
 
     Returns
     -------
@@ -187,13 +199,13 @@ def track_path(arm, targets, rule: str, seeds: int = 16, jump: float = 10 * _DEG
     threads = numba.get_num_threads()
     numba.set_num_threads(1)  # one target per call: a parallel region would only add wake-up cost
     try:
-        _track(arm, T, rule, seeds, jump, prev, q, flags, perr)
+        _track(arm, T, rule, seeds, jump, prev, q, flags, perr, clear)
     finally:
         numba.set_num_threads(threads)
     return q, flags, perr
 
 
-def _track(arm, T, rule, seeds, jump, prev, q, flags, perr):
+def _track(arm, T, rule, seeds, jump, prev, q, flags, perr, clear=None):
     from ..kinematics.ik import CONVERGED, solve_ik
 
     for k in range(T.shape[0]):
@@ -210,8 +222,11 @@ def _track(arm, T, rule, seeds, jump, prev, q, flags, perr):
                 cand = many.q[ok]
                 if prev is not None:
                     j = int(np.argmin(np.max(np.abs(cand - prev), axis=-1)))
-                else:
-                    j = int(np.argmax(arm.limit_margin(cand)))  # the start: the most central solution
+                else:  # the start: the most central solution (of the clear ones, if any)
+                    score = arm.limit_margin(cand)
+                    if clear is not None:
+                        score = np.where(clear(cand), score + 10.0, score)
+                    j = int(np.argmax(score))
                 qk, stat, pe = cand[j], CONVERGED, float(many.pos_err[ok][j])
             else:
                 j = int(np.argmin(many.pos_err))
@@ -399,6 +414,7 @@ class PathAudit(StudyKind):
             "mount": mount, "arm_model": arm.model,
             "requirements": [cell.requirements_for(path=p.name) for p in parts],
             "given": given,
+            "cell": cell, "result_attrs": collide.result_attrs(s.collisions),
         }
         n = arm.n
         fields = (
@@ -430,6 +446,16 @@ class PathAudit(StudyKind):
                       "smallest holding-torque margin (limit - |tau|) / limit (arm weight, payload, tool wrench)"),
                 Field("torque_joint", (), "int32", "", "joint (0-based) of the smallest torque margin", kind="other"),
                 Field("tau", (n,), "float64", "N m", "holding torques (arm weight, payload, tool wrench)",
+                      kind="other"),
+            )
+        if s.collisions.on:
+            from ..collision import pair_names
+
+            data["pair_names"] = [f"{a}|{b}" for a, b in pair_names(arm, cell)]
+            fields += (
+                Field("clearance", (), "float64", "m", "clearance (m) of the tracked pose (arm vs the cell's "
+                      "obstacles and its own links)"),
+                Field("clearance_pair", (), "int32", "", "nearest pair (index into the results' pair names)",
                       kind="other"),
             )
         axes = (Axis("sample", np.arange(N), "", "path sample"),)
@@ -508,7 +534,11 @@ def compute_audit_chunk(plan, arm, start, stop) -> dict:
         rule = d["rules"][p]
         given = d.get("given", {}).get(int(p))
         if given is None:
-            q, flags, perr = track_path(arm, d["targets"][p0:hi], rule, seeds=s.seeds, jump=s.jump)
+            clear = None
+            if s.collisions.on:
+                def clear(cand, _c=d.get("cell"), _m=d["mount"]):
+                    return collide.clear_of(arm, cand, _c, s.collisions, mounts=_m)[1]
+            q, flags, perr = track_path(arm, d["targets"][p0:hi], rule, seeds=s.seeds, jump=s.jump, clear=clear)
         else:  # a recorded joint trajectory: its own joint values, audited as they are
             q = given[1][: hi - p0]
             step = np.concatenate([[0.0], np.max(np.abs(np.diff(q, axis=0)), axis=1)]) if len(q) else np.zeros(0)
@@ -517,6 +547,16 @@ def compute_audit_chunk(plan, arm, start, stop) -> dict:
         lo = max(start, p0)
         sl = slice(lo - p0, hi - p0)
         qq, ff = q[sl], flags[sl]
+        if s.collisions.on:  # one batched call over the slice's tracked poses
+            from ..collision import nearest
+
+            dd, kk = nearest(arm, qq, d.get("cell"), mounts=d["mount"])
+            hit = ((ff & REACHED) > 0) & ~(dd >= s.collisions.clearance)
+            # the tracked branch still reaches the sample: its measures stay (a span can be near
+            # singular and colliding at once); the clearance requirement fails there
+            ff = np.where(hit, ff | COLLIDING, ff).astype(np.uint8)
+            out["clearance"][slice(lo - start, hi - start)] = dd
+            out["clearance_pair"][slice(lo - start, hi - start)] = kk
         a = audit_samples(arm, qq, d["twist"][lo:hi], rule, s, R_base)
         if given is not None:
             _rates_from_times(arm, given, sl, a, out, slice(lo - start, hi - start))
@@ -612,6 +652,8 @@ def summarise_audit(plan, arrays) -> dict:
         {"length": "mm", "tool_speed": "mm/s", "at": "mm"},
         "speed ratio = |joint speed needed| / joint speed limit (> 1: the tool speed cannot be kept)")
     tables["cycle_time"] = cycle_time_table(plan, arrays)
+    if s.collisions.on and "clearance" in arrays:
+        tables["clearance_spans"] = clearance_spans_table(plan, arrays)
     fl = np.flatnonzero(done & ((flags & JUMP) > 0))
     if len(fl):
         def before(k):  # the reached sample of the same path the flip came from
@@ -629,6 +671,39 @@ def summarise_audit(plan, arrays) -> dict:
                                 dtype=object)},
             {"at": "mm", "step": "deg"}, f"joint steps above {np.degrees(s.jump):g} deg")
     return tables
+
+
+def clearance_spans_table(plan, arrays) -> Table:
+    """Table ``clearance_spans``: runs of samples (within one path) whose tracked pose is closer
+    than the clearance setting, with the smallest clearance, where, and the pair named in words
+    ("link 3 within 4 mm of box 'conveyor'")."""
+    s = plan.settings
+    d = plan.data
+    dist = np.asarray(arrays["distance"], float)
+    pidx = np.asarray(arrays["path_index"])
+    clr = np.asarray(arrays["clearance"], float)
+    pair = np.asarray(arrays["clearance_pair"])
+    names = [tuple(x.split("|", 1)) for x in d.get("pair_names", [])]
+    done = np.isfinite(dist)
+    with np.errstate(invalid="ignore"):
+        low = done & (clr < s.collisions.clearance)
+    spans = near_singular_spans(dist, np.where(low, -1.0, 1.0), 0.0, pidx)
+    rows = {"path": [], "from": [], "to": [], "min_clearance": [], "at": [], "pair": [], "note": []}
+    for a, b in spans:
+        k = a + int(np.argmin(clr[a:b]))
+        pr = names[int(pair[k])] if 0 <= int(pair[k]) < len(names) else ("arm", "obstacle")
+        rows["path"].append(d["names"][pidx[a]])
+        rows["from"].append(dist[a] * 1000)
+        rows["to"].append(dist[b - 1] * 1000)
+        rows["min_clearance"].append(clr[k] * 1000)
+        rows["at"].append(dist[k] * 1000)
+        rows["pair"].append(f"{pr[0]} - {pr[1]}")
+        rows["note"].append(collide.span_sentence(pr, float(clr[k])))
+    return Table("Spans closer than the clearance setting",
+                 {k: _col(v, k in ("path", "pair", "note")) for k, v in rows.items()},
+                 {"from": "mm", "to": "mm", "min_clearance": "mm", "at": "mm"},
+                 f"samples whose tracked pose has less than {s.collisions.clearance * 1000:g} mm clearance "
+                 f"(flag 32: they fail the clearance requirement)")
 
 
 def cycle_time_table(plan, arrays) -> Table:
