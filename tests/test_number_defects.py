@@ -109,8 +109,10 @@ def test_mount_search_refine_zero_keeps_the_best_grid_candidate():
     M = mount_transforms(rank["x"][0] / 1000, rank["y"][0] / 1000, rank["height"][0] / 1000,
                          math.radians(rank["yaw"][0]), 0.0)[None]
     ev = evaluate_mounts(arm, M, cell.points, plan.settings, choose="best")
-    sc = score_candidates(ev["reached"], ev["measure"], ev["margin"], plan.settings)
+    sc = score_candidates(ev["reached"], ev["measure"], ev["margin"], plan.settings, torque=ev["torque_margin"],
+                          clearance=ev["clearance"])
     assert sc["score"][0] == pytest.approx(rank["score"][0], rel=1e-9)
+    assert sc["rank_value"][0] == pytest.approx(rank["rank_value"][0], rel=1e-12)
     assert best["reached"].tolist() == ev["reached"][0].astype(int).tolist()
     assert np.allclose(best["measure"], ev["measure"][0], rtol=1e-6, atol=1e-9)
 

@@ -205,7 +205,7 @@ class Recommendation:
         out = [("x", f"{fmt_mm(self.x)} mm"), ("y", f"{fmt_mm(self.y)} mm"), ("height", f"{fmt_mm(self.height)} mm"),
                ("yaw", f"{fmt_deg(self.yaw)} deg"), ("style", self.style)]
         if self.score is not None:
-            out.append(("rank value", fmt_number(self.score, 4)))
+            out.append(("rank value", fmt_number(self.score, 6)))
         return out
 
 
@@ -414,7 +414,8 @@ def collision_status(results, arm=None) -> tuple:
                              f"between the arm and the cell's obstacles and between its own links.")
     if settings.get("collisions", None) is False:
         return False, None, "Collisions not checked: switched off in the study settings (collisions = false)."
-    if arm is not None and arm_shapes(arm.model) is None:
+    stated = str(results.attrs.get("collisions", ""))
+    if "no collision shapes" in stated or (arm is not None and arm_shapes(arm.model) is None):
         return False, None, ("Collisions not checked: the arm has no collision shapes, so links may pass through "
                              "equipment, keep-out zones or the floor.")
     return False, None, "Collisions not checked: these results hold no clearance values."
@@ -517,6 +518,18 @@ def _not_checked(key, requirement, reason, threshold="-"):
     return Verdict(key, requirement, threshold, "-", "-", NOT_CHECKED, reason)
 
 
+def _map_clearance(r):
+    """(values, where) of a map's ``clearance`` field over its reached cells (status bit 1 of the
+    ``status`` or ``reached`` field), or (None, []) when the results hold none."""
+    if "clearance" not in r.arrays:
+        return None, []
+    c = np.asarray(r.arrays["clearance"], float).reshape(-1)
+    st = r.arrays.get("status", r.arrays.get("reached"))
+    if st is not None:
+        c = np.where((np.asarray(st).reshape(-1).astype(np.int64) & 1) > 0, c, np.nan)
+    return c, []
+
+
 def _clearance_verdict(ctx, values, where, checked, asked, sentence):
     """Clearance >= the asked clearance, or not checked with the reason."""
     if values is None or not checked:
@@ -578,9 +591,16 @@ def _mount_decision(ctx: _Ctx) -> Decision:
     src = None
     if recd is not None and recd.rows:
         c, row = recd.columns, 0
-        src = ("the mount search's recommended mount (table 'Recommended mount': "
-               + ("the best refined mount rounded to 1 mm and 0.1 deg" if str(_s(c["source"][0])) == "refined"
-                  else "the best grid cell") + ")")
+        if str(_s(c["source"][0])) == "refined":
+            src = ("the mount search's recommended mount (table 'Recommended mount'): the best refined mount, "
+                   "rounded to 1 mm and 0.1 deg and scored there; refined off the grid from the grid cell "
+                   f"x = {fmt_number(float(c['grid_x'][0]), 6)} mm, y = {fmt_number(float(c['grid_y'][0]), 6)} mm, "
+                   f"yaw {fmt_number(float(c['grid_yaw'][0]), 4)} deg (rank value "
+                   f"{fmt_number(float(c['grid_rank_value'][0]), 6)}"
+                   + (", the map's best cell)" if int(c["map_best"][0]) else ", not the map's best cell: its "
+                      "refinement ended higher than the best cell's)"))
+        else:
+            src = "the mount search's recommended mount (table 'Recommended mount'): the best grid cell"
     elif ref is not None:
         c, row, src = ref.columns, 0, f"refined mount 1 of {ref.rows} of the mount search (table 'Refined mounts')"
     elif rank is not None:
@@ -710,7 +730,9 @@ def _mount_decision(ctx: _Ctx) -> Decision:
     served = int(reached.sum())
     fails = [v for v in verdicts if v.status == FAIL]
     answer = (f"Mount the base on the {style} at x = {fmt_mm(x)} mm, y = {fmt_mm(y)} mm, height {fmt_mm(h)} mm, "
-              f"yaw {fmt_deg(yaw)} deg (cell frame). From there it serves {served} of {P} work points; "
+              f"yaw {fmt_deg(yaw)} deg (cell frame). From there it serves {served} of {P} work points"
+              + (f" (rank value {fmt_number(score, 6)}: points served first, then quality)" if "rank_value" in c else "")
+              + "; "
               + (f"{len(fails)} requirement{'s' if len(fails) > 1 else ''} fail{'s' if len(fails) == 1 else ''} "
                  f"({', '.join(v.requirement.split(' (')[0].lower() for v in fails)})." if fails else
                  "every checked requirement passes."))
@@ -1132,7 +1154,7 @@ def _load_decision(ctx: _Ctx) -> Decision:
         verdicts.append(Verdict("own_load", "The arm holds its own weight (gravity torque / limit)", "≤ 1",
                                 fmt_number(omax), where_of(ko), PASS if omax <= 1 else FAIL, "", omax, 1.0, "",
                                 "lower"))
-    verdicts.append(_clearance_verdict(ctx, None, [], checked, asked, coll))
+    verdicts.append(_clearance_verdict(ctx, *_map_clearance(r), checked, asked, coll))
 
     risks = []
     if k is not None:
@@ -1263,7 +1285,7 @@ def _generic_decision(ctx: _Ctx) -> Decision:
         verdicts.append(Verdict("reached", "Slice points reached (information)", "-",
                                 f"{int(rr.sum())} of {rr.size} ({fmt_percent(rr.mean(), 0)})", "-", NOT_CHECKED,
                                 "the slice is a survey, not a requirement", float(rr.sum()), None))
-    verdicts.append(_clearance_verdict(ctx, None, [], checked, asked, coll))
+    verdicts.append(_clearance_verdict(ctx, *_map_clearance(r), checked, asked, coll))
     top, rest = _rank_risks(risks)
     answer = (f"The base stands as in the arm file (x = {fmt_mm(x)} mm, y = {fmt_mm(y)} mm, height {fmt_mm(h)} mm, "
               f"yaw {fmt_deg(yaw)} deg). ")

@@ -173,7 +173,14 @@ def test_recommended_values_are_reproduced_by_the_per_point_table(small_cell_res
     s = r.plan.settings if r.plan is not None else MountSettings()
     bp = r.tables["best_points"].columns
     reached = np.asarray(bp["reached"]).astype(bool)[None]
-    sc = score_candidates(reached, np.asarray(bp["measure"], float)[None], np.asarray(bp["margin"], float)[None], s)
+    clear = np.asarray(bp["clearance"], float)[None] / 1000 if "clearance" in bp else None  # mm -> m
+    sc = score_candidates(reached, np.asarray(bp["measure"], float)[None], np.asarray(bp["margin"], float)[None], s,
+                          clearance=clear)
+    if clear is not None:  # the clearance factor min(1, c / 100 mm)^0.5 is part of the quality
+        q0 = score_candidates(reached, np.asarray(bp["measure"], float)[None],
+                              np.asarray(bp["margin"], float)[None], s)["score"][0]
+        c = np.nanmin(np.where(reached[0], clear[0], np.nan))
+        assert sc["score"][0] == pytest.approx(q0 * min(1.0, c / 0.1) ** 0.5, rel=1e-12)
     rec = r.tables["recommended"].columns
     assert sc["rank_value"][0] == pytest.approx(float(rec["rank_value"][0]), rel=1e-9)
 

@@ -26,7 +26,7 @@ KIND_TITLES = {"mount_search": "Mount search", "path_audit": "Path audit", "load
 #: human names of results-table columns (units come from the table)
 COLUMN_LABELS = {
     "rank": "rank", "reached": "work points reached", "worst_measure": "worst measure",
-    "min_margin": "smallest limit margin", "map_score": "map score (first solution)", "score": "score",
+    "min_margin": "smallest limit margin", "map_score": "map score (first solution)", "score": "quality Q",
     "grid_score": "score on the grid", "evaluations": "evaluations", "point": "work point", "measure": "measure",
     "margin": "limit margin", "path": "path", "from": "from", "to": "to",
     "min_inverse_condition": "lowest inverse condition", "at": "at", "worst_speed_ratio": "worst speed needed / limit",
@@ -37,7 +37,9 @@ COLUMN_LABELS = {
     "cannot_hold_itself": "points where the arm cannot hold itself", "cells": "grid points",
     "inverse_condition": "inverse condition", "min_sv": "minimum singular value", "manipulability": "manipulability",
     "condition": "condition number", "reached_fraction": "fraction reached", "offset": "offset",
-    "worst_score": "worst score", "score_drop": "score lost", "nominal_score": "score at the mount",
+    "worst_score": "worst quality", "score_drop": "quality lost", "nominal_score": "quality at the mount",
+    "rank_value": "rank value", "served": "work points served", "grid_rank_value": "rank value on the grid",
+    "grid_x": "from grid x", "grid_y": "from grid y", "grid_yaw": "from grid yaw", "points_lost": "work points lost",
 }
 
 
@@ -47,6 +49,10 @@ def human(name: str) -> str:
     if name.startswith("q_"):
         return name[2:]
     return COLUMN_LABELS.get(name, name.replace("_", " "))
+
+
+#: columns shown with 6 significant digits (the rank value's fraction is the quality)
+WIDE_COLUMNS = {"rank_value", "grid_rank_value"}
 
 
 def cell_text(v, unit="") -> str:
@@ -91,7 +97,8 @@ def results_table(t, caption=None, max_rows=40, skip=(), labels=None, numeric_ri
     header = [labels.get(c) or header_text(c, t.units.get(c, "")) for c in cols]
     n = t.rows
     k = min(n, max_rows)
-    rows = [[cell_text(t.columns[c][i], t.units.get(c, "")) for c in cols] for i in range(k)]
+    rows = [[fmt_number(float(t.columns[c][i]), 6) if c in WIDE_COLUMNS else cell_text(t.columns[c][i], t.units.get(c, ""))
+             for c in cols] for i in range(k)]
     align = []
     for c in cols:
         v = t.columns[c]
@@ -474,20 +481,32 @@ def _mount_doc(r, dec, csv_name, progress) -> D.Document:
         -1, *score.shape[-2:])[0]
     recm = recommended_mount(r)
     extra, where_from = [], ""
+    fin = np.isfinite(best)
+    top = float(np.nanmax(best)) if fin.any() else 0.0
+    k_top = math.floor(top) if rank_name == "rank_value" else 0
     if recm is not None and recm.get("source") == "refined" and "grid_x" in recm:
-        extra = [(recm["grid_x"], recm["grid_y"],
-                  "grid cell it was refined from" + ("" if recm["map_best"] else " (not the map's best)"))]
+        extra = [(recm["grid_x"], recm["grid_y"], "grid cell it was refined from", "s")]
         where_from = (f" The ranking refines the best grid cells off the grid: the recommended mount "
-                      f"({fmt_mm(rec.x)}, {fmt_mm(rec.y)} mm, rank value {fmt_number(recm['rank_value'], 4)}) comes from "
+                      f"({fmt_mm(rec.x)}, {fmt_mm(rec.y)} mm, rank value {fmt_number(recm['rank_value'], 6)}) comes from "
                       f"the grid cell ({fmt_mm(recm['grid_x'])}, {fmt_mm(recm['grid_y'])} mm, square; rank value "
-                      f"{fmt_number(recm['grid_rank_value'], 4)})"
-                      + (", the map's best cell." if recm["map_best"] else
-                         ", which is not the map's best cell: its refinement ended higher than that of the best cell."))
+                      f"{fmt_number(recm['grid_rank_value'], 6)})")
+        if recm["map_best"]:
+            where_from += ", the map's best cell."
+        else:
+            k = np.unravel_index(int(np.nanargmax(np.where(fin, best, -np.inf))), best.shape)
+            bx, by = float(ax["x"].values[k[1]]), float(ax["y"].values[k[0]])
+            extra.append((bx, by, "map's best cell (grid rank 1)", "D"))
+            where_from += (f"; the map's best cell ({fmt_mm(bx)}, {fmt_mm(by)} mm, diamond; rank value "
+                           f"{fmt_number(top, 6)}) refined to less.")
+    under = None
     if rank_name == "rank_value":
-        title, label = "Ranking value over the floor", "rank value (best over yaw, height and style)"
+        title, label = "Rank value over the floor", f"rank value {k_top} + Q / (1 + Q) (best over yaw, height, style)"
+        if fin.any() and (best[fin] < k_top).any():
+            under = ("#d9d9d9", f"fewer than {k_top} work points served")
         caption = ("Rank value over the candidate positions, the best over yaw, height and style: the value the "
                    "ranking sorts (whole part: work points served; fraction: the quality Q as Q / (1 + Q)), from the "
-                   "same IK solutions; the star is the recommended mount." + where_from + " "
+                   f"same IK solutions. The colours span the positions serving the most points ({k_top}); grey: "
+                   "fewer (the next map shows how many). The star is the recommended mount." + where_from + " "
                    + _s(r.field(rank_name).description))
     else:  # older results files
         title, label = "Mount score over the floor", "map score (best over yaw, height and style)"
@@ -499,7 +518,9 @@ def _mount_doc(r, dec, csv_name, progress) -> D.Document:
     body.append(D.Figure(G.map_figure(best, ax_x, ax_y, label, cell=dec.cell, draw_floor=True, mark=mark,
                                       mark_label=(f"recommended mount ({fmt_mm(rec.x)}, {fmt_mm(rec.y)} mm)"
                                                   if mark else ""), extra_marks=extra,
-                                      vmin=0.0 if rank_name == "rank_value" else None),
+                                      vmin=float(k_top) if under is not None else None,
+                                      vmax=top if rank_name == "rank_value" and top > k_top else None,
+                                      under=under),
                          caption))
     bestf = np.nanmax(reached.reshape(-1, *reached.shape[-2:]), axis=0) * 100
     body.append(D.Heading("Work points reached", 2))
@@ -508,6 +529,7 @@ def _mount_doc(r, dec, csv_name, progress) -> D.Document:
                          "Share of the work points reached from each position, the best over yaw, height and style."))
     S, H, Y = score.shape[:3]
     vmax = float(np.nanmax(score)) if np.isfinite(score).any() else 1.0
+    vmin_sm = float(k_top) if rank_name == "rank_value" else 0.0
     yaws = ax["yaw"].values
     heights = ax["height"].values
     for si in range(S):
@@ -521,10 +543,12 @@ def _mount_doc(r, dec, csv_name, progress) -> D.Document:
         body.append(D.Heading(title, 2))
         body.append(D.Figure(G.small_multiples(score[si], ax_x, ax_y, [f"height {fmt_mm(h)} mm" for h in heights],
                                                [f"yaw {fmt_deg(y, 0)} deg" for y in yaws],
-                                               "rank value" if rank_name == "rank_value" else "map score", 0.0, vmax,
-                                               mark_cell=mc),
+                                               "rank value" if rank_name == "rank_value" else "map score", vmin_sm,
+                                               vmax, mark_cell=mc, under="#d9d9d9" if rank_name == "rank_value" else None),
                              ("Rank value" if rank_name == "rank_value" else "Map score") +
-                             " per base yaw (columns) and height (rows), x and y in mm, one colour scale; "
+                             " per base yaw (columns) and height (rows), x and y in mm, one colour scale"
+                             + (f" over the positions serving {k_top} work points (grey: fewer)"
+                                if rank_name == "rank_value" else "") + "; "
                              "the star marks the grid panel nearest the recommended mount's yaw and height."))
     sens = r.tables.get("sensitivity")
     if sens is not None and sens.rows:
@@ -535,13 +559,15 @@ def _mount_doc(r, dec, csv_name, progress) -> D.Document:
         nom = float(np.asarray(sens.columns["nominal_score"], float)[0])
         pct = 100 * drop / nom if nom > 0 else drop * 0
         body.append(D.Figure(G.sensitivity_figure(kinds, off, pct),
-                             f"Score lost when the recommended mount (score {fmt_number(nom)}) is placed off: the worst "
-                             f"of the moves along ±x and ±y, or of the turns ±yaw."))
+                             f"Quality lost when the recommended mount (quality Q = {fmt_number(nom)}) is placed off: the "
+                             f"worst (lowest rank value) of the moves along ±x and ±y, or of the turns ±yaw."))
+        lost = (np.asarray(sens.columns["points_lost"], float) if "points_lost" in sens.columns
+                else np.zeros(len(off)))
         rows = [["moved" if k == "position" else "turned", f"{fmt_number(o)} {'mm' if k == 'position' else 'deg'}",
-                 fmt_number(w), fmt_percent(max(p, 0) / 100)] for k, o, w, p in
-                zip(kinds, off, np.asarray(sens.columns["worst_score"], float), pct)]
-        body.append(D.Table(["base", "by", "worst score", "score lost"], rows, "Sensitivity of the recommended mount",
-                            align=["l", "r", "r", "r"]))
+                 fmt_number(w), fmt_percent(max(p, 0) / 100), f"{int(n)}"] for k, o, w, p, n in
+                zip(kinds, off, np.asarray(sens.columns["worst_score"], float), pct, lost)]
+        body.append(D.Table(["base", "by", "worst quality", "quality lost", "work points lost"], rows,
+                            "Sensitivity of the recommended mount", align=["l", "r", "r", "r", "r"]))
     # 4 candidates
     progress(0.55, "tables")
     body.append(D.Heading("Candidates"))

@@ -369,7 +369,7 @@ def axis_label(axis) -> str:
 
 
 def map_figure(Z, ax_x, ax_y, label, *, cell=None, draw_floor=False, mark=None, mark_label="", vmin=None,
-               vmax=None, cmap="viridis", height=3.9, categories=None, title="", extra_marks=()):
+               vmax=None, cmap="viridis", height=3.9, categories=None, title="", extra_marks=(), under=None):
     """A heat map with its colour bar beside it (never over it).
 
     Parameters
@@ -380,8 +380,11 @@ def map_figure(Z, ax_x, ax_y, label, *, cell=None, draw_floor=False, mark=None, 
         Colour bar label (with unit).
     mark : (x, y) in SI, optional
         Marked with a star (the recommendation) and labelled ``mark_label`` in the legend.
-    extra_marks : sequence of (x, y, label) in SI
-        Marked with open squares (e.g. the grid cell the recommendation was refined from).
+    extra_marks : sequence of (x, y, label) or (x, y, label, marker) in SI
+        Marked with open symbols (default a square; e.g. the grid cell the recommendation was
+        refined from).
+    under : (colour, label), optional
+        Values below ``vmin`` drawn in this colour (a colour-bar extension), named in the legend.
     categories : list of str, optional
         Discrete values 0..k-1 (colour bar ticks named).
     """
@@ -405,6 +408,11 @@ def map_figure(Z, ax_x, ax_y, label, *, cell=None, draw_floor=False, mark=None, 
     hi = vmax if vmax is not None else (float(np.nanmax(Z)) if fin.any() else 1.0)
     if hi <= lo:
         hi = lo + 1.0
+    if under is not None:
+        import matplotlib
+
+        cmap = (matplotlib.colormaps[cmap] if isinstance(cmap, str) else cmap).with_extremes(under=under[0])
+        extend = "min" if extend == "neither" else "both"
     im = ax.imshow(np.ma.masked_invalid(Z), origin="lower", extent=_extent(ax_x, ax_y, sx, sy), aspect="auto",
                    cmap=cmap, interpolation="nearest", vmin=lo, vmax=hi)
     cb = fig.colorbar(im, ax=ax, extend=extend, shrink=0.9, pad=0.02)
@@ -422,25 +430,36 @@ def map_figure(Z, ax_x, ax_y, label, *, cell=None, draw_floor=False, mark=None, 
         ax.set_xlim(_extent(ax_x, ax_y, sx, sy)[:2])
         ax.set_ylim(_extent(ax_x, ax_y, sx, sy)[2:])
         ax.set_aspect("equal", adjustable="box")
-    for ex, ey, elabel in extra_marks or ():
-        ax.plot([ex * sx], [ey * sy], marker="s", ms=8, mec="k", mfc="none", mew=1.3, ls="none", label=elabel,
-                zorder=8)
+    for em in extra_marks or ():
+        ax.plot([em[0] * sx], [em[1] * sy], marker=em[3] if len(em) > 3 else "s", ms=8, mec="k", mfc="none",
+                mew=1.3, ls="none", label=em[2], zorder=8)
     if mark is not None:
         ax.plot([mark[0] * sx], [mark[1] * sy], marker="*", ms=14, mec="k", mfc="white", ls="none",
                 label=mark_label or "recommended", zorder=9)
-    if mark is not None or extra_marks:
-        ax.legend(loc="upper right", fontsize=FONT - 1, framealpha=0.85)
+    handles = [ln for ln in ax.lines if not ln.get_label().startswith("_") and ln.get_marker() in ("*", "s", "D")]
+    if under is not None and (Z[fin] < lo).any():
+        from matplotlib.patches import Patch
+
+        handles.append(Patch(facecolor=under[0], edgecolor="0.5", label=under[1]))
+    if handles:
+        ax.legend(handles=handles, loc="upper right", fontsize=FONT - 1, framealpha=0.85)
     if (~fin).any() and fin.any():
         ax.set_facecolor("#f2f2f2")
     _style(ax)
     return fig
 
 
-def small_multiples(Zs, ax_x, ax_y, row_labels, col_labels, label, vmin, vmax, mark_cell=None):
+def small_multiples(Zs, ax_x, ax_y, row_labels, col_labels, label, vmin, vmax, mark_cell=None, under=None):
     """A grid of maps on one colour scale with one colour bar at the right (its own column).
 
-    Zs : (rows, cols, ny, nx); mark_cell : (row, col, x, y) to star, optional.
+    Zs : (rows, cols, ny, nx); mark_cell : (row, col, x, y) to star, optional; under : colour of
+    values below ``vmin`` (a colour-bar extension), optional.
     """
+    import matplotlib
+
+    cmap = matplotlib.colormaps["viridis"]
+    if under is not None:
+        cmap = cmap.with_extremes(under=under)
     R, C = Zs.shape[:2]
     cols = min(C, 4)
     blocks = math.ceil(C / cols)
@@ -459,7 +478,7 @@ def small_multiples(Zs, ax_x, ax_y, row_labels, col_labels, label, vmin, vmax, m
                     a.axis("off")
                     continue
                 im = a.imshow(np.ma.masked_invalid(Zs[r, c]), origin="lower", extent=ext, aspect="auto",
-                              cmap="viridis", vmin=vmin, vmax=vmax, interpolation="nearest")
+                              cmap=cmap, vmin=vmin, vmax=vmax, interpolation="nearest")
                 a.set_title(f"{col_labels[c]}, {row_labels[r]}", fontsize=FONT - 1.5, pad=2)
                 a.tick_params(labelsize=FONT - 2.5)
                 if mark_cell is not None and mark_cell[0] == r and mark_cell[1] == c:
@@ -468,7 +487,8 @@ def small_multiples(Zs, ax_x, ax_y, row_labels, col_labels, label, vmin, vmax, m
                     a.set_ylabel(f"y (mm)", fontsize=FONT - 1.5)
                 if bi * R + r == R * blocks - 1 or (bi == blocks - 1 and r == R - 1):
                     a.set_xlabel("x (mm)", fontsize=FONT - 1.5)
-    cb = fig.colorbar(im, ax=axs, shrink=0.6, pad=0.01, location="right")
+    cb = fig.colorbar(im, ax=axs, shrink=0.6, pad=0.01, location="right",
+                      extend="min" if under is not None else "neither")
     cb.set_label(label, fontsize=FONT)
     cb.ax.tick_params(labelsize=FONT - 1)
     return fig
@@ -482,7 +502,7 @@ def sensitivity_figure(kinds, offsets, drops_pct):
         m = kinds == kind
         vals = np.where(np.abs(drops_pct[m]) < 1e-4, 0.0, drops_pct[m])
         a.bar([f"{v:g} {unit}" for v in offsets[m]], vals, color="#e67e22", width=0.5)
-        a.set_ylabel("score lost (%)")
+        a.set_ylabel("quality lost (%)")
         a.set_ylim(0, max(1.0, 1.15 * float(np.nanmax(drops_pct)) if np.isfinite(drops_pct).any() else 1.0))
         a.set_xlabel("base moved by" if kind == "position" else "base turned by")
         a.axhline(0, color="k", lw=0.5)
