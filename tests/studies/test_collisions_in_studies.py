@@ -386,3 +386,24 @@ def test_workbench_run_warns_when_the_arm_has_no_shapes(tmp_path):
 
     checked, _asked, sentence = collision_status(r)
     assert not checked and "the arm has no collision shapes" in sentence  # from the results' note alone
+
+
+def test_reach_slice_with_collisions_does_not_depend_on_the_chunking():
+    from workbench.studies.reach_slice import COLLIDING, ReachSlice
+
+    arm = arm_2r()
+    text = f"[cell]\nname = \"c\"\nfloor = false\n[[point]]\nname = \"p\"\nxyz = [1.5, 0, 0.5]\n{_elbow_boxes(1)}"
+    cell = parse_cell_text(text, "c.toml")
+    st = {"grid": "plane", "plane": "xy", "at": 0.5, "u": [0.3, 1.9], "v": [-0.9, 0.9], "steps": [9, 7],
+          "orientation": "free", "seeds": 2, "rows": ["vx", "vy"], "best": "manipulability"}
+    kind = ReachSlice()
+    plan = kind.plan(StudySpec(kind="reach_slice", arm="2r", cell="c.toml", settings=st), arm, cell)
+    whole = kind.compute_chunk(plan, arm, cell, Chunk(0, 0, plan.cells))
+    small = plan.with_chunk_cells(4)
+    parts = [kind.compute_chunk(small, arm, cell, c) for c in small.chunks]
+    for key in ("status", "q", "clearance", "solutions"):
+        np.testing.assert_array_equal(np.concatenate([p[key] for p in parts]), whole[key])
+    # the grid holds (1.5, 0): the box leaves it the elbow-down solution only (as above)
+    k = int(np.argmin(np.linalg.norm(whole["target"] - [1.5, 0, 0.5], axis=1)))
+    assert np.allclose(whole["target"][k], [1.5, 0, 0.5]) and whole["solutions"][k] == 1
+    assert not whole["status"][k] & COLLIDING
