@@ -414,7 +414,8 @@ def collision_status(results, arm=None) -> tuple:
                              f"between the arm and the cell's obstacles and between its own links.")
     if settings.get("collisions", None) is False:
         return False, None, "Collisions not checked: switched off in the study settings (collisions = false)."
-    if arm is not None and arm_shapes(arm.model) is None:
+    stated = str(results.attrs.get("collisions", ""))
+    if "no collision shapes" in stated or (arm is not None and arm_shapes(arm.model) is None):
         return False, None, ("Collisions not checked: the arm has no collision shapes, so links may pass through "
                              "equipment, keep-out zones or the floor.")
     return False, None, "Collisions not checked: these results hold no clearance values."
@@ -515,6 +516,18 @@ def _verdict_from_values(key, requirement, values, where, limit, better="higher"
 
 def _not_checked(key, requirement, reason, threshold="-"):
     return Verdict(key, requirement, threshold, "-", "-", NOT_CHECKED, reason)
+
+
+def _map_clearance(r):
+    """(values, where) of a map's ``clearance`` field over its reached cells (status bit 1 of the
+    ``status`` or ``reached`` field), or (None, []) when the results hold none."""
+    if "clearance" not in r.arrays:
+        return None, []
+    c = np.asarray(r.arrays["clearance"], float).reshape(-1)
+    st = r.arrays.get("status", r.arrays.get("reached"))
+    if st is not None:
+        c = np.where((np.asarray(st).reshape(-1).astype(np.int64) & 1) > 0, c, np.nan)
+    return c, []
 
 
 def _clearance_verdict(ctx, values, where, checked, asked, sentence):
@@ -1141,7 +1154,7 @@ def _load_decision(ctx: _Ctx) -> Decision:
         verdicts.append(Verdict("own_load", "The arm holds its own weight (gravity torque / limit)", "≤ 1",
                                 fmt_number(omax), where_of(ko), PASS if omax <= 1 else FAIL, "", omax, 1.0, "",
                                 "lower"))
-    verdicts.append(_clearance_verdict(ctx, None, [], checked, asked, coll))
+    verdicts.append(_clearance_verdict(ctx, *_map_clearance(r), checked, asked, coll))
 
     risks = []
     if k is not None:
@@ -1272,7 +1285,7 @@ def _generic_decision(ctx: _Ctx) -> Decision:
         verdicts.append(Verdict("reached", "Slice points reached (information)", "-",
                                 f"{int(rr.sum())} of {rr.size} ({fmt_percent(rr.mean(), 0)})", "-", NOT_CHECKED,
                                 "the slice is a survey, not a requirement", float(rr.sum()), None))
-    verdicts.append(_clearance_verdict(ctx, None, [], checked, asked, coll))
+    verdicts.append(_clearance_verdict(ctx, *_map_clearance(r), checked, asked, coll))
     top, rest = _rank_risks(risks)
     answer = (f"The base stands as in the arm file (x = {fmt_mm(x)} mm, y = {fmt_mm(y)} mm, height {fmt_mm(h)} mm, "
               f"yaw {fmt_deg(yaw)} deg). ")

@@ -28,6 +28,7 @@ from __future__ import annotations
 
 import json
 import math
+import sys
 import os
 import tempfile
 import time
@@ -378,9 +379,20 @@ class ResultsWriter(_WriterBase):
             # no chunk cache: every finished chunk is compressed and written at once by the writer
             # thread (overlapping compute) instead of piling up for a long flush at close
             self.h5 = h5py.File(self.tmp, "w", rdcc_nbytes=0)
+            self._fd = _vfd_handle(self.h5)
         except OSError as exc:
             self.abort()  # HDF5 may have created the file before failing
             raise ResultsError(f"--out {path}: cannot create a file in {folder or '.'} ({_os_reason(exc)})") from None
+        # the disk space of the whole file is reserved before anything is written, so a disk that
+        # fills up during the run (another program writing) cannot make HDF5 fail half-way
+        self.reserved = reserve_bytes(plan) + sum(len(t.encode('utf-8')) for t in (self.study_text, self.arm_text, self.cell_text)
+                                                  if isinstance(t, str))
+        err = _reserve(self._fd, self.reserved)
+        if err:
+            self.abort()
+            raise ResultsError(f"--out {path}: the disk is full ({os.strerror(err)} in {folder or '.'}): "
+                               f"the results need up to {_fmt_mb(self.reserved)} and that much could not be "
+                               f"reserved; free some space or choose another folder, then run again")
         try:
             self._layout(compression)
         except OSError as exc:
@@ -478,6 +490,9 @@ class ResultsWriter(_WriterBase):
             for k, v in root.items():
                 h.attrs[k] = v
             h.close()
+            self._fd = None  # closed: the descriptor number may now belong to another file
+            if self.reserved:  # give back the reserved space the file did not use
+                os.truncate(self.tmp, os.stat(self.tmp).st_size)
         except OSError as exc:
             self.abort()
             raise self._write_error(exc, "closing the file (summary tables and attributes)") from None
@@ -508,11 +523,18 @@ class ResultsWriter(_WriterBase):
         h5, self.h5 = getattr(self, "h5", None), None
         if h5 is None:
             return
-        _discard_writes(h5)
+        # the descriptor was taken when the file was opened: after a failed close h5py can no longer
+        # give it, but the HDF5 objects still open (datasets, groups) flush through it when freed
+        _discard_writes(getattr(self, "_fd", None))
+        self.ds, self.fin = {}, None
         try:
             h5.close()
         except Exception:
             pass
+        del h5
+        import gc
+
+        gc.collect()  # free the remaining HDF5 objects now, while the descriptor points at memory
 
 
 _HELD_LOCKS: dict = {}
@@ -641,11 +663,62 @@ def _is_disk_full(exc: BaseException) -> bool:
     return no in (errno.ENOSPC, errno.EDQUOT) or "No space left" in str(exc)
 
 
-def _discard_writes(h5) -> None:
-    """Point an open HDF5 file's descriptor at an anonymous in-memory file (Linux ``memfd``; a
-    temporary file elsewhere) so that closing it writes nowhere on the full disk."""
+#: disk space reserved on top of the raw size of the results (metadata, summary tables, the
+#: few bytes a compressor adds to data it cannot shrink)
+RESERVE_EXTRA_BYTES = 2 << 20
+RESERVE_EXTRA_FRACTION = 0.02
+
+
+def reserve_bytes(plan) -> int:
+    """Disk space (bytes) reserved for a results file of ``plan``: its raw (uncompressed) arrays,
+    the texts it keeps, 2 % and 2 MiB more."""
+    raw = int(getattr(plan, "result_bytes", 0) or 0)
+    return int(raw * (1 + RESERVE_EXTRA_FRACTION)) + RESERVE_EXTRA_BYTES
+
+
+def _fmt_mb(n) -> str:
+    from .studies.base import _fmt_bytes
+
+    return _fmt_bytes(n)
+
+
+def _reserve(fd, nbytes) -> int:
+    """Reserve ``nbytes`` of disk for the open file ``fd`` without changing its size (Linux
+    ``fallocate`` with FALLOC_FL_KEEP_SIZE). Returns 0, or the errno of a full disk or quota;
+    file systems or systems that cannot reserve are left as they are (0)."""
+    import errno
+
+    if fd is None or nbytes <= 0 or not sys.platform.startswith("linux"):
+        return 0
+    try:
+        import ctypes
+        import ctypes.util
+
+        libc = ctypes.CDLL(ctypes.util.find_library("c") or "libc.so.6", use_errno=True)
+        fallocate = libc.fallocate
+        fallocate.argtypes = [ctypes.c_int, ctypes.c_int, ctypes.c_longlong, ctypes.c_longlong]
+        fallocate.restype = ctypes.c_int
+    except (OSError, AttributeError):  # pragma: no cover - no libc fallocate
+        return 0
+    if fallocate(int(fd), 1, 0, int(nbytes)) == 0:  # 1 = FALLOC_FL_KEEP_SIZE
+        return 0
+    err = ctypes.get_errno()
+    return err if err in (errno.ENOSPC, errno.EDQUOT) else 0
+
+
+def _vfd_handle(h5):
+    """The operating-system descriptor under an open HDF5 file (None when the driver has none)."""
     try:
         fd = h5.id.get_vfd_handle()
+    except Exception:
+        return None
+    return fd if isinstance(fd, int) and fd >= 0 else None
+
+
+def _discard_writes(fd) -> None:
+    """Point the descriptor ``fd`` of an open HDF5 file at an anonymous in-memory file (Linux
+    ``memfd``; a temporary file elsewhere) so that closing it writes nowhere on the full disk."""
+    try:
         if not isinstance(fd, int) or fd < 0:
             return
         if hasattr(os, "memfd_create"):

@@ -204,17 +204,20 @@ def check_out_is_not_an_input(out, spec) -> None:
 
 def check_resources(plan: Plan, out) -> None:
     """Refuse a run whose results would not fit: in memory when ``out`` is None, on disk
-    (uncompressed size) otherwise."""
+    (the space the results file reserves: uncompressed size and a margin) otherwise."""
     need = plan.result_bytes
     if out is None:
         avail = _available_memory()
         if need > 0.6 * avail:
             raise RunError(f"{plan.spec.where}: the results need {_fmt_bytes(need)} of memory but only "
                            f"{_fmt_bytes(avail)} is free; stream them to a file with --out FILE")
-    else:
+    else:  # the space a results file reserves when it is created (raw arrays and a margin)
+        from .results import reserve_bytes
+
+        need = reserve_bytes(plan)
         folder = os.path.dirname(os.path.abspath(os.fspath(out)))
         free = shutil.disk_usage(folder).free
-        if need > 0.95 * free:
+        if need > free:
             raise RunError(f"{plan.spec.where}: the results need up to {_fmt_bytes(need)} on disk but "
                            f"{folder} has {_fmt_bytes(free)} free; use fewer cells or another --out folder")
 

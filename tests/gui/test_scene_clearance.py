@@ -187,3 +187,29 @@ def test_the_3d_scene_draws_shapes_keep_out_and_the_red_link(tmp_path):
     assert np.allclose(cols["1"][:3], np.array(SHAPE_COLOUR) / 255)
     assert out["recommended"] == [0.5, 0.5, 0.0]
     assert out["obstacles"] == 2                            # the box and the pillar as solids
+
+
+def test_the_base_inside_a_box_is_named_and_red(tmp_path):
+    """The fixed base against the equipment: a base capsule (0, 0, 0.1)-(0, 0, 0.3), r 0.1, and a
+    box whose face is at x = 0.07 overlaps it by 0.1 - 0.07 = 30 mm (by hand)."""
+    from workbench.arm import read_arm_model
+    from workbench.gui.cellview import pose_clearance
+    from workbench.kinematics import Arm
+    from workbench.studies.cell import read_cell_file
+
+    a = tmp_path / "based.toml"
+    a.write_text(ARM.replace("[tool]", "[[base.shape]]\ntype = \"capsule\"\na = [0, 0, 0.1]\nb = [0, 0, 0.3]\n"
+                                       "radius = 0.1\n\n[tool]"))
+    c = tmp_path / "cell.toml"
+    c.write_text("[cell]\nname = \"base test\"\n[[point]]\nname = \"p\"\nxyz = [0.6, 0, 0.5]\n"
+                 "[[box]]\nname = \"cabinet\"\ncenter = [0.27, 0, 0.2]\nsize = [0.4, 0.4, 0.4]\n")
+    arm, cell = Arm(read_arm_model(str(a))), read_cell_file(str(c))
+    pc = pose_clearance(arm, [0.0, np.radians(90), 0.0], cell, 0.01)   # link 2 turned away from the box
+    assert pc.pair == ("base", "box 'cabinet'")
+    assert pc.distance == pytest.approx(-0.03, abs=1e-9)
+    assert 0 in pc.close_bodies
+    assert pc.text() == "base overlaps box 'cabinet' by 30 mm"
+    # moved clear of the box (face at x = 0.2): 100 mm, not red
+    c.write_text(c.read_text().replace("center = [0.27, 0, 0.2]", "center = [0.4, 0, 0.2]"))
+    pc = pose_clearance(arm, [0.0, np.radians(90), 0.0], read_cell_file(str(c)), 0.01)
+    assert 0 not in pc.close_bodies

@@ -116,7 +116,7 @@ class ArmPanel(QtWidgets.QWidget):
         self.length_spin.setDecimals(0)
         self.length_spin.setSuffix(" mm")
         self.length_spin.setToolTip("Characteristic length dividing the translation rows when rows "
-                                    "mix translation and rotation (default: the arm's nominal reach)")
+                                    "mix translation and rotation (default: the arm's characteristic length)")
         self.length_spin.setKeyboardTracking(False)
         self.length_spin.valueChanged.connect(lambda v: self._apply(lambda: self.state.set_length(v / 1000.0)))
         form.addRow("Characteristic length", self.length_spin)
@@ -204,8 +204,9 @@ class ArmPanel(QtWidgets.QWidget):
         lim = ", ".join(f"{j.name} {to_display(j.lower, j.revolute):.0f}..{to_display(j.upper, j.revolute):.0f}"
                         for j in m.joints)
         src = f"<br><span style='color:#666'>{m.path}</span>" if m.path else ""
-        self.summary.setText(f"<b>{m.name}</b><br>{m.n} joints ({', '.join(kinds)}), nominal reach "
-                             f"{arm.nominal_reach():.3f} m<br><span style='color:#444'>limits: {lim}</span>{src}")
+        length = arm.characteristic_length() if hasattr(arm, "characteristic_length") else arm.nominal_reach()
+        self.summary.setText(f"<b>{m.name}</b><br>{m.n} joints ({', '.join(kinds)}), characteristic length "
+                             f"{length:.3f} m<br><span style='color:#444'>limits: {lim}</span>{src}")
         self.refresh()
 
     # ---- events --------------------------------------------------------------------------

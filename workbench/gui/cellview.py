@@ -327,6 +327,11 @@ def pose_clearance(arm, q, cell=None, setting=DEFAULT_CLEARANCE, self_collision=
     out = PoseClearance(setting=float(setting), checked=True)
     if not len(names) or not np.any(np.isfinite(d)):
         return out
+    d, names = list(d), list(names)
+    for name, dist in _base_distances(arm, cell):     # the fixed base against the equipment
+        d.append(dist)
+        names.append(("base", name))
+    d = np.asarray(d, float)
     k = int(np.nanargmin(d))
     out.distance, out.pair = float(d[k]), tuple(names[k])
     index = {nm: i for i, nm in enumerate(model.body_names())}
@@ -338,6 +343,32 @@ def pose_clearance(arm, q, cell=None, setting=DEFAULT_CLEARANCE, self_collision=
         for nm in (a, b):
             if nm in index:
                 out.close_bodies.add(index[nm])
+    return out
+
+
+class _OneObstacle:
+    """A cell stand-in with one obstacle (so the base's distance to each one can be named)."""
+
+    def __init__(self, item):
+        self._item = item
+
+    def obstacles(self):
+        return [self._item]
+
+
+def _base_distances(arm, cell) -> list:
+    """[(obstacle name, distance m)] of the base's shapes at the arm's mount against every obstacle
+    but the floor (:func:`workbench.collision.base_clearance`); empty without base shapes or cell."""
+    if cell is None or not getattr(arm.model, "base_shapes", ()) or not hasattr(cell, "obstacles"):
+        return []
+    from ..collision import base_clearance, obstacle_names
+
+    out = []
+    for item in cell.obstacles():
+        if item[0] == "floor":
+            continue
+        one = _OneObstacle(item)
+        out.append((obstacle_names(one)[0], float(base_clearance(arm, one, arm.model.mount))))
     return out
 
 

@@ -53,13 +53,18 @@ import numpy as np
 from ..arm.transforms import inverse_transform, make_transform
 from ..limits import grid_count
 from .base import MAX_SEEDS, Axis, Field, Plan, StudyError, StudyKind, Table
+from . import collide
 
-__all__ = ["LoadMap", "LoadSettings", "payload_of_poses", "check_masses"]
+__all__ = ["LoadMap", "LoadSettings", "payload_of_poses", "check_masses", "COLLIDING_TEXT"]
+
+#: meaning of bit 2 of the ``reached`` field
+COLLIDING_TEXT = ("collides: closer than the clearance setting (plane: reached only by such solutions; joint grid: "
+                  "the grid's pose)")
 
 _DEG = math.pi / 180.0
 _KEYS = {"grid", "joints", "ranges", "steps", "pose", "plane", "u", "v", "at", "step", "orientation", "rpy",
          "axis", "seeds", "gravity", "mount_xyz", "mount_rpy", "payload_com", "force", "moment", "wrench_frame",
-         "mode", "direction", "direction_frame", "payload"}
+         "mode", "direction", "direction_frame", "payload"} | collide.KEYS
 _PLANES = {"xy": (0, 1, 2), "xz": (0, 2, 1), "yz": (1, 2, 0)}
 
 
@@ -90,6 +95,7 @@ class LoadSettings:
     direction: tuple = (0.0, 0.0, -1.0)
     direction_frame: str = "world"
     payload: float | None = None
+    collisions: collide.CollisionSettings = collide.CollisionSettings(False)
 
 
 def check_masses(arm, where: str) -> None:
@@ -225,6 +231,7 @@ def _validate(settings: Mapping, arm, cell, where: str) -> LoadSettings:
             raise StudyError(f"{where} seeds: expected an integer from 1 to {MAX_SEEDS}, got {seeds!r}")
         out.update(plane=plane, u=tuple(u), v=tuple(v), at=float(at), step=float(step), orientation=rule,
                    rotation=R, seeds=seeds)
+    out["collisions"] = collide.collision_settings(settings, arm, where)
     return LoadSettings(**out)
 
 
@@ -314,9 +321,12 @@ class LoadMap(StudyKind):
                   kind="other", fill=-1),
             Field("own_load", (), "float64", "", "largest |gravity torque of the arm itself| / torque limit"),
             Field("reached", (), "uint8", "", "1 where the pose exists (always 1 on a joint grid)", kind="status",
-                  flags={1: "reached"}),
+                  flags={1: "reached", 2: COLLIDING_TEXT}),
             Field("q", (n,), "float64", "rad", "pose of the grid cell", kind="pose"),
         )
+        if s.collisions.on:
+            fields += (Field("clearance", (), "float64", "m", "clearance (m) at the cell's pose (arm vs the cell's "
+                             "obstacles and its own links)"),)
         if s.mode == "force":
             d = ", ".join(f"{v:g}" for v in s.direction)
             fields = (Field("force", (), "float64", "N", f"largest force along [{d}] ({'tool' if s.direction_frame == 'tool' else 'cell'} "
@@ -324,7 +334,7 @@ class LoadMap(StudyKind):
                       Field("force_joint", (), "int32", "", "joint (0-based) whose torque limit sets the force; -1 none",
                             kind="other", fill=-1)) + fields
         data = {"mounted_model": marm.model, "pose": s.pose if s.pose is not None else arm.model.home_q,
-                "load": load}
+                "load": load, "result_attrs": collide.result_attrs(s.collisions)}
         return Plan(self.name, spec, s, axes, fields, chunk_cells=chunk_cells or 4096, data=data)
 
     def compute_chunk(self, plan, arm, cell, chunk) -> dict:
@@ -341,6 +351,9 @@ class LoadMap(StudyKind):
             for axis, ii in zip(plan.axes, sub):
                 q[:, marm.model.names.index(axis.name)] = axis.values[ii]
             reached = np.ones(len(idx), bool)
+            hit = np.zeros(len(idx), bool)
+            if s.collisions.on:  # the grid gives the pose: flag it where it collides, keep its payload
+                hit = ~collide.clear_of(marm, q, cell, s.collisions)[1]
         else:
             from .mount_search import reached_check
 
@@ -361,19 +374,26 @@ class LoadMap(StudyKind):
             K = res.q.shape[1]
             qK = np.where(np.isfinite(res.q), res.q, 0.0).reshape(-1, n)
             okK = reached_check(marm, qK, np.repeat(Tb, K, axis=0), s.orientation, 1e-4, 1e-3)
+            anyK = okK.reshape(-1, K).any(axis=1)
+            if s.collisions.on:  # only solutions with the clearance asked (one batched call)
+                okK = okK & collide.clear_of(marm, qK, cell, s.collisions)[1]
             mK, _ = payload_of_poses(marm, qK, s.gravity, plan.data.get("load"))
             pick = np.argmax(np.where(okK, mK, -1.0).reshape(-1, K), axis=1)
             rows = np.arange(len(idx))
             q = qK.reshape(-1, K, n)[rows, pick]
             reached = okK.reshape(-1, K)[rows, pick]
+            hit = anyK & ~reached
         load = plan.data.get("load")
         mass, lim = payload_of_poses(marm, q, s.gravity, load)
         tg = gravity_torques(marm, q, g=np.asarray(s.gravity), world=True)
         own = np.max(np.abs(tg) / marm.model.max_effort, axis=-1)
         mass = np.where(reached, mass, np.nan)
         out = {"payload": mass, "limiting_joint": np.where(reached, lim, -1).astype(np.int32),
-               "own_load": np.where(reached, own, np.nan), "reached": reached.astype(np.uint8),
+               "own_load": np.where(reached, own, np.nan),
+               "reached": (reached.astype(np.uint8) | np.where(hit, 2, 0)).astype(np.uint8),
                "q": q.reshape(len(idx), n)}
+        if s.collisions.on:
+            out["clearance"] = np.where(reached | hit, collide.clear_of(marm, q, cell, s.collisions)[0], np.nan)
         if s.mode == "force":
             from ..measures import Payload, largest_force
 
