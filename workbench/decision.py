@@ -414,7 +414,8 @@ def collision_status(results, arm=None) -> tuple:
                              f"between the arm and the cell's obstacles and between its own links.")
     if settings.get("collisions", None) is False:
         return False, None, "Collisions not checked: switched off in the study settings (collisions = false)."
-    if arm is not None and arm_shapes(arm.model) is None:
+    stated = str(results.attrs.get("collisions", ""))
+    if "no collision shapes" in stated or (arm is not None and arm_shapes(arm.model) is None):
         return False, None, ("Collisions not checked: the arm has no collision shapes, so links may pass through "
                              "equipment, keep-out zones or the floor.")
     return False, None, "Collisions not checked: these results hold no clearance values."

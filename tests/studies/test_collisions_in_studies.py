@@ -356,3 +356,54 @@ def test_load_map_holds_only_with_clear_solutions():
     plan, o = run_load(arm, _elbow_boxes(1, -1), {"collisions": False})
     assert int(o["reached"][0]) == 1 and "clearance" not in o
     assert o["payload"][0] == pytest.approx((20 / 9.81 - 0.375) / 0.75, rel=1e-6)
+
+
+def test_workbench_run_warns_when_the_arm_has_no_shapes(tmp_path):
+    # the demo planar 2R arm file has no collision shapes: a real `workbench run` of a reach slice
+    # prints the warning line and stores the note in the results file
+    import os
+    import subprocess
+    import sys
+    from pathlib import Path
+
+    from workbench.results import read_results
+
+    root = Path(__file__).resolve().parents[2]
+    study = tmp_path / "s.toml"
+    study.write_text(f"[study]\nname = \"no shapes\"\nkind = \"reach_slice\"\narm = \"{(root / 'arms' / 'demo_planar2r.toml').as_posix()}\"\n"
+                     "[settings]\nplane = \"xy\"\nu = [0.2, 0.6]\nv = [-0.2, 0.2]\nsteps = [3, 3]\n"
+                     "orientation = \"free\"\nrows = [\"vx\", \"vy\"]\nseeds = 2\n")
+    out = tmp_path / "r.h5"
+    env = dict(os.environ, PYTHONPATH=str(root))
+    p = subprocess.run([sys.executable, "-m", "workbench", "run", str(study), "--out", str(out), "--in-process"],
+                       capture_output=True, text=True, env=env, cwd=tmp_path, timeout=600)
+    assert p.returncode == 0, p.stderr
+    assert f"warning: {collide.NO_SHAPES_WARNING}" in p.stderr.splitlines()
+    r = read_results(out)
+    assert r.attrs["collisions"] == "not checked: the arm has no collision shapes"
+    assert not any(f.name == "clearance" for f in r.fields)
+    from workbench.decision import collision_status
+
+    checked, _asked, sentence = collision_status(r)
+    assert not checked and "the arm has no collision shapes" in sentence  # from the results' note alone
+
+
+def test_reach_slice_with_collisions_does_not_depend_on_the_chunking():
+    from workbench.studies.reach_slice import COLLIDING, ReachSlice
+
+    arm = arm_2r()
+    text = f"[cell]\nname = \"c\"\nfloor = false\n[[point]]\nname = \"p\"\nxyz = [1.5, 0, 0.5]\n{_elbow_boxes(1)}"
+    cell = parse_cell_text(text, "c.toml")
+    st = {"grid": "plane", "plane": "xy", "at": 0.5, "u": [0.3, 1.9], "v": [-0.9, 0.9], "steps": [9, 7],
+          "orientation": "free", "seeds": 2, "rows": ["vx", "vy"], "best": "manipulability"}
+    kind = ReachSlice()
+    plan = kind.plan(StudySpec(kind="reach_slice", arm="2r", cell="c.toml", settings=st), arm, cell)
+    whole = kind.compute_chunk(plan, arm, cell, Chunk(0, 0, plan.cells))
+    small = plan.with_chunk_cells(4)
+    parts = [kind.compute_chunk(small, arm, cell, c) for c in small.chunks]
+    for key in ("status", "q", "clearance", "solutions"):
+        np.testing.assert_array_equal(np.concatenate([p[key] for p in parts]), whole[key])
+    # the grid holds (1.5, 0): the box leaves it the elbow-down solution only (as above)
+    k = int(np.argmin(np.linalg.norm(whole["target"] - [1.5, 0, 0.5], axis=1)))
+    assert np.allclose(whole["target"][k], [1.5, 0, 0.5]) and whole["solutions"][k] == 1
+    assert not whole["status"][k] & COLLIDING

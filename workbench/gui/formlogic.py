@@ -217,6 +217,8 @@ def choices(kind_name: str, key: str, arm=None, value=None):
     if hit is None and key == "frame" and kind_name == "joint_sweep":
         names = tuple(arm.names) if arm is not None else ()
         hit = (("tcp", "flange", "base") + names, True)
+    if hit is None and isinstance(value, bool):
+        hit = (("true", "false"), False)
     if hit is None:
         return None
     vals, editable = hit

@@ -182,6 +182,8 @@ class MainWindow(QtWidgets.QMainWindow):
         maps.addWidget(self.map_view)
         maps.addWidget(self.hist_view)
         maps.setSizes([620, 380])
+        maps.setStretchFactor(0, 2)         # the map gets the room a narrow window has
+        maps.setStretchFactor(1, 1)
         self.result_tabs.addTab(maps, "Map and histogram")
         self.result_tabs.addTab(self.pose_list, "Pose list")
         self.summary_view = QtWidgets.QTextBrowser()
@@ -1255,6 +1257,25 @@ class MainWindow(QtWidgets.QMainWindow):
                                     QtWidgets.QMessageBox.Yes | QtWidgets.QMessageBox.No, self)
         box.setDefaultButton(QtWidgets.QMessageBox.No)
         return box.exec() == QtWidgets.QMessageBox.Yes
+
+    #: below this window width the Arm panel is tabbed with the Study panel (the maps need the room)
+    COMPACT_WIDTH = 1200
+
+    def resizeEvent(self, ev):
+        super().resizeEvent(ev)
+        compact = self.width() < self.COMPACT_WIDTH
+        if compact == getattr(self, "_compact", False) or not hasattr(self, "arm_dock"):
+            return
+        self._compact = compact
+        if self.arm_dock.isFloating():
+            return
+        if compact:
+            self.tabifyDockWidget(self.study_dock, self.arm_dock)
+            self.arm_dock.raise_()
+        else:
+            self.addDockWidget(QtCore.Qt.LeftDockWidgetArea, self.arm_dock)
+            self.resizeDocks([self.arm_dock, self.study_dock], [330, 350], QtCore.Qt.Horizontal)
+            self.study_dock.raise_()
 
     def closeEvent(self, ev):
         """Quit: asks first while a study runs; never deletes a results file."""

@@ -145,7 +145,7 @@ class MapView(QtWidgets.QWidget):
         self.contour_shadow.setParentItem(self.image)
         self.contour_shadow.setZValue(9)
         self.cbar = pg.ColorBarItem(colorMap=pg.colormap.get("viridis"), interactive=False, width=18)
-        self.cbar.axis.setWidth(72)
+        self.cbar.axis.setWidth(50)
         self.cbar.setImageItem(self.image, insert_in=self.plot.getPlotItem())
         for ax in (self.plot.getAxis("bottom"), self.plot.getAxis("left"), self.cbar.axis):
             ax.enableAutoSIPrefix(False)
@@ -178,6 +178,22 @@ class MapView(QtWidgets.QWidget):
     def show_hint(self, on=True):
         """The first-start hint in place of the empty plot (``on``), or the plot."""
         self.stack.setCurrentWidget(self.hint if on else self.plot)
+        self.measure_combo.setEnabled(not on)
+        for b in self.mode_buttons.values():
+            b.setEnabled(not on)
+
+    def _title(self):
+        """The plot title: the study and the measure; the measure alone when the map is narrow."""
+        d = self.data
+        head = (d.title or d.kind) if d is not None else ""
+        if head and self.width() >= 480:
+            return f"{head}: {measure_label(self.measure)}"
+        return measure_label(self.measure)
+
+    def resizeEvent(self, ev):
+        super().resizeEvent(ev)
+        if self.data is not None and self.data.is_map:
+            self.plot.setTitle(self._title())
 
     def set_result(self, data: ResultData):
         self.data = data
@@ -265,8 +281,7 @@ class MapView(QtWidgets.QWidget):
         # the measure is named in the title: a colour-bar label stood beside the histogram's own
         # y label and read as a second one
         self.cbar.axis.showLabel(False)
-        self.plot.setTitle(f"{d.title or d.kind}: {measure_label(self.measure)}" if (d.title or d.kind)
-                           else measure_label(self.measure))
+        self.plot.setTitle(self._title())
         if final:
             self._update_contour()
 
@@ -465,9 +480,7 @@ class HistogramView(QtWidgets.QWidget):
         self.info.setMinimumWidth(60)
         bar.addWidget(self.info, 1)
         lay.addLayout(bar)
-        self.legend = Legend([((150, 150, 150, 160), "fill", "all finished cells"),
-                              (SEL_RGBA, "fill", "brushed cells"),
-                              ((200, 0, 0), "dash", "near-singular threshold")])
+        self.legend = Legend(self._legend_entries(True))
         self.legend.setObjectName("histogram_legend")
         lay.addWidget(self.legend)
         self.plot = pg.PlotWidget()
@@ -532,7 +545,15 @@ class HistogramView(QtWidgets.QWidget):
             self.thr_line.show()
         elif measure != "inverse_condition":
             self.thr_line.hide()
+        self.legend.set_entries(self._legend_entries(measure == "inverse_condition"))
         self._on_selection(self.selection, None, True)
+
+    @staticmethod
+    def _legend_entries(threshold_shown):
+        e = [((150, 150, 150, 160), "fill", "all finished cells"), (SEL_RGBA, "fill", "brushed cells")]
+        if threshold_shown:
+            e.append(((200, 0, 0), "dash", "near-singular threshold"))
+        return e
 
     def set_threshold(self, t):
         if self.measure == "inverse_condition":

@@ -16,6 +16,7 @@ from .formlogic import POSE_SOURCES, check_fields, choices, format_value, pose_t
 __all__ = ["StudyPanel"]
 
 BAD_STYLE = "QLineEdit, QComboBox { border: 2px solid #c02020; background: #fff0f0; }"
+READ_ONLY_STYLE = "QLineEdit { color: #555; background: #f2f2f2; }"      # shown, not typed in
 
 
 class ChoiceEdit(QtWidgets.QComboBox):
@@ -210,6 +211,7 @@ class StudyPanel(QtWidgets.QWidget):
                 edit.setText(format_value(value) if not isinstance(value, str) else value)
             else:
                 edit = QtWidgets.QLineEdit(format_value(value))
+                edit.setCursorPosition(0)        # long lists show their start
             edit.setObjectName(f"setting_{key}")
             edit.setMinimumWidth(110)
             edit.textChanged.connect(lambda _t: self._check_timer.start())
@@ -264,6 +266,7 @@ class StudyPanel(QtWidgets.QWidget):
         src = self.pose_source.text()
         edit = self.edits["pose"]
         edit.setReadOnly(src != "explicit")
+        edit.setStyleSheet("" if src == "explicit" else READ_ONLY_STYLE)
         if src == "explicit" and not edit.text().strip() and self.arm is not None:
             edit.setText(format_value(pose_to_file(self.arm, self.arm.home_q)))
         self._sync_pose()
@@ -283,6 +286,7 @@ class StudyPanel(QtWidgets.QWidget):
         if q is not None:
             edit.blockSignals(True)
             edit.setText(format_value(pose_to_file(self.arm, q)))
+            edit.setCursorPosition(0)
             edit.blockSignals(False)
 
     def use_pose(self, source: str, values=None):
@@ -313,7 +317,8 @@ class StudyPanel(QtWidgets.QWidget):
         self.values, self.errors = values, errors
         for k, e in self.edits.items():
             bad = k in errors
-            e.setStyleSheet(BAD_STYLE if bad else "")
+            ro = isinstance(e, QtWidgets.QLineEdit) and e.isReadOnly()
+            e.setStyleSheet(BAD_STYLE if bad else (READ_ONLY_STYLE if ro else ""))
             e.setToolTip(errors.get(k, ""))
             self.reasons[k].setText(errors.get(k, ""))
             self.reasons[k].setVisible(bad)
