@@ -155,6 +155,9 @@ def test_window_turns_the_near_link_red_and_names_the_pair(window, files):
     assert np.nanmin(kx) == pytest.approx(-1.2) and np.nanmax(kx) == pytest.approx(-0.8)
     bx, _ = window.scene._items[0]["boxes"].getData()
     assert np.nanmin(bx) == pytest.approx(0.844)
+    from workbench.gui.scene import KEEP_OUT_COLOUR
+
+    assert {e[2]: e[0] for e in window.scene_legend.entries}["keep-out zone"] == KEEP_OUT_COLOUR
     px, py = window.scene._items[0]["pillars"].getData()
     assert np.nanmax(np.hypot(px, py - 1.2)) == pytest.approx(0.1)
 

@@ -88,7 +88,8 @@ def scene_legend_entries():
     return [(arm, "line", "arm"), (near, "line", "arm near a singularity"),
             ((153, 64, 178, 110), "fill", "velocity ellipsoid"), (ghost, "line", "brushed poses"),
             ((40, 150, 60), "dot", "work points and paths"), ((80, 80, 80, 60), "fill", "equipment"),
-            ([(68, 1, 84), (33, 145, 140), (253, 231, 37)], "ramp", "mount candidates (colour: score)")]
+            ([(68, 1, 84), (33, 145, 140), (253, 231, 37)], "ramp", "mount candidates (colour: score)")] + \
+        list(getattr(sc, "LEGEND_EXTRA", ()))     # shapes, keep-out, recommended mount (gui/scene.py)
 
 
 def _load_arm(path):

@@ -33,6 +33,13 @@ KEEP_OUT_COLOUR = (235, 150, 0)     # keep-out zones: amber, hatched, never soli
 REC_COLOUR = (200, 0, 160)          # the recommended mount
 
 
+#: legend entries for what this module adds to the scene (the window's scene legend appends them)
+LEGEND_EXTRA = [(SHAPE_COLOUR + (90,), "fill", "collision shapes"),
+                (CLOSE_COLOUR, "fill", "within the clearance"),
+                (KEEP_OUT_COLOUR, "line", "keep-out zone"),
+                (REC_COLOUR, "dot", "recommended mount")]
+
+
 class KeepOutItem(pg.PlotDataItem):
     """A keep-out zone's hatched outline on a 2D view (its own item type, so it is never taken
     for equipment)."""
