@@ -91,7 +91,7 @@ def start_run(tmp_path, out, *extra, steps=(1500, 1500)):
                             stderr=subprocess.PIPE, stdout=subprocess.DEVNULL, text=True, env=env, cwd=tmp_path)
 
 
-def wait_for_progress(proc, percent=10, timeout=120):
+def wait_for_progress(proc, percent=10, timeout=600):
     t0 = time.time()
     while time.time() - t0 < timeout:
         line = proc.stderr.readline()
@@ -131,7 +131,7 @@ def test_ctrl_c_cancels_into_a_readable_incomplete_file(tmp_path):
     proc = start_run(tmp_path, out, "--workers", "2", steps=(800, 1000))
     wait_for_progress(proc)
     proc.send_signal(signal.SIGINT)
-    _, err = proc.communicate(timeout=60)
+    _, err = proc.communicate(timeout=600)
     assert proc.returncode == 130, err
     assert "cancelled:" in err and "marked incomplete" in err and "Traceback" not in err
     r = read_results(out)

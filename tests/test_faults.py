@@ -42,7 +42,7 @@ def start_run(folder, out, *extra, steps=(1500, 1500), session=False):
                             start_new_session=session)
 
 
-def wait_for_line(proc, start, timeout=180):
+def wait_for_line(proc, start, timeout=600):
     """Read the child's stderr until a line starting with ``start`` (progress lines: 'run: ')."""
     t0 = time.time()
     seen = []
@@ -71,7 +71,7 @@ def test_sigterm_and_sighup_cancel_into_a_readable_incomplete_file_as_ctrl_c_doe
     proc = start_run(tmp_path, out, "--in-process")
     wait_for_line(proc, "run: 1")  # 10 % or more done
     proc.send_signal(sig)
-    _, err = proc.communicate(timeout=120)
+    _, err = proc.communicate(timeout=600)
     assert proc.returncode == 128 + sig, err  # 143 for SIGTERM, 129 for SIGHUP (as 130 for Ctrl-C)
     assert f"cancelling ({signal.Signals(sig).name})" in err and "marked incomplete" in err
     assert "Traceback" not in err
@@ -90,7 +90,7 @@ def test_ctrl_c_at_any_moment_of_a_process_run_ends_without_hang_or_traceback(tm
     wait_for_line(proc, "study ")  # calibrated: the worker pool starts now
     time.sleep(delay)
     os.killpg(proc.pid, signal.SIGINT)  # as a terminal does: to the run and every worker
-    _, err = proc.communicate(timeout=120)  # a hang fails here
+    _, err = proc.communicate(timeout=600)  # a hang fails here
     assert proc.returncode in (0, 130), err
     for word in ("Traceback", "InvalidStateError", "KeyboardInterrupt"):
         assert word not in err, err
@@ -116,8 +116,8 @@ def test_worker_processes_end_when_the_run_ends_however_it_ends(tmp_path, how):
     kids = _descendants(proc.pid)
     assert len(kids) >= 2  # the two workers (and the resource tracker)
     proc.send_signal(signal.SIGKILL if how == "kill -9" else signal.SIGTERM)
-    proc.communicate(timeout=120)
-    _, alive = psutil.wait_procs(kids, timeout=30)  # the watchdog polls twice a second
+    proc.communicate(timeout=600)
+    _, alive = psutil.wait_procs(kids, timeout=60)  # the watchdog polls twice a second
     assert alive == [], [(p.pid, p.cmdline()) for p in alive]
     if how == "SIGTERM":
         assert proc.returncode == 143 and read_results(out).incomplete
@@ -148,7 +148,7 @@ def test_a_second_run_on_the_same_out_is_refused_while_the_first_runs(tmp_path, 
             run_study(_sweep_spec((4, 4)), out=out)
     finally:
         proc.send_signal(signal.SIGINT)
-        proc.communicate(timeout=120)
+        proc.communicate(timeout=600)
     assert proc.returncode == 130
     assert leftovers(tmp_path) == []  # the lock went with the run
     assert main(["run", str(small), "--out", str(out), "--quiet"]) == 0  # now free
@@ -178,7 +178,7 @@ def test_a_stale_lock_of_a_dead_run_is_taken_over(tmp_path, capsys):
                 OutputLock({str(out)!r}).acquire()
             except ResultsError as e:
                 print("refused:", e)
-            """)], capture_output=True, text=True, env=ENV, timeout=120)
+            """)], capture_output=True, text=True, env=ENV, timeout=600)
         assert child.stdout.startswith(f"refused: --out {out}: another run (pid {os.getpid()}"), child.stderr
     assert not lock.exists()
 
