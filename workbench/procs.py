@@ -12,10 +12,26 @@ import time
 __all__ = ["process_identity", "is_alive", "start_watchdog"]
 
 
+def _start_ticks(pid: int):
+    """Start of process ``pid`` in clock ticks after boot (Linux /proc), or None. Unlike a Unix
+    start time it does not move when the system clock is corrected."""
+    try:
+        with open(f"/proc/{int(pid)}/stat", "rb") as f:
+            raw = f.read().decode("ascii", "replace")
+        # the command name (field 2) may hold spaces and parentheses: split after its last ')'
+        return int(raw[raw.rindex(")") + 2:].split()[19])
+    except (OSError, ValueError, IndexError):
+        return None
+
+
 def process_identity(pid: int | None = None) -> tuple:
-    """(pid, start time as a Unix time) of a process (this one by default). With the start time a
-    pid that the system has since given to another process is not taken for the one meant."""
+    """(pid, start) of a process (this one by default): start is ``"ticks:N"`` (clock ticks after
+    boot, Linux) or a Unix start time. With it a pid that the system has since given to another
+    process is not taken for the one meant."""
     pid = os.getpid() if pid is None else int(pid)
+    ticks = _start_ticks(pid)
+    if ticks is not None:
+        return pid, f"ticks:{ticks}"
     try:
         import psutil
 
@@ -24,19 +40,26 @@ def process_identity(pid: int | None = None) -> tuple:
         return pid, None
 
 
-def is_alive(pid: int, started: float | None = None) -> bool:
-    """True while process ``pid`` runs (not a zombie) and, when ``started`` is given, is the
-    process that started then."""
+def is_alive(pid: int, started=None) -> bool:
+    """True while process ``pid`` runs (not a zombie) and, when ``started`` is given (from
+    :func:`process_identity`), is the process that started then."""
     import psutil
 
     try:
         p = psutil.Process(int(pid))
-        if started is not None and abs(p.create_time() - float(started)) > 0.01:
-            return False  # the pid was reused
+        if isinstance(started, str) and started.startswith("ticks:"):
+            now = _start_ticks(pid)
+            if now is not None and f"ticks:{now}" != started:
+                return False  # the pid was reused
+        elif started is not None:
+            # psutil's start time is boot time + ticks, and the boot time it reads moves when the
+            # clock is corrected (a second or so on a virtual machine): allow for it
+            if abs(p.create_time() - float(started)) > 2.0:
+                return False
         return p.status() != psutil.STATUS_ZOMBIE
     except psutil.NoSuchProcess:
         return False
-    except psutil.Error:  # access denied and the like: it exists
+    except (psutil.Error, ValueError, TypeError):  # access denied and the like: it exists
         return True
 
 
