@@ -82,10 +82,11 @@ def test_per_point_values_reproduce_the_score_and_the_measures(res, decs):
     w = min(p.inverse_condition for p in pts)
     mm = min(p.margin for p in pts)
     q = w * mm ** 0.5
-    if all(p.clearance is not None for p in pts):  # collisions checked: times min(1, c / 0.1 m)^0.5
-        from workbench.studies.mount_search import CLEARANCE_FULL
+    if all(p.clearance is not None for p in pts):  # collisions checked: times min(1, c / 0.1 m)^0.5,
+        from workbench.studies.mount_search import CLEARANCE_FULL  # c = clearance to the obstacles
 
-        q *= min(1.0, min(p.clearance for p in pts) / CLEARANCE_FULL) ** 0.5
+        assert all(p.obstacle_clearance >= p.clearance - 1e-12 for p in pts)
+        q *= min(1.0, min(p.obstacle_clearance for p in pts) / CLEARANCE_FULL) ** 0.5
     assert len(pts) + q / (1 + q) == pytest.approx(d.recommendation.score, rel=1e-9)
     assert not d.notes
 

@@ -269,7 +269,11 @@ class PointCheck:
         The joint nearest its limit; ``limit_distance`` its distance to that limit (rad / m).
     limit_distance : float
     clearance : float or None
-        Smallest clearance, m (None: not in the results).
+        Smallest clearance, m, to the cell's obstacles and between the arm's links (None: not in the
+        results).
+    obstacle_clearance : float or None
+        Smallest clearance to the cell's obstacles only, m (the quality's clearance factor; None: not
+        in the results).
     torque_margin : float or None
         Smallest torque margin, fraction of the limit (None: not in the results).
     checks : dict
@@ -289,6 +293,7 @@ class PointCheck:
     clearance: float | None = None
     torque_margin: float | None = None
     checks: dict = field(default_factory=dict)
+    obstacle_clearance: float | None = None
 
 
 @dataclass(frozen=True, eq=False)
@@ -643,6 +648,10 @@ def _mount_decision(ctx: _Ctx) -> Decision:
     margin, mj, mdist = _limit_info(arm0, q)
     margin = np.where(reached, np.clip(margin, 0, 1), np.nan)
     clearance = _point_column(bp, "clearance", P, 1e-3)
+    # the quality's clearance factor reads the clearance to obstacles (older files: the one clearance)
+    obstacle = _point_column(bp, "obstacle_clearance", P, 1e-3)
+    if obstacle is None:
+        obstacle = clearance
     torque = _point_column(bp, "torque_margin", P, 1.0)
     names = [p.name for p in points]
     # the rank value from these values must be the ranking's (one answer everywhere)
@@ -653,7 +662,7 @@ def _mount_decision(ctx: _Ctx) -> Decision:
             from .studies.mount_search import score_candidates
 
             tq = None if torque is None else torque[None]
-            cl = None if clearance is None else clearance[None]
+            cl = None if obstacle is None else obstacle[None]
             sc = score_candidates(reached[None], np.where(reached, meas.get(sm, meas["inverse_condition"]), 0)[None],
                                   np.where(reached, margin, 0)[None], s, torque=tq, clearance=cl)
             check = float(sc["rank_value"][0])
@@ -716,7 +725,8 @@ def _mount_decision(ctx: _Ctx) -> Decision:
                            float(meas["min_sv"][i]), float(meas["manipulability"][i]), float(margin[i]),
                            ctx.jn(mj[i]), float(mdist[i]),
                            None if clearance is None else float(clearance[i]),
-                           None if torque is None else float(torque[i]), checks_of[i])
+                           None if torque is None else float(torque[i]), checks_of[i],
+                           None if obstacle is None else float(obstacle[i]))
                 for i, (nm, p, ok) in enumerate(zip(names, points, reached)))
 
     ctx.progress(0.3, "risks at the recommended mount")

@@ -407,3 +407,25 @@ def test_reach_slice_with_collisions_does_not_depend_on_the_chunking():
     k = int(np.argmin(np.linalg.norm(whole["target"] - [1.5, 0, 0.5], axis=1)))
     assert np.allclose(whole["target"][k], [1.5, 0, 0.5]) and whole["solutions"][k] == 1
     assert not whole["status"][k] & COLLIDING
+
+
+def test_the_quality_grades_the_clearance_to_obstacles_not_the_arm_to_itself():
+    """The arm's clearance to itself decides whether a pose counts; the quality's clearance factor
+    min(1, c / 0.1 m)^0.5 reads the clearance to the cell's obstacles (a property of the mount)."""
+    from workbench.studies.mount_search import CLEARANCE_FULL, score_candidates
+
+    # a base housing: sphere of radius 0.93 m about the first joint (base frame, arm plane z = 0.5)
+    arm = arm_2r(base_shapes=(sphere([0, 0, 0.5], 0.93),))
+    # tip at (1.5, 0): the elbow angle has cos th2 = 0.125 (worked by hand), so the angle at the
+    # elbow in the base-elbow-tip triangle is pi - th2 = 97.2 deg > 90 deg: link 2's nearest point
+    # to the base centre is the elbow, 1 m away -> self clearance 1 - 0.93 - 0.05 = 0.02 m;
+    # wall face at x = 1.61, tip capsule ends at 1.55 -> obstacle clearance 0.06 m (by hand)
+    plan, a = run_mount(arm, cell_text(wall_x=1.66))
+    assert a["point_reached"][0, 0] == 1
+    assert a["min_clearance"][0] == pytest.approx(0.02, abs=1e-6)          # what decides feasibility
+    assert a["min_obstacle_clearance"][0] == pytest.approx(0.06, abs=1e-6)  # what the quality grades
+    s = plan.settings
+    q0 = score_candidates(a["point_reached"].astype(bool), a["point_measure"],
+                          np.asarray([[a["min_margin"][0]]]), s)["score"][0]
+    assert a["score"][0] == pytest.approx(q0 * (0.06 / CLEARANCE_FULL) ** 0.5, rel=1e-6)
+    assert a["score"][0] != pytest.approx(q0 * (0.02 / CLEARANCE_FULL) ** 0.5, rel=1e-3)

@@ -173,7 +173,12 @@ def test_recommended_values_are_reproduced_by_the_per_point_table(small_cell_res
     s = r.plan.settings if r.plan is not None else MountSettings()
     bp = r.tables["best_points"].columns
     reached = np.asarray(bp["reached"]).astype(bool)[None]
-    clear = np.asarray(bp["clearance"], float)[None] / 1000 if "clearance" in bp else None  # mm -> m
+    # the quality's clearance factor reads the clearance to the cell's obstacles; the clearance of the
+    # feasibility check (obstacles and the arm's own links) can only be smaller
+    clear = np.asarray(bp["obstacle_clearance"], float)[None] / 1000 if "clearance" in bp else None  # mm -> m
+    if clear is not None:
+        both = np.asarray(bp["clearance"], float)[None] / 1000
+        assert np.all(both[reached] <= clear[reached] + 1e-12)
     sc = score_candidates(reached, np.asarray(bp["measure"], float)[None], np.asarray(bp["margin"], float)[None], s,
                           clearance=clear)
     if clear is not None:  # the clearance factor min(1, c / 100 mm)^0.5 is part of the quality

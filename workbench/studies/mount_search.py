@@ -13,7 +13,12 @@ ICRA 2013), and solved with the batched multi-seed IK. Per candidate:
   manipulability of the chosen rows) over the served work points;
 * ``min_margin`` m: the smallest joint-limit margin (:meth:`Arm.limit_margin`, 1 at mid range,
   0 at a limit) over the served work points; ``min_torque_margin`` t likewise (when the cell
-  states requirements), ``min_clearance`` c likewise (when clearances are given);
+  states requirements); ``min_obstacle_clearance`` c: the smallest clearance between the arm and the
+  cell's obstacles (floor, boxes, pillars, keep-out zones) over the served work points, when
+  collisions are checked. The arm's clearance to itself only decides whether a pose counts (at least
+  the ``clearance`` setting, like the clearance to obstacles): it is a property of the arm's build,
+  nearly the same wherever the base goes (on a spherical wrist the tool passes the forearm at the
+  same distance at most poses), so it does not grade one mount against another;
 * ``score`` (the quality) Q = w^a * m^b * t^c * min(1, c / 0.1 m)^d  (defaults a = 1, b = 0.5,
   c = 0.5, d = 0.5; a factor is 1 where its value is absent; 0 when nothing is served);
 * ``rank_value`` = k + Q / (1 + Q): feasibility first. Its whole part is the number of points served,
@@ -207,8 +212,8 @@ def quality_formula(s: MountSettings) -> str:
     return (f"quality Q = w^{s.measure_power:g} * m^{s.margin_power:g} * t^{s.torque_power:g} * "
             f"min(1, c / {CLEARANCE_FULL * 1000:g} mm)^{s.clearance_power:g}, where w = worst "
             f"{s.measure.replace('_', ' ')} ({_rows_text(s.rows)} rows), m = smallest joint-limit margin (1 mid-range, "
-            f"0 at a limit), t = smallest holding-torque margin, c = smallest clearance, each over the served work "
-            f"points (a factor is 1 where its value is not checked); 0 when no point is served")
+            f"0 at a limit), t = smallest holding-torque margin, c = smallest clearance to the cell's obstacles, each "
+            f"over the served work points (a factor is 1 where its value is not checked); 0 when no point is served")
 
 
 def score_formula(s: MountSettings) -> str:
@@ -363,8 +368,14 @@ def evaluate_mounts(arm, mounts, points, s: MountSettings, q0=None, choose: str 
     reached, torque, unmet = _apply_requirements(arm, mounts, q, reached, s)
     meas = np.where(reached, meas, 0.0)
     marg = np.where(reached, np.clip(marg, 0.0, 1.0), 0.0)
+    obstacle = np.full((C, P), np.inf)
+    if cs.on and reached.any():  # the quality's clearance factor: to the cell's obstacles only
+        from ..collision import clearance as _clearance
+
+        Mq = np.broadcast_to(mounts[:, None], (C, P, 4, 4))
+        obstacle = np.where(reached, _clearance(arm, q, s.cell, self_collision=False, mounts=Mq), np.inf)
     return {"q": q, "reached": reached, "measure": meas, "margin": marg, "torque_margin": torque, "unmet": unmet,
-            "clearance": clear, "colliding": colliding, "base_clearance": base}
+            "clearance": clear, "obstacle_clearance": obstacle, "colliding": colliding, "base_clearance": base}
 
 
 def _clear_first(arm, Tg, rule, s, seed, tol, atol, Mg, qs, ok):
@@ -494,13 +505,13 @@ def score_candidates(reached, measure, margin, s: MountSettings, torque=None, cl
     torque : (C, P) ndarray, optional
         Holding-torque margin per point (NaN where not checked).
     clearance : (C, P) ndarray, optional
-        Clearance (m) per point at the chosen solution (NaN where not checked).
+        Clearance (m) to the cell's obstacles per point at the chosen solution (NaN where not checked).
 
     Returns
     -------
     dict of (C,) arrays: ``served`` (count), ``reached_fraction`` (served / P), ``worst_measure``,
-    ``min_margin`` (0 when nothing is served), ``min_torque_margin``, ``min_clearance`` (NaN when not
-    checked), ``score`` (the quality Q, :func:`quality_formula`), ``rank_value``
+    ``min_margin`` (0 when nothing is served), ``min_torque_margin``, ``min_obstacle_clearance`` (NaN
+    when not checked), ``score`` (the quality Q, :func:`quality_formula`), ``rank_value``
     (:func:`rank_values`).
     """
     reached = np.asarray(reached, bool)
@@ -515,7 +526,7 @@ def score_candidates(reached, measure, margin, s: MountSettings, torque=None, cl
         score = (np.maximum(w, 0) ** s.measure_power) * (np.maximum(mm, 0) ** s.margin_power)
     out = {"served": served, "reached_fraction": f, "worst_measure": w, "min_margin": mm}
     for key, vals, power, full in (("min_torque_margin", torque, s.torque_power, 1.0),
-                                   ("min_clearance", clearance, s.clearance_power, CLEARANCE_FULL)):
+                                   ("min_obstacle_clearance", clearance, s.clearance_power, CLEARANCE_FULL)):
         if vals is None:
             out[key] = np.full(served.shape, np.nan)
             continue
@@ -533,7 +544,7 @@ def score_candidates(reached, measure, margin, s: MountSettings, torque=None, cl
 def _scores(ev, s):
     """:func:`score_candidates` of an :func:`evaluate_mounts` result."""
     return score_candidates(ev["reached"], ev["measure"], ev["margin"], s, torque=ev.get("torque_margin"),
-                            clearance=ev.get("clearance"))
+                            clearance=ev.get("obstacle_clearance"))
 
 
 def _score_at(arm, points, s, x, y, h, yaw, tilt, q0=None):
@@ -695,7 +706,11 @@ class MountSearch(StudyKind):
                              "(the unmet ones included)"),)
         if s.collisions:
             fields += (Field("min_clearance", (), "float64", "m",
-                             "smallest clearance (m) over the reached work points at the chosen solutions"),
+                             "smallest clearance (m) over the reached work points at the chosen solutions, to the "
+                             "cell's obstacles and between the arm's own links"),
+                       Field("min_obstacle_clearance", (), "float64", "m",
+                             "smallest clearance (m) between the arm and the cell's obstacles over the served work "
+                             "points (the quality's clearance factor)"),
                        Field("base_clearance", (), "float64", "m",
                              "clearance (m) between the base's shapes and the cell's obstacles (below the "
                              "clearance setting: the candidate reaches nothing)"),
@@ -738,7 +753,10 @@ def _clearance_columns(plan, ev) -> dict:
         return {}
     d = np.where(ev["reached"], ev["clearance"], np.inf)
     worst = np.where(ev["reached"].any(axis=-1), d.min(axis=-1), np.nan)
-    return {"min_clearance": worst, "base_clearance": ev["base_clearance"],
+    ob = np.where(ev["reached"], ev["obstacle_clearance"], np.inf)
+    ob_worst = np.where(ev["reached"].any(axis=-1), ob.min(axis=-1), np.nan)
+    return {"min_clearance": worst, "min_obstacle_clearance": np.where(np.isfinite(ob_worst), ob_worst, np.nan),
+            "base_clearance": ev["base_clearance"],
             "point_clearance": np.where(np.isfinite(ev["clearance"]), ev["clearance"], np.nan),
             "point_colliding": ev["colliding"].astype(np.uint8)}
 
@@ -928,8 +946,10 @@ def summarise_mount_search(plan, arrays, top: int = 20) -> dict:
     units = {}
     if s.collisions:  # clearance (mm) at the chosen solutions; 'colliding': reached only below the setting
         cols["clearance"] = ev["clearance"][0] * 1000.0
+        cols["obstacle_clearance"] = np.where(ev["reached"][0], ev["obstacle_clearance"][0] * 1000.0, np.nan)
         cols["colliding"] = ev["colliding"][0].astype(int)
         units["clearance"] = "mm"
+        units["obstacle_clearance"] = "mm"
     for j, joint in enumerate(arm.model.joints):  # joint values at the recommended mount
         cols[f"q_{joint.name}"] = np.degrees(ev["q"][0][:, j]) if joint.revolute else ev["q"][0][:, j] * 1000
         units[f"q_{joint.name}"] = "deg" if joint.revolute else "mm"
