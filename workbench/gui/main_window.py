@@ -2,7 +2,6 @@
 state and one shared selection. Opening files, running studies, exporting."""
 from __future__ import annotations
 
-import dataclasses
 import os
 import shutil
 import tempfile
@@ -12,6 +11,7 @@ import numpy as np
 from PySide6 import QtCore, QtGui, QtWidgets
 
 from .. import __version__
+from ..document import Document, with_mount
 from ..errors import WorkbenchError
 from .arm_panel import ArmPanel
 from .cellview import CellContent, cell_content
@@ -21,7 +21,7 @@ from .posestate import PoseState
 from .result_views import LIVE_MAX_CELLS, HistogramView, MapView, PoseListView
 from .resultdata import ResultData
 from .project import Project, folder_beside_study
-from .runs import StudySession, StudyWorker, session_from_results, session_from_spec
+from .runs import StudySession, StudyWorker, session_from_spec
 from .scene import make_scene
 from .selection import Selection
 from .study_panel import StudyPanel
@@ -131,20 +131,17 @@ class MainWindow(QtWidgets.QMainWindow):
 
     def __init__(self, settings: QtCore.QSettings | None = None, load_demo=True, reopen=True):
         super().__init__()
+        #: arm, cell, study, results and selection (Qt-free, workbench/document.py); the window
+        #: changes it through its methods and redraws from its events (see _doc_changed)
+        self.doc = Document()
         self.settings = settings if settings is not None else QtCore.QSettings(ORG_NAME, APP_NAME)
         self.setWindowTitle("Manipulability Workbench")
-        self.arm_path = None
-        self.cell = None
-        self.cell_path = None
-        self.session: StudySession | None = None
         self.result: ResultData | None = None
         self.thread = None
         self.worker = None
         self.last_error = ""
         self.error_box = None
         self._closing = False
-        self.results_file = None
-        self.study_file = None      # the study file the form came from (its folder holds the runs)
         self.project = None         # the results folder of the last run (workbench.gui.project)
         self.report_thread = None
         self.report_worker = None
@@ -161,7 +158,7 @@ class MainWindow(QtWidgets.QMainWindow):
 
         kernels.set_threads(1)
         arm = _load_arm(DEMO_ARM)
-        self.arm_path = DEMO_ARM
+        self.doc.arm, self.doc.arm_path = arm, DEMO_ARM
         self.state = PoseState(arm)
         self.selection = Selection(0)
 
@@ -260,6 +257,7 @@ class MainWindow(QtWidgets.QMainWindow):
         self.status = self.statusBar()
 
         # ---- wiring ----------------------------------------------------------------------
+        self.doc.subscribe(self._doc_changed)
         self.state.subscribe(self._state_changed)
         self.selection.subscribe(self._selection_changed)
         self.map_view.cell_picked.connect(self.pick_cell)
@@ -287,9 +285,10 @@ class MainWindow(QtWidgets.QMainWindow):
             demo_cell = find_demo_cell()
             if demo_cell:
                 try:
-                    self._apply_cell(demo_cell)
+                    self.doc.load_cell(demo_cell, place_arm=False)
                     if self.cell.placement is not None:   # the arm stands where the cell places it
                         self.state.set_arm(self._with_mount(self.state.arm, self.cell.placement), notify=False)
+                        self.doc.arm = self.state.arm
                 except WorkbenchError as exc:
                     self.status.showMessage(f"demo cell not loaded: {exc}", 10000)
         self._arm_changed()
@@ -478,9 +477,7 @@ class MainWindow(QtWidgets.QMainWindow):
             if kind in ("arm", "urdf"):
                 self._apply_arm(path)
             elif kind == "cell":
-                self._apply_cell(path)
-                self._set_arm(self._with_mount(self.state.arm, np.eye(4)) if self.cell.placement is None
-                              else self.state.arm)
+                self.doc.load_cell(path)     # the arm stands at the cell's placement (or the origin)
             elif kind == "study":
                 self._apply_study(path)
             else:
@@ -502,75 +499,31 @@ class MainWindow(QtWidgets.QMainWindow):
 
     def _apply_arm(self, path):
         arm = _load_arm(path)            # raises before anything changes
-        self.arm_path = os.path.abspath(path)
-        self._set_arm(arm)
+        self.doc.set_arm(arm, path)
 
     def _set_arm(self, arm):
-        if self.cell is not None and getattr(self.cell, "placement", None) is not None:
-            arm = self._with_mount(arm, self.cell.placement)
-        self.state.set_arm(arm)
-        self.study_panel.set_context(self.state.arm, self.arm_path, self.cell, self.cell_path)
+        """Use ``arm`` (at the cell's placement, if the cell places it)."""
+        self.doc.set_arm(arm)
 
     @staticmethod
     def _with_mount(arm, mount):
-        from ..kinematics import Arm
-
-        return Arm(dataclasses.replace(arm.model, mount=np.asarray(mount, float)))
+        return with_mount(arm, mount)
 
     def _place_arm(self, mount):
         """Move the arm's base to ``mount`` (4, 4) for display (a mount search cell, a path audit)."""
         if mount is None or np.allclose(self.state.arm.model.mount, mount):
             return
-        self.state.set_arm(self._with_mount(self.state.arm, mount))
+        self.doc.move_arm(mount)
 
     def _apply_cell(self, path):
-        from ..studies.cell import read_cell_file
-
-        cell = read_cell_file(path)
-        content = cell_content(cell)
-        self.cell, self.cell_path = cell, os.path.abspath(path)
-        self.cell_content = content
-        self.scene.set_cell(content)
-        self.arm_panel.refresh()
+        self.doc.load_cell(path, place_arm=False)
 
     def _apply_study(self, path):
-        from ..studies import load_context, read_study_file
-
-        spec = read_study_file(path)
-        arm, cell, _, _ = load_context(spec)
-        session_from_spec(spec, arm, cell)  # plan now: bad settings fail before anything changes
-        if cell is not None:
-            self.cell, self.cell_path = cell, spec.cell_path
-            self.cell_content = cell_content(cell)
-            self.scene.set_cell(self.cell_content)
-            self.arm_panel.refresh()
-        self.arm_path = spec.arm_path
-        self._set_arm(arm)
-        self.study_panel.load_spec(spec)
-        self.study_file = os.path.abspath(path)
-        self.clear_result()        # the previous study's result, summary and file no longer apply
+        self.doc.load_study(path, cls=StudySession)   # cell, arm, study, results (cleared)
         self.refresh_runs()
 
     def _apply_results(self, path):
-        from ..results import read_results
-
-        res = read_results(path)                 # raises a one-line error for a bad file
-        session = session_from_results(res)      # ... and so does a file whose study cannot be re-planned
-        self.session = session
-        self.results_file = os.path.abspath(path)
-        self._show_tables(res.tables)
-        if session.cell is not None:
-            self.cell, self.cell_path = session.cell, session.spec.cell_path
-            self.cell_content = cell_content(session.cell)
-            self.scene.set_cell(self.cell_content)
-            self.arm_panel.refresh()
-        self.arm_path = session.spec.arm_path
-        self._set_arm(session.arm)
-        try:      # the form shows the study behind the file (its kind and settings)
-            self.study_panel.load_spec(session.spec)
-        except WorkbenchError as exc:
-            self.status.showMessage(f"the study of this file is not offered here: {exc}", 8000)
-        self.show_result(session.data)
+        session = self.doc.open_results(path, cls=StudySession)   # cell, arm, results
         from .selection import brush_file, load_brushes
 
         saved = load_brushes(brush_file(self.results_file))
@@ -578,7 +531,48 @@ class MainWindow(QtWidgets.QMainWindow):
             self.selection.set_brushes(saved, source="reopen")
         self.settings.setValue("last_results", self.results_file)
         self.status.showMessage(f"results of {session.spec.name}: {100 * session.data.fraction_done:.0f}% of "
-                                f"the cells computed" + (" (incomplete run)" if res.incomplete else ""), 10000)
+                                f"the cells computed" + (" (incomplete run)" if session.incomplete else ""), 10000)
+
+    # ---- the document: state lives there, the window redraws from its events ---------------
+    arm_path = property(lambda self: self.doc.arm_path, lambda self, v: setattr(self.doc, "arm_path", v))
+    cell = property(lambda self: self.doc.cell, lambda self, v: setattr(self.doc, "cell", v))
+    cell_path = property(lambda self: self.doc.cell_path, lambda self, v: setattr(self.doc, "cell_path", v))
+    session = property(lambda self: self.doc.session, lambda self, v: setattr(self.doc, "session", v))
+    results_file = property(lambda self: self.doc.results_file,
+                            lambda self, v: setattr(self.doc, "results_file", v))
+    study_file = property(lambda self: self.doc.study_file, lambda self, v: setattr(self.doc, "study_file", v))
+
+    def _doc_changed(self, event, p):
+        """Redraw what a document event changed (the events are listed in workbench/document.py)."""
+        if event == "cell":
+            if p["cell"] is not None:
+                self.cell_content = cell_content(p["cell"])
+                self.scene.set_cell(self.cell_content)
+            self.arm_panel.refresh()
+        elif event == "arm":
+            self.state.set_arm(p["arm"])
+            if p["path"] is not None:     # None: the same arm moved to a mount (a picked cell)
+                self.study_panel.set_context(self.state.arm, self.arm_path, self.cell, self.cell_path)
+        elif event == "study":
+            self.study_panel.load_spec(p["spec"])
+        elif event == "results":
+            session = p["session"]
+            if session is None:
+                self._clear_views()
+                return
+            if p["path"] is not None:     # a results file: its tables and the study behind it
+                self._show_tables(session.tables)
+                try:
+                    self.study_panel.load_spec(session.spec)
+                except WorkbenchError as exc:
+                    self.status.showMessage(f"the study of this file is not offered here: {exc}", 8000)
+            self.show_result(session.data)
+        elif event == "chunk":
+            if not self._refresh_timer.isActive():
+                self._refresh_timer.start()
+        elif event == "picked":
+            if p["cell"] is not None:
+                self.map_view.mark_cell(p["cell"])
 
     # ---- the project folder: results of runs are kept ---------------------------------------
     def project_folder(self) -> str:
@@ -745,9 +739,7 @@ class MainWindow(QtWidgets.QMainWindow):
             self.show_error(str(exc))
             return False
         self.project = project
-        self.session = session
-        self.results_file = None
-        self.show_result(session.data)
+        self.doc.start_results(session)
         if session.data.size > LIVE_MAX_CELLS:
             self.hist_view.info.setText(f"{session.data.size:,} cells: the histogram and the pose list "
                                         f"follow when the run ends; the map shows every chunk")
@@ -773,9 +765,7 @@ class MainWindow(QtWidgets.QMainWindow):
     def _on_chunk(self, start, stop, arrays):
         if self.session is None or self.worker is None:
             return
-        self.session.store(start, stop, arrays)
-        if not self._refresh_timer.isActive():
-            self._refresh_timer.start()
+        self.doc.store_chunk(start, stop, arrays)     # "chunk": the redraw timer starts
 
     def _on_cells(self, done, total, left):
         """Progress of the run: the bar and the time left, at most every PROGRESS_S (the last always)."""
@@ -820,7 +810,7 @@ class MainWindow(QtWidgets.QMainWindow):
         self._refresh_results()
         self.study_panel.show_finished(status)
         if path:
-            self.results_file = path
+            self.doc.set_results_file(path)
             self.settings.setValue("last_results", path)
             self._save_brushes()          # brushes drawn during the run stay with its file
         self.refresh_runs()
@@ -854,9 +844,10 @@ class MainWindow(QtWidgets.QMainWindow):
     # ---- results -------------------------------------------------------------------------
     def clear_result(self):
         """No result behind the views (a new study was loaded): empty map, list and summary."""
-        self.session = None
+        self.doc.clear_results()
+
+    def _clear_views(self):
         self.result = None
-        self.results_file = None
         self.selection.resize(0)
         empty = ResultData(kind="", shape=(1, 1), x=np.zeros(1), y=np.zeros(1), x_label="", y_label="",
                            measures={"inverse_condition": np.full(1, np.nan)})
@@ -971,6 +962,7 @@ class MainWindow(QtWidgets.QMainWindow):
     def _selection_changed(self, sel, source, final):
         if not final or self.result is None or sel.size != self.result.size:
             return
+        self.doc.select(sel.mask if sel.active else None, source)
         if source not in (None, "reopen"):     # None: a new result starting empty
             self._save_brushes()
         if not self.result.is_map:
@@ -1011,7 +1003,7 @@ class MainWindow(QtWidgets.QMainWindow):
         if d.mount_fn is not None:
             self._place_arm(d.mount_fn(c))
         self.state.set_q(q)
-        self.map_view.mark_cell(c)
+        self.doc.pick(c)
         x, y = d.cell_xy(c)
         self.status.showMessage(f"cell {c:,} ({d.x_label} {fmt_number(x)}"
                                 + (f", {d.y_label} {fmt_number(y)}" if y is not None else "") + ")", 6000)

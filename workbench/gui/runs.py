@@ -10,13 +10,12 @@ the chunks already finished (the file is closed and marked incomplete).
 from __future__ import annotations
 
 import os
-import tomllib
 
 import numpy as np
 from PySide6 import QtCore
 
+from ..document import StudyResults, results_from_file, results_from_spec
 from ..errors import WorkbenchError
-from ..studies import calibrate, get_kind, load_context
 from .resultdata import ResultData
 from .workers import Worker
 
@@ -35,37 +34,18 @@ def _axis_label(ax):
     return f"{ax.label} ({unit})" if unit else ax.label
 
 
-class StudySession:
-    """One study: kind, plan, arm, cell and the flat arrays the views show.
+class StudySession(StudyResults):
+    """One study behind the window: the document's :class:`~workbench.document.StudyResults`
+    (kind, plan, arm, cell, flat arrays) plus ``data``, the :class:`ResultData` the views show.
 
-    Parameters
-    ----------
-    kind : StudyKind
-    plan : Plan
-    arm : workbench.kinematics.Arm
-    cell : object or None
-    arrays : dict, optional
-        ``{field: (cells, *shape)}`` already computed (a results file); empty arrays otherwise.
-    done : (cells,) bool, optional
+    Parameters as :class:`~workbench.document.StudyResults`.
     """
 
     def __init__(self, kind, plan, arm, cell=None, arrays=None, done=None):
-        self.kind, self.plan, self.arm, self.cell = kind, plan, arm, cell
-        self.spec = plan.spec
-        if arrays is None:
-            arrays = {f.name: f.empty(plan.cells) for f in plan.fields}
-        self.arrays = {k: np.asarray(v) for k, v in arrays.items()}   # each (cells, *field shape)
-        #: (plan.cells,) which cells of the plan's grid are computed (the views may show fewer
-        #: cells: a mount search's floor map reduces over styles, heights and yaws)
-        self.cells_done = np.zeros(plan.cells, bool) if done is None else \
-            np.asarray(done, bool).reshape(-1).copy()
+        super().__init__(kind, plan, arm, cell, arrays=arrays, done=done)
         self.data = self._result_data()
         if done is not None and self.data.size == plan.cells:
             self.data.done[:] = self.cells_done
-
-    def estimate(self):
-        """:class:`workbench.studies.Estimate` (times a few cells)."""
-        return calibrate(self.kind, self.plan, self.arm, self.cell, sample_cells=512)
 
     # ---- the view of the result ----------------------------------------------------------
     def _result_data(self) -> ResultData:
@@ -202,53 +182,20 @@ class StudySession:
 
     def store(self, start, stop, arrays) -> None:
         """Keep one finished chunk's arrays (``{field: (stop - start, *shape)}``)."""
-        for name, v in arrays.items():
-            if name in self.arrays:
-                self.arrays[name][start:stop] = np.asarray(v).reshape((stop - start,) + self.arrays[name].shape[1:])
-        self.cells_done[start:stop] = True
+        super().store(start, stop, arrays)
         if self.data.size == self.plan.cells:
             self.data.done[start:stop] = True
-
-    @property
-    def complete(self) -> bool:
-        return bool(self.cells_done.all())
 
 
 def session_from_spec(spec, arm=None, cell=None) -> StudySession:
     """Plan ``spec`` (loading its arm and cell files unless given)."""
-    if arm is None:
-        arm, cell, _, _ = load_context(spec)
-    kind = get_kind(spec.kind)
-    return StudySession(kind, kind.plan(spec, arm, cell), arm, cell)
+    return results_from_spec(spec, arm, cell, cls=StudySession)
 
 
 def session_from_results(res) -> StudySession:
-    """A session over a :class:`workbench.results.Results` read from a file: the arm and cell come
-    from the texts stored in the file, the plan from the stored study."""
-    from ..arm.files import parse_arm_dict
-    from ..kinematics import Arm
-    from ..studies.cell import parse_cell_text
-
-    where = res.path or "results"
-    if not res.arm_text:
-        raise WorkbenchError(f"{where}: the results file holds no arm file text")
-    try:
-        arm = Arm(parse_arm_dict(tomllib.loads(res.arm_text), source_name=f"{where}: /inputs/arm",
-                                 text=res.arm_text))
-    except tomllib.TOMLDecodeError:
-        spec = res.spec()
-        arm, _, _, _ = load_context(spec)   # the arm was a URDF: read it from its file
-    cell = parse_cell_text(res.cell_text, f"{where}: /inputs/cell") if res.cell_text else None
-    spec = res.spec()
-    kind = get_kind(res.kind, where=f"{where}: kind")
-    plan = kind.plan(spec, arm, cell)
-    if plan.shape != res.shape:
-        raise WorkbenchError(f"{where}: the stored study gives a grid {plan.shape}, the file holds {res.shape}")
-    arrays = {f.name: res.flat(f.name) for f in res.fields}
-    done = res.done_mask().reshape(-1)
-    s = StudySession(kind, plan, arm, cell, arrays=arrays, done=done)
-    s.tables = dict(res.tables)
-    return s
+    """A session over a :class:`workbench.results.Results` read from a file (see
+    :func:`workbench.document.results_from_file`)."""
+    return results_from_file(res, cls=StudySession)
 
 
 class StudyWorker(Worker):
