@@ -2,6 +2,8 @@
 gives it, per-point values that reproduce the ranking's score, verdicts, risks whose "what to
 change" holds when re-solved, comparisons."""
 import math
+import re
+from pathlib import Path
 
 import numpy as np
 import pytest
@@ -9,6 +11,8 @@ import pytest
 from workbench.decision import (FAIL, NOT_CHECKED, PASS, arm_shapes, compare_decisions, decision_for, fmt_deg,
                                 fmt_mm, fmt_number, fmt_percent)
 from workbench.errors import WorkbenchError
+
+ROOT = Path(__file__).resolve().parents[1]
 
 
 
@@ -176,3 +180,42 @@ def test_comparisons(decs):
     assert c.labels == ("A", "B") and c.best == 0
     assert c.differences == ("no difference in placement, arm, cell or settings",)
     assert set(c.keys) >= {"inverse_condition", "speed_ratio", "clearance"}
+
+
+def _capsule_box_distance(a, b, r, box):
+    """Signed distance (m) of a capsule (segment a-b, radius r) to a yawed box, by dense sampling of
+    the segment and the closed-form point-to-box signed distance (outside: norm of the excess over
+    the half sizes; inside: minus the distance to the nearest face). Common practice."""
+    t = np.linspace(0.0, 1.0, 20001)[:, None]
+    p = (a + t * (b - a) - box.center) @ box.rotation  # into the box frame
+    e = np.abs(p) - box.size / 2
+    out = np.linalg.norm(np.maximum(e, 0.0), axis=1)
+    inside = np.minimum(e.max(axis=1), 0.0)
+    return float((out + inside).min() - r)
+
+
+def test_a_path_that_strikes_the_equipment_is_risk_one_and_the_answer_names_the_failing_path(tmp_path):
+    """The tray demo's camera pass from the cell's [placement]: link 2 passes through the conveyor.
+    The collision is the first risk (a strike outranks a slow or singular stretch), its depth matches
+    an independent capsule-box distance at the drawn pose, and the answer says which paths fail."""
+    from workbench.results import read_results
+    from workbench.runner import run_study
+
+    run_study(str(ROOT / "arms" / "cells" / "tray_path_audit.toml"), out=str(tmp_path / "a.h5"))
+    r = read_results(str(tmp_path / "a.h5"))
+    d = decision_for(r)
+    top = d.risks[0]
+    assert top.key == "clearance" and "box 'conveyor'" in top.what and top.where.startswith("camera_pass, ")
+    assert "would strike the equipment" in top.what
+    depth_mm = float(re.search(r"overlaps box 'conveyor' by (\d+) mm", top.what).group(1))
+    arm = d.arm
+    cell = r.context()[3]
+    conveyor = next(b for b in cell.boxes if b.name == "conveyor")
+    F = arm.frames(top.pose, world=True)  # frame of each joint; link 2's capsule lives in frame 2
+    shp = arm.model.body_shapes()[2][0]
+    a = (F[1] @ np.append(shp.a, 1.0))[:3]
+    b = (F[1] @ np.append(shp.b, 1.0))[:3]
+    assert _capsule_box_distance(a, b, shp.radius, conveyor) * 1000 == pytest.approx(-depth_mm, abs=0.6)
+    ans = d.recommendation.answer
+    assert "camera_pass fails" in ans and "glue_seam and transfer pass every checked requirement" in ans
+    assert "Avoid: camera_pass, " in ans

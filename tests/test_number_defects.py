@@ -110,7 +110,7 @@ def test_mount_search_refine_zero_keeps_the_best_grid_candidate():
                          math.radians(rank["yaw"][0]), 0.0)[None]
     ev = evaluate_mounts(arm, M, cell.points, plan.settings, choose="best")
     sc = score_candidates(ev["reached"], ev["measure"], ev["margin"], plan.settings, torque=ev["torque_margin"],
-                          clearance=ev["clearance"])
+                          clearance=ev["obstacle_clearance"])
     assert sc["score"][0] == pytest.approx(rank["score"][0], rel=1e-9)
     assert sc["rank_value"][0] == pytest.approx(rank["rank_value"][0], rel=1e-12)
     assert best["reached"].tolist() == ev["reached"][0].astype(int).tolist()

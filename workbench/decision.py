@@ -498,6 +498,59 @@ def _decompose(T):
     return float(x), float(y), float(h), float(yaw % (2 * math.pi)), float(tilt), style
 
 
+#: severity of a collision risk: above every other kind (a strike damages the cell; the others cost
+#: speed, accuracy or a stop), deeper overlaps first
+COLLISION_SEVERITY = 20.0
+
+
+def _limit_severity(margin):
+    """Severity of a joint-limit risk: 1 + log10(LIMIT_MARGIN / margin), so >= 1 exactly when the
+    margin fails, and bounded (a joint at its limit stops the arm; it does not outrank a collision
+    or an exact singularity, whose severities are log-scaled the same way)."""
+    return 1.0 + math.log10(LIMIT_MARGIN / max(float(margin), 1e-12))
+
+
+def _collision_risks(ctx, a, q, names, pidx, dist, asked):
+    """One risk per span of path samples closer than the clearance setting (table
+    ``clearance_spans``): the pair in words, how deep, and what to change."""
+    t = ctx.table("clearance_spans")
+    if t is None:
+        return []
+    c = t.columns
+    out = []
+    for i in range(t.rows):
+        path, lo, hi = _s(c["path"][i]), float(c["from"][i]), float(c["to"][i])
+        mc, at, pair = float(c["min_clearance"][i]), float(c["at"][i]), _s(c["pair"][i])
+        try:
+            p = names.index(path)
+        except ValueError:
+            p = -1
+        m = np.flatnonzero((pidx == p) & np.isfinite(dist))
+        k = int(m[np.argmin(np.abs(dist[m] * 1000 - at))]) if m.size else None
+        bodies = pair.split(" - ")
+        own = len(bodies) == 2 and not any(b.startswith(("box", "floor", "pillar", "keep-out", "cylinder", "sphere",
+                                                         "obstacle", "mesh")) for b in bodies)
+        # the table is in mm; fmt_mm takes metres
+        what = (f"{_s(c['note'][i])} at {fmt_mm(at / 1000)} mm (clearance below the {fmt_mm(asked)} mm asked from "
+                f"{fmt_mm(lo / 1000)} to {fmt_mm(hi / 1000)} mm)")
+        if mc < 0.5:  # mm: touching or overlapping
+            what += ": the arm would strike " + ("itself" if own else "the equipment") + " on this motion"
+        change = ("change the tool's orientation along this stretch or move the path or the base so that the arm "
+                  "folds less" if own else
+                  f"move the path or the base away from {bodies[-1]}, or change the tool's orientation along this "
+                  f"stretch")
+        out.append(Risk("clearance", f"{path}, {fmt_mm(lo / 1000)}-{fmt_mm(hi / 1000)} mm", what, change,
+                        COLLISION_SEVERITY + max(0.0, -mc) / 10.0, None if k is None else q[k],
+                        None if k is None else np.asarray(a["xyz"][k], float)))
+    return out
+
+
+def _and(items):
+    """'a', 'a and b', 'a, b and c'."""
+    items = list(items)
+    return items[0] if len(items) == 1 else ", ".join(items[:-1]) + " and " + items[-1]
+
+
 def _rank_risks(risks, top=3):
     risks = sorted(risks, key=lambda r: -r.severity)
     return tuple(risks[:top]), tuple(risks[top:])
@@ -859,7 +912,7 @@ def _mount_risks(ctx, arm, points, q, reached, meas, margin, mj, thr, s, length,
                       f"{fmt_number(nud[2])}")
         else:
             change = "no 5 cm move of the point helps; a mount turned about its vertical axis may"
-        risks.append(Risk("limit_margin", names[k], what, change, LIMIT_MARGIN / max(margin[k], 1e-300), q[k],
+        risks.append(Risk("limit_margin", names[k], what, change, _limit_severity(margin[k]), q[k],
                           np.asarray(points[k].position, float)))
     pv = next((v for v in verdicts if v.key == "placement_error"), None)
     if pv is not None and pv.value is not None and not math.isfinite(pv.value):
@@ -1017,22 +1070,47 @@ def _path_decision(ctx: _Ctx) -> Decision:
                 risks.append(Risk("limit_margin", where[k], f"closest to a joint limit (margin {fmt_number(margin[k])}): "
                               f"{_near_limit(arm0, q[k], int(jk[0]))}",
                               "move the path or the base so that this joint turns less" if margin[k] < LIMIT_MARGIN
-                              else "room is left", LIMIT_MARGIN / max(margin[k], 1e-300), q[k],
+                              else "room is left", _limit_severity(margin[k]), q[k],
                               np.asarray(a["xyz"][k], float)))
+    if checked:
+        risks += _collision_risks(ctx, a, q, names, pidx, dist, asked)
     top, rest = _rank_risks(risks)
     if top and top[0].pose is not None:
-        pose, label = top[0].pose, f"the arm drawn at {top[0].where} (risk 1)"
+        shown = top[0].where
+        if top[0].key == "clearance":  # the pose of the span's smallest clearance
+            shown = f"{shown.split(', ')[0]} at {top[0].what.split(' (clearance')[0].rsplit(' at ', 1)[-1]}"
+        pose, label = top[0].pose, f"the arm drawn at {shown} (risk 1)"
     else:
         k = int(np.nanargmin(np.where(reached, inv, np.inf))) if reached.any() else 0
         pose, label = q[k], f"the arm drawn at {where[k]}"
     fails = [v for v in verdicts if v.status == FAIL]
-    answer = (f"With the base at x = {fmt_mm(x)} mm, y = {fmt_mm(y)} mm, height {fmt_mm(h)} mm, yaw {fmt_deg(yaw)} deg "
-              f"({src}), {len(names)} path{'s' if len(names) != 1 else ''} ({', '.join(names)}) "
-              + (f"fail {len(fails)} check{'s' if len(fails) != 1 else ''}: "
-                 f"{', '.join(v.requirement.split(' (')[0].lower() for v in fails)}." if fails else
-                 "pass every checked requirement."))
-    if spans:
-        answer += " Avoid: " + "; ".join(rk.where for rk in risks if rk.key == "near_singular") + "."
+    # which paths hold a failing sample (the verdicts are over all paths together)
+    with np.errstate(invalid="ignore"):
+        bad_sample = done & (~reached | flips | (reached & (inv < thr)) | (reached & (margin < LIMIT_MARGIN)))
+        if has_limits:
+            bad_sample |= reached & (ratio > 1)
+        if clear is not None and checked:
+            bad_sample |= reached & (clear < asked)
+        if torque is not None:
+            bad_sample |= reached & (torque < 0)
+    failing = [nm for p, nm in enumerate(names) if (bad_sample & (pidx == p)).any()] if fails else []
+    passing = [nm for nm in names if nm not in failing]
+    head = (f"With the base at x = {fmt_mm(x)} mm, y = {fmt_mm(y)} mm, height {fmt_mm(h)} mm, yaw {fmt_deg(yaw)} deg "
+            f"({src}), ")
+    checks = ", ".join(v.requirement.split(' (')[0].lower() for v in fails)
+    if not fails:
+        answer = head + (f"{len(names)} path{'s' if len(names) != 1 else ''} ({', '.join(names)}) pass every "
+                         f"checked requirement.")
+    elif failing and passing:
+        answer = head + (f"{_and(failing)} fail{'s' if len(failing) == 1 else ''} {len(fails)} "
+                         f"check{'s' if len(fails) != 1 else ''} ({checks}); {_and(passing)} "
+                         f"pass{'es' if len(passing) == 1 else ''} every checked requirement.")
+    else:
+        answer = head + (f"{len(names)} path{'s' if len(names) != 1 else ''} ({', '.join(names)}) fail "
+                         f"{len(fails)} check{'s' if len(fails) != 1 else ''}: {checks}.")
+    avoid = [rk.where for rk in sorted(risks, key=lambda r: -r.severity) if rk.key in ("clearance", "near_singular")]
+    if avoid:
+        answer += " Avoid: " + "; ".join(dict.fromkeys(avoid)) + "."
     rec = Recommendation("placement", QUESTIONS["path_audit"], answer, x, y, h, yaw, style, tilt, M, src, None,
                          np.asarray(pose, float), label)
     return Decision("path_audit", _s(r.name), rec.question, rec, tuple(verdicts), top, rest, (), ctx.names,

@@ -118,6 +118,8 @@ def span_sentence(pair: tuple, distance: float) -> str:
     ``link 3 overlaps box 'conveyor' by 2 mm``)."""
     a, b = pair
     mm = distance * 1000.0
+    if -0.5 < mm < 0.5:  # rounds to 0 mm either way
+        return f"{a} touches {b}"
     if mm < 0:
         return f"{a} overlaps {b} by {-mm:.0f} mm"
     return f"{a} within {mm:.0f} mm of {b}"
