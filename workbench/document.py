@@ -269,13 +269,14 @@ class Document:
         self.clear_results()
         return spec
 
-    def open_results(self, path, cls=StudyResults):
+    def open_results(self, path, cls=StudyResults, build=None):
         """Read a results file (a bad file raises and nothing changes). Fires ``cell`` (if the file
-        holds one), ``arm``, ``results``. Returns the session."""
+        holds one), ``arm``, ``results``. ``build(res)`` makes the session (default:
+        :func:`results_from_file` with ``cls``). Returns the session."""
         from .results import read_results
 
         res = read_results(path)
-        session = results_from_file(res, cls=cls)
+        session = build(res) if build is not None else results_from_file(res, cls=cls)
         if session.cell is not None:
             self.set_cell(session.cell, session.spec.cell_path)
         self.set_arm(session.arm, session.spec.arm_path)

@@ -21,7 +21,7 @@ from .posestate import PoseState
 from .result_views import LIVE_MAX_CELLS, HistogramView, MapView, PoseListView
 from .resultdata import ResultData
 from .project import Project, folder_beside_study
-from .runs import StudySession, StudyWorker, session_from_spec
+from .runs import StudySession, StudyWorker, session_from_results, session_from_spec
 from .scene import make_scene
 from .selection import Selection
 from .study_panel import StudyPanel
@@ -523,7 +523,7 @@ class MainWindow(QtWidgets.QMainWindow):
         self.refresh_runs()
 
     def _apply_results(self, path):
-        session = self.doc.open_results(path, cls=StudySession)   # cell, arm, results
+        session = self.doc.open_results(path, build=session_from_results)   # cell, arm, results
         from .selection import brush_file, load_brushes
 
         saved = load_brushes(brush_file(self.results_file))
