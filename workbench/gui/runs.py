@@ -16,6 +16,7 @@ from PySide6 import QtCore
 
 from ..document import StudyResults, results_from_file, results_from_spec
 from ..errors import WorkbenchError
+from ..presenters import presenter
 from .resultdata import ResultData
 from .workers import Worker
 
@@ -50,10 +51,11 @@ class StudySession(StudyResults):
     # ---- the view of the result ----------------------------------------------------------
     def _result_data(self) -> ResultData:
         plan = self.plan
-        if plan.kind == "mount_search" and len(plan.axes) == 5:
+        view = presenter(plan.kind).view        # workbench/presenters.py: how the kind is shown
+        if view == "floor" and len(plan.axes) == 5:
             return self._mount_view()
         data = self._grid_view()
-        if plan.kind == "path_audit" and "s" in plan.data:
+        if view == "path" and "s" in plan.data:
             self._path_axis(data)
         mount = plan.data.get("mount")
         if isinstance(mount, np.ndarray) and mount.shape == (4, 4):
@@ -97,7 +99,7 @@ class StudySession(StudyResults):
 
     def refresh_derived(self):
         """Recompute views that reduce the raw arrays (the mount search floor map) after new chunks."""
-        if self.plan.kind != "mount_search" or len(self.plan.axes) != 5:
+        if presenter(self.plan.kind).view != "floor" or len(self.plan.axes) != 5:
             return
         fresh = self._mount_view()
         for k, v in fresh.measures.items():
@@ -176,7 +178,7 @@ class StudySession(StudyResults):
                                       if a is not None and a.name in names and data.has_poses}
         if "tcp" in self.arrays and self.arrays["tcp"].shape[1:] == (3,):
             data.tcp = self.arrays["tcp"]
-        if len(axes) == 1 and axes[0].name == "sample" and plan.kind != "path_audit":
+        if len(axes) == 1 and axes[0].name == "sample" and presenter(plan.kind).view != "path":
             data.extras["unordered"] = True    # random samples: the axis is only a count
         return data
 

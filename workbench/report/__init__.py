@@ -23,6 +23,7 @@ import shutil
 import tempfile
 
 from ..errors import WorkbenchError
+from ..presenters import presenter
 
 __all__ = ["ReportError", "build_report", "write_report", "ASSUMPTIONS", "CAUTIONS", "fingerprint", "assumptions",
            "PAPERS", "points_csv_path"]
@@ -206,7 +207,7 @@ def write_report(results, out, *, paper: str = "a4", progress=None) -> str:
         if os.path.abspath(out) in paths:
             raise ReportError(f"--out {out}: is one of the results files; expected a new report name")
     progress(0.02, "results read")
-    csv_path = points_csv_path(out) if (len(loaded) == 1 and loaded[0].kind == "mount_search") else None
+    csv_path = points_csv_path(out) if (len(loaded) == 1 and presenter(loaded[0].kind).points_csv) else None
     if csv_path is not None and os.path.isdir(csv_path):
         raise ReportError(f"--out {out}: {csv_path} is a directory; the report writes its per-point table there; "
                           f"expected another report name")

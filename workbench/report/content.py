@@ -18,6 +18,7 @@ from ..decision import (FAIL, LIMIT_MARGIN, NOT_CHECKED, SENSITIVITY_DROP, fmt_d
                         fmt_percent)
 from . import document as D
 from . import figures as G
+from ..presenters import presenter
 from ..results import recommended_mount
 
 KIND_TITLES = {"mount_search": "Mount search", "path_audit": "Path audit", "load_map": "Load map",
@@ -798,16 +799,18 @@ def _generic_doc(r, dec, progress) -> D.Document:
     return D.Document(f"Layout report: {_s(r.name)}", r.kind, page1, body)
 
 
-BUILD = {"mount_search": _mount_doc, "path_audit": _path_doc, "load_map": _load_doc}
+#: the report layouts a presenter names (``Presenter.report``)
+BUILD = {"mount": _mount_doc, "path": _path_doc, "load": _load_doc, "generic": _generic_doc}
 
 
 def build_document(r, dec, paper="a4", csv_name=None, progress=None) -> D.Document:
     """The whole document of one results file."""
     progress = progress or (lambda f, t: None)
-    if r.kind == "mount_search":
+    layout = presenter(r.kind).report           # workbench/presenters.py
+    if layout == "mount":
         doc = _mount_doc(r, dec, csv_name, progress)
     else:
-        doc = BUILD.get(r.kind, _generic_doc)(r, dec, progress)
+        doc = BUILD.get(layout, _generic_doc)(r, dec, progress)
     doc.body += _assumptions_section(r, dec)
     arm_model = dec.arm.model if dec.arm is not None else None
     doc.body += appendices(r, dec.cell, arm_model)
@@ -870,7 +873,8 @@ def build_comparison(results, decisions, paper="a4", progress=None) -> D.Documen
                           "score"], rows, "The options and their base placements",
                          widths=[0.8, 3.2, 1.6, 1, 1, 1.1, 1, 0.9, 0.9],
                          align=["l", "l", "l", "r", "r", "r", "r", "l", "r"]))
-    samples = [(_path_polylines(r, d) if r.kind == "path_audit" else None) for r, d in zip(results, decisions)]
+    samples = [(_path_polylines(r, d) if presenter(r.kind).path_drawings else None)
+               for r, d in zip(results, decisions)]
     page1.append(D.Figure(G.top_views(decisions, L, samples), "The options seen from above (cell frame, mm), each arm "
                           "drawn at its own risk 1 or weakest point; equipment grey, work points blue, paths orange, "
                           "the base yellow."))
@@ -893,7 +897,7 @@ def build_comparison(results, decisions, paper="a4", progress=None) -> D.Documen
     body += _compare_maps(results, decisions, L)
     body.append(D.Heading("Drawings of the options"))
     for l, r, d in zip(L, results, decisions):
-        samples = _path_polylines(r, d) if r.kind == "path_audit" else None
+        samples = _path_polylines(r, d) if presenter(r.kind).path_drawings else None
         body.append(D.Figure(G.cell_views(d, height=2.9, samples=samples),
                              f"Option {l}: " + _views_caption(d, "its base")))
     if len(cmp.differences) > 8:
@@ -939,9 +943,9 @@ def _compare_verdicts(cmp) -> D.Table:
 def _compare_maps(results, decisions, L) -> list:
     from ..studies.base import Axis
 
-    kind = results[0].kind
+    compare = presenter(results[0].kind).compare     # workbench/presenters.py
     out = []
-    if kind == "mount_search":
+    if compare == "floor":
         Zs, axx, axy, marks, cells = [], [], [], [], []
         for r, d in zip(results, decisions):
             s = np.asarray(r.arrays["rank_value" if "rank_value" in r.arrays else "score"], float)
@@ -965,7 +969,7 @@ def _compare_maps(results, decisions, L) -> list:
                          iv.worst if iv else "-", lm.worst if lm else "-"])
         out.append(D.Table(["option", "rank value", "worst inverse condition", "smallest limit margin"], rows,
                            "Rank values and worst values of the recommended mounts", align=["l", "r", "r", "r"]))
-    elif kind == "path_audit":
+    elif compare == "path":
         names = sorted({n for r in results for n in _path_names(r)}, key=lambda n: [
             _path_names(results[0]).index(n) if n in _path_names(results[0]) else 99])
         thr = decisions[0].thresholds.get("inverse_condition", 0.02)
