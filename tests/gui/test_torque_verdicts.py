@@ -155,3 +155,35 @@ def test_verdicts_tab_and_the_recommended_mount(window, small_cell_results, qtbo
 
     assert vv.table.item(i, 4).background().color().getRgb()[:3] == STATUS_COLOURS[r[4]]
     assert window.scene.recommended() is None          # a path audit recommends no mount
+
+
+def test_while_a_slider_is_dragged_the_torque_chart_follows_the_latest_pose_on_release(window, files, qtbot):
+    """A drag redraws the scene and the measures every step; the torque chart is throttled (the latest
+    pose wins) and shows the released pose at once, equal to the hand statics there."""
+    a, c = files(50)
+    assert window.open_file(a) and window.open_file(c)
+    panel = window.arm_panel
+    row = panel.rows[1]
+    row.slider.setSliderDown(True)
+    row.slider.setValue(int(round(10 * 10)))        # first step: drawn after the throttle at the latest
+    for deg in (15, 20, 25, 30):
+        row.slider.setValue(int(round(deg * 10)))
+    assert panel._torque_pending is not None         # pending: a drag step does not redraw the chart
+    assert np.isclose(window.state.q[1], np.radians(30), atol=np.radians(0.2))   # the pose follows every step
+    row.slider.setSliderDown(False)
+    row.slider.sliderReleased.emit()
+    assert panel._torque_pending is None
+    assert np.allclose(panel.torques.q, window.state.q)
+    links, payload, wrench = _hand(window.state.q[1])
+    assert np.allclose(panel.torques.parts["total"], links + payload + wrench, atol=1e-9)
+
+
+def test_the_tcp_and_angles_never_read_minus_zero(window):
+    from workbench.gui.arm_panel import _one_decimal
+
+    # before: f"{-0.04:.1f}" printed "-0.0" in the TCP and angle fields
+    assert [_one_decimal(v) for v in (-0.04, -0.0, 0.04, -0.06, 12.34)] == ["0.0", "0.0", "0.0", "-0.1", "12.3"]
+    for q in (np.zeros(window.state.arm.n), np.full(window.state.arm.n, 1e-9)):
+        window.state.set_q(q)
+        for key in ("tcp", "rpy"):
+            assert all(t != "-0.0" for t in window.arm_panel.m_labels[key].text().split(", "))

@@ -56,6 +56,7 @@ class _JointRow:
         self.spin.setKeyboardTracking(False)
         self.spin.setMinimumWidth(90)
         self.slider.valueChanged.connect(lambda v: panel._joint_moved(self.k, v / SLIDER_STEPS_PER_UNIT, "slider"))
+        self.slider.sliderReleased.connect(panel._flush_torques)
         self.spin.valueChanged.connect(lambda v: panel._joint_moved(self.k, v, "spin"))
 
     def show(self, disp):
@@ -63,6 +64,16 @@ class _JointRow:
             w.blockSignals(True)
             w.setValue(v)
             w.blockSignals(False)
+
+
+#: while a joint slider is dragged, the torque chart is redrawn at most this often (ms)
+TORQUE_DRAG_MS = 100
+
+
+def _one_decimal(v) -> str:
+    """``v`` with one decimal, never "-0.0"."""
+    t = f"{float(v):.1f}"
+    return "0.0" if t == "-0.0" else t
 
 
 class ArmPanel(QtWidgets.QWidget):
@@ -164,6 +175,12 @@ class ArmPanel(QtWidgets.QWidget):
         tl.setContentsMargins(4, 4, 4, 4)
         self.torques = TorqueChart()
         tl.addWidget(self.torques)
+        # while a slider is dragged the torque chart follows at most every TORQUE_DRAG_MS (the latest
+        # pose wins; the scene, the measures and the clearance follow every step); on release at once
+        self._torque_pending = None
+        self._torque_timer = QtCore.QTimer(self)
+        self._torque_timer.setSingleShot(True)
+        self._torque_timer.timeout.connect(self._flush_torques)
         outer.addWidget(tbox)
         outer.addStretch(1)
         self.error_reporter = None   # set by the main window: fn(message)
@@ -242,14 +259,27 @@ class ArmPanel(QtWidgets.QWidget):
         self.m_labels["min_sv"].setText(f"{m['min_sv']:.4g}")
         self.m_labels["limit_margin"].setText(f"{info.limit_margin:.2f}" + ("" if info.in_limits else "  (outside limits)"))
         p = info.tcp[:3, 3] * 1000
-        self.m_labels["tcp"].setText(f"{p[0]:.1f}, {p[1]:.1f}, {p[2]:.1f}")
+        self.m_labels["tcp"].setText(", ".join(_one_decimal(v) for v in p))
         rpy = np.degrees(matrix_to_rpy(info.tcp[:3, :3]))
-        self.m_labels["rpy"].setText(f"{rpy[0]:.1f}, {rpy[1]:.1f}, {rpy[2]:.1f}")
+        self.m_labels["rpy"].setText(", ".join(_one_decimal(v) for v in rpy))
         self.note.setText(info.note)
         self.m_labels["inverse_condition"].setStyleSheet("color: #b01010" if info.near_singular else "")
         self._check_clearance(info.q)
         self.torques.set_cell(self.cell_source())
-        self.torques.set_pose(self.state.arm, info.q)
+        self._torque_pending = (self.state.arm, np.asarray(info.q, float).copy())
+        if any(r.slider.isSliderDown() for r in self.rows):
+            if not self._torque_timer.isActive():
+                self._torque_timer.start(TORQUE_DRAG_MS)
+        else:
+            self._flush_torques()
+
+    def _flush_torques(self):
+        """Draw the torque chart at the latest pose (after a drag's throttle or on release)."""
+        self._torque_timer.stop()
+        if self._torque_pending is not None:
+            arm, q = self._torque_pending
+            self._torque_pending = None
+            self.torques.set_pose(arm, q)
 
     @property
     def clearance_setting(self) -> float:

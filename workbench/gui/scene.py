@@ -177,7 +177,10 @@ class Scene2D(QtWidgets.QWidget):
         for plane, it in zip(self.planes, self._items):
             p = info.points[:, list(plane)]
             it["arm"].setData(p[:, 0], p[:, 1])
-            it["arm"].setPen(pg.mkPen(NEAR_COLOUR if info.near_singular else ARM_COLOUR, width=4))
+            colour = NEAR_COLOUR if info.near_singular else ARM_COLOUR
+            if it.get("arm_colour") != colour:  # a new pen only when the colour changes
+                it["arm"].setPen(pg.mkPen(colour, width=4))
+                it["arm_colour"] = colour
             o = info.tcp[:3, 3]
             for a, line in enumerate(it["tcp"]):
                 e = o + AXIS_LEN * info.tcp[:3, a]
