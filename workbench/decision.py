@@ -243,6 +243,7 @@ class Risk:
     severity: float
     pose: np.ndarray | None = None
     position: np.ndarray | None = None
+    shown: str = ""   # where ``pose`` is, when it is not ``where`` (a span's worst sample)
 
     @property
     def text(self) -> str:
@@ -510,7 +511,7 @@ def _limit_severity(margin):
     return 1.0 + math.log10(LIMIT_MARGIN / max(float(margin), 1e-12))
 
 
-def _collision_risks(ctx, a, q, names, pidx, dist, asked):
+def _collision_risks(ctx, a, q, names, pidx, dist, asked, arm_bodies):
     """One risk per span of path samples closer than the clearance setting (table
     ``clearance_spans``): the pair in words, how deep, and what to change."""
     t = ctx.table("clearance_spans")
@@ -528,8 +529,7 @@ def _collision_risks(ctx, a, q, names, pidx, dist, asked):
         m = np.flatnonzero((pidx == p) & np.isfinite(dist))
         k = int(m[np.argmin(np.abs(dist[m] * 1000 - at))]) if m.size else None
         bodies = pair.split(" - ")
-        own = len(bodies) == 2 and not any(b.startswith(("box", "floor", "pillar", "keep-out", "cylinder", "sphere",
-                                                         "obstacle", "mesh")) for b in bodies)
+        own = set(bodies) <= set(arm_bodies)  # both bodies of the arm: it strikes itself
         # the table is in mm; fmt_mm takes metres
         what = (f"{_s(c['note'][i])} at {fmt_mm(at / 1000)} mm (clearance below the {fmt_mm(asked)} mm asked from "
                 f"{fmt_mm(lo / 1000)} to {fmt_mm(hi / 1000)} mm)")
@@ -541,7 +541,7 @@ def _collision_risks(ctx, a, q, names, pidx, dist, asked):
                   f"stretch")
         out.append(Risk("clearance", f"{path}, {fmt_mm(lo / 1000)}-{fmt_mm(hi / 1000)} mm", what, change,
                         COLLISION_SEVERITY + max(0.0, -mc) / 10.0, None if k is None else q[k],
-                        None if k is None else np.asarray(a["xyz"][k], float)))
+                        None if k is None else np.asarray(a["xyz"][k], float), f"{path} at {fmt_mm(at / 1000)} mm"))
     return out
 
 
@@ -1073,13 +1073,10 @@ def _path_decision(ctx: _Ctx) -> Decision:
                               else "room is left", _limit_severity(margin[k]), q[k],
                               np.asarray(a["xyz"][k], float)))
     if checked:
-        risks += _collision_risks(ctx, a, q, names, pidx, dist, asked)
+        risks += _collision_risks(ctx, a, q, names, pidx, dist, asked, arm0.model.body_names())
     top, rest = _rank_risks(risks)
     if top and top[0].pose is not None:
-        shown = top[0].where
-        if top[0].key == "clearance":  # the pose of the span's smallest clearance
-            shown = f"{shown.split(', ')[0]} at {top[0].what.split(' (clearance')[0].rsplit(' at ', 1)[-1]}"
-        pose, label = top[0].pose, f"the arm drawn at {shown} (risk 1)"
+        pose, label = top[0].pose, f"the arm drawn at {top[0].shown or top[0].where} (risk 1)"
     else:
         k = int(np.nanargmin(np.where(reached, inv, np.inf))) if reached.any() else 0
         pose, label = q[k], f"the arm drawn at {where[k]}"
