@@ -6,8 +6,6 @@ expected; nothing may be written (no output file, no temporary file) and no inpu
 """
 from __future__ import annotations
 
-import concurrent.futures as cf
-import multiprocessing as mp
 import os
 from pathlib import Path
 
@@ -18,6 +16,7 @@ from workbench import load_arm, measures
 from workbench.cli import main
 from workbench.errors import WorkbenchError
 from workbench.measures import force_ellipsoid
+from workbench.pool import WorkerPool
 from workbench.results import export_csv, export_png, read_results
 from workbench.runner import RunError, prepare, run_study
 from workbench.studies.base import StudyError
@@ -128,14 +127,13 @@ def test_run_refuses_a_fork_bomb_of_workers(tmp_path, capsys):
 def test_a_dead_worker_pool_is_one_clear_error_and_leaves_no_file(tmp_path):
     # before: concurrent.futures BrokenProcessPool escaped with a traceback (e.g. a script starting
     # processes without the __main__ guard); a pool whose workers exit at once stands in for that
-    methods = mp.get_all_start_methods()
-    ctx = mp.get_context("forkserver" if "forkserver" in methods else "spawn")
-    pool = cf.ProcessPoolExecutor(max_workers=1, mp_context=ctx, initializer=os._exit, initargs=(3,))
+    pool = WorkerPool(1, initializer=os._exit, initargs=(3,))
     try:
         with pytest.raises(RunError, match=r"worker processes: a worker stopped .*__main__"):
             run_study(str(study_file(tmp_path)), out=tmp_path / "r.h5", executor="processes", pool=pool)
+        assert pool.pids == []  # the dead pool was taken down, nothing left behind
     finally:
-        pool.shutdown(wait=False, cancel_futures=True)
+        pool.terminate()
     assert listing(tmp_path) == ["s.toml"]
 
 

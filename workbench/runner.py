@@ -9,8 +9,8 @@ Executors
 ---------
 ``"inprocess"``  chunks computed one after another in the calling thread; the compiled kernels use
                  all numba threads.
-``"processes"``  a ``concurrent.futures.ProcessPoolExecutor`` (spawn context, never fork:
-                 numba's thread pool does not survive a fork); each worker process uses 1 numba
+``"processes"``  a :class:`~workbench.pool.WorkerPool` (spawn context, never fork: numba's
+                 thread pool does not survive a fork); each worker process uses 1 numba
                  thread so processes do not oversubscribe the cores. Default: one per core.
 ``"dask"``       a ``dask.distributed`` Client: ``scheduler="local"`` starts a LocalCluster (one
                  single-threaded worker process per core, or ``workers``) and closes it at the end;
@@ -304,40 +304,14 @@ class _SigintBlocked:
 
 
 def worker_pool(n_workers):
-    """A ProcessPoolExecutor of ``n_workers`` workers for studies: spawn context (never fork:
-    numba's thread pool does not survive a fork; spawn, not forkserver, so every worker is a child
-    of this process and no server process outlives it), :func:`_worker_init` with this process as
-    the parent to watch. Workers start at the first submit: do it inside :class:`_SigintBlocked`."""
-    import concurrent.futures as cf
-    import multiprocessing as mp
+    """A :class:`~workbench.pool.WorkerPool` of ``n_workers`` workers for studies: spawn context
+    (never fork: numba's thread pool does not survive a fork; spawn, not forkserver, so every
+    worker is a child of this process and no server process outlives it), :func:`_worker_init`
+    with this process as the parent to watch, SIGINT blocked while the workers start."""
+    from .pool import WorkerPool
 
-    return cf.ProcessPoolExecutor(max_workers=n_workers, mp_context=mp.get_context("spawn"),
-                                  initializer=_worker_init, initargs=(process_identity(),))
-
-
-def _stop_pool(pool, cancelled):
-    """Shut our own pool down. After a cancel the workers are terminated at once (their chunks
-    would be thrown away) instead of being waited for."""
-    if not cancelled:
-        pool.shutdown(wait=True)
-        return
-    procs = list((getattr(pool, "_processes", None) or {}).values())
-    pool.shutdown(wait=False, cancel_futures=True)
-    for p in procs:
-        try:
-            p.terminate()
-        except Exception:
-            pass
-    for p in procs:
-        try:
-            p.join(5)
-            if p.is_alive():
-                p.kill()
-        except Exception:
-            pass
-    t = getattr(pool, "_executor_manager_thread", None)
-    if t is not None:
-        t.join(5)
+    return WorkerPool(n_workers, initializer=_worker_init, initargs=(process_identity(),),
+                      start_method="spawn", start_guard=_SigintBlocked)
 
 
 # ----------------------------------------------------------------------------------------------
@@ -377,7 +351,7 @@ def run_study(study, out=None, executor="inprocess", workers=None, scheduler=Non
         HDF5 compression of the field datasets (see :data:`workbench.results.COMPRESSIONS`):
         Blosc LZ4 after byte shuffle (default; fast), LZF, or gzip level 1 (readable by any HDF5
         tool without plugins, slowest to write).
-    pool : concurrent.futures.Executor or distributed.Client, optional
+    pool : workbench.pool.WorkerPool or distributed.Client, optional
         Reuse a running pool of workers (its workers should use 1 numba thread each).
     summary : bool
         Compute the kind's summary tables when the results fit in memory.
@@ -591,55 +565,31 @@ def _run_inprocess(kind, plan, arm, cell, finished, is_cancelled, sample=None):
 
 
 def _run_processes(kind, plan, arm, cell, finished, is_cancelled, n_workers, pool):
-    import concurrent.futures as cf
+    """Chunks on local worker processes (:mod:`workbench.pool`): two queued per worker, answers
+    written in this thread as they come; a cancel terminates the workers at once (their chunks
+    would be thrown away), which cannot leave anything waiting."""
+    from .pool import WorkerDied
 
     own = pool is None
     if own:
         pool = worker_pool(n_workers)
-    chunks = iter(plan.chunks)
-    pending = set()
-    cancelled = False
     try:
-        def submit():
-            c = next(chunks, None)
-            if c is not None:
-                pending.add(pool.submit(_compute, _kind_ref(kind), plan, arm, cell, c, 1))
-            return c is not None
-
-        with _SigintBlocked():  # the first submits start the workers
-            for _ in range(2 * n_workers):
-                if not submit():
-                    break
-        while pending:
-            if is_cancelled():
-                cancelled = True
-                break
-            done, _ = cf.wait(pending, timeout=0.1, return_when=cf.FIRST_COMPLETED)
-            for fut in done:
-                pending.discard(fut)
-                try:
-                    chunk, arrays = fut.result()
-                except cf.process.BrokenProcessPool:
-                    if is_cancelled():
-                        break
-                    raise RunError("worker processes: a worker stopped before finishing its chunk (killed, out "
-                                   "of memory, or a script that starts processes without "
-                                   "'if __name__ == \"__main__\":'); nothing was kept; run again, or "
-                                   "in-process (--in-process, executor=\"inprocess\")") from None
-                except Exception:
-                    if is_cancelled():  # workers hit by the same Ctrl-C: the run is over anyway
-                        break
-                    raise
-                finished(chunk, arrays)
-                if not is_cancelled():
-                    submit()
+        pool.run(_compute, (_kind_ref(kind), plan, arm, cell), iter(plan.chunks),
+                 on_result=lambda answer: finished(*answer), is_cancelled=is_cancelled)
+    except WorkerDied:
+        if is_cancelled():
+            return
+        raise RunError("worker processes: a worker stopped before finishing its chunk (killed, out "
+                       "of memory, or a script that starts processes without "
+                       "'if __name__ == \"__main__\":'); nothing was kept; run again, or "
+                       "in-process (--in-process, executor=\"inprocess\")") from None
+    except Exception:
+        if is_cancelled():  # workers hit by the same Ctrl-C: the run is over anyway
+            return
+        raise
     finally:
-        cancelled = cancelled or is_cancelled()
-        if own:  # never cancel our own futures one by one: Python 3.11's pool manager thread then
-            _stop_pool(pool, cancelled or bool(pending))  # dies on InvalidStateError and the exit hangs
-        else:
-            for fut in pending:
-                fut.cancel()
+        if own:
+            pool.close()
 
 
 def _connect(Client, addr, timeout=None):
@@ -929,7 +879,7 @@ def bench_scaling(quick: bool = False) -> dict:
                 control[w] = min(control[w], time.perf_counter() - t0)
     finally:
         for pool in pools.values():
-            pool.shutdown()
+            pool.close()
     speedup = times[1] / times[2]
     control_ratio = control[1] / control[2]
     load = os.getloadavg()[0] if hasattr(os, "getloadavg") else float("nan")
