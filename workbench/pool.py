@@ -202,6 +202,7 @@ class WorkerPool:
                     if w.conn not in ready and w.process.sentinel not in ready:
                         continue
                     if not w.conn.poll():  # ended with nothing (more) to say
+                        w.process.join(1.0)
                         raise WorkerDied(f"worker process {w.process.pid} ended (exit code "
                                          f"{w.process.exitcode}) before answering")
                     try:

@@ -283,23 +283,35 @@ def _worker_init(parent=None):
 
 
 class _SigintBlocked:
-    """Block SIGINT in this thread while worker processes start (children inherit the blocked
-    mask, so a Ctrl-C at that moment cannot kill a worker before its initializer runs); a Ctrl-C
-    that came meanwhile is delivered when the block ends (the cancel is not lost)."""
+    """While worker processes start: SIGINT blocked in this thread and, in the main thread, set to
+    ignored. A spawned child starts with an empty signal mask but keeps an ignored disposition
+    across exec, and Python installs its KeyboardInterrupt handler only where SIGINT is not
+    ignored: a Ctrl-C to the process group while a worker imports the engine (before
+    :func:`_worker_init` runs) cannot print a traceback or kill it. A Ctrl-C that reached this
+    process meanwhile stays pending (Linux never drops a blocked signal, ignored or not) and is
+    delivered to the restored handler when the block ends: the cancel is not lost."""
 
     def __enter__(self):
         import signal
+        import threading
 
-        self.old = None
+        self.old_mask = self.old_handler = None
+        self.swapped = False
         if hasattr(signal, "pthread_sigmask"):
-            self.old = signal.pthread_sigmask(signal.SIG_BLOCK, {signal.SIGINT})
+            self.old_mask = signal.pthread_sigmask(signal.SIG_BLOCK, {signal.SIGINT})
+            # a handler set outside Python (getsignal None) could not be put back: leave it
+            if threading.current_thread() is threading.main_thread() and signal.getsignal(signal.SIGINT) is not None:
+                self.old_handler = signal.signal(signal.SIGINT, signal.SIG_IGN)
+                self.swapped = True
         return self
 
     def __exit__(self, *exc):
         import signal
 
-        if self.old is not None:
-            signal.pthread_sigmask(signal.SIG_SETMASK, self.old)
+        if self.swapped:
+            signal.signal(signal.SIGINT, self.old_handler)
+        if self.old_mask is not None:
+            signal.pthread_sigmask(signal.SIG_SETMASK, self.old_mask)
         return False
 
 
