@@ -99,7 +99,7 @@ def test_ctrl_c_at_any_moment_of_a_process_run_ends_without_hang_or_traceback(tm
     # the Ctrl-C lands while the worker processes start, while they load the kernels, or while
     # they compute; the terminal sends it to the whole process group, workers included
     out = tmp_path / "r.h5"
-    proc = start_run(tmp_path, out, "--workers", "2", steps=(1000, 1500), session=True)  # its own group
+    proc = start_run(tmp_path, out, "--workers", "2", session=True)  # its own group
     wait_for_line(proc, "study ")  # calibrated: the worker pool starts now
     time.sleep(delay)
     os.killpg(proc.pid, signal.SIGINT)  # as a terminal does: to the run and every worker
