@@ -1,0 +1,119 @@
+"""The quantity registry (workbench/quantities.py): its entries against facts, and every consumer
+(studies, report, command line, PNG export) reading it. The window's use is in
+tests/gui/test_quantities_window.py."""
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import pytest
+
+from workbench import quantities as Q
+from workbench.arm.files import parse_arm_dict
+from workbench.kinematics import Arm
+from workbench.measures import measures
+
+
+def dh_arm(rows, name="registry test arm"):
+    data = {"arm": {"name": name, "geometry": "dh"},
+            "joint": [dict(name=f"j{i + 1}", **r) for i, r in enumerate(rows)]}
+    return Arm(parse_arm_dict(data, source_name=name))
+
+
+def planar_2r(l1, l2):
+    return dh_arm([dict(a=l1, alpha=0, d=0, theta=0), dict(a=l2, alpha=0, d=0, theta=0)], "planar 2R")
+
+
+def spatial_3r(scale):
+    """An invented 3R arm (elbow type) with every length times ``scale``."""
+    return dh_arm([dict(a=0.0, alpha=90.0, d=0.4 * scale, theta=0), dict(a=0.5 * scale, alpha=0, d=0, theta=0),
+                   dict(a=0.35 * scale, alpha=0, d=0.05 * scale, theta=0)], "3R")
+
+
+RNG = np.random.default_rng(12)
+
+
+# ---- content against facts ----------------------------------------------------------------------
+
+def test_condition_number_is_at_least_one_better_lower_and_on_a_log_scale():
+    # k = s1 / sm >= 1 by the ordering of the singular values (common practice); a smaller k is
+    # closer to isotropic, so lower is better; k runs to infinity at a singularity, hence log10
+    q = Q.quantity("condition")
+    assert q.better == "lower" and q.log and Q.sign_of_better("condition") == -1.0
+    J = RNG.normal(size=(500, 6, 6))
+    k = measures(J, rows="full", length=1.0)["condition"]
+    assert np.all(k >= 1.0 - 1e-12)
+    sv = np.linalg.svd(J, compute_uv=False)                        # numpy reference
+    np.testing.assert_allclose(k, sv[:, 0] / sv[:, -1], rtol=1e-9)
+
+
+def test_inverse_condition_and_manipulability_are_better_higher_and_bounded_as_computed():
+    # Yoshikawa, "Manipulability of robotic mechanisms", IJRR 4(2), 1985 (from memory): w =
+    # sqrt(det(J J^T)) >= 0, 0 exactly at a singularity, largest for the 2R arm at th2 = +-90 deg;
+    # so larger w is better. The inverse condition is 0 singular .. 1 isotropic.
+    assert Q.better("manipulability") == "higher" and Q.better("inverse_condition") == "higher"
+    assert Q.better("min_sv") == "higher" and not Q.is_log("manipulability")
+    assert Q.sign_of_better("inverse_condition") == 1.0
+    arm = planar_2r(0.9, 0.55)
+    th2 = np.radians(np.arange(-180.0, 180.1, 5.0))
+    qs = np.stack([np.full_like(th2, 0.3), th2], axis=-1)
+    J = arm.jacobian(qs)[:, :2, :]
+    m = measures(arm.jacobian(qs), rows="vx,vy")
+    ref = np.sqrt(np.linalg.det(J @ np.swapaxes(J, -1, -2)).clip(0))    # numpy reference
+    np.testing.assert_allclose(m["manipulability"], ref, atol=1e-12)
+    np.testing.assert_allclose(m["manipulability"], 0.9 * 0.55 * np.abs(np.sin(th2)), atol=1e-12)
+    assert np.all((m["inverse_condition"] >= 0) & (m["inverse_condition"] <= 1 + 1e-12))
+    # the better end (higher) is away from the singularity th2 = 0 for every measure said "higher"
+    i0, i90 = int(np.argmin(np.abs(th2))), int(np.argmin(np.abs(th2 - math.pi / 2)))
+    for name in ("manipulability", "inverse_condition", "min_sv"):
+        assert m[name][i90] > m[name][i0] + 0.1
+    assert m["condition"][i90] < m["condition"][i0] or math.isinf(m["condition"][i0])
+
+
+def test_units_are_the_engine_units():
+    # a quantity of unit m^p grows by 1000^p when every length of the arm grows by 1000 (in m);
+    # checked against the engine's values for the 2R arm (Yoshikawa's w = l1 l2 |sin th2|, m^2),
+    # a 3R arm's translation rows (w in m^3, singular values in m) and the full rows divided by
+    # the characteristic length (unitless)
+    q2 = np.array([[0.4, 1.1], [-0.7, 2.0]])
+    for rows, arm_of, q, L in (("vx,vy", lambda s: planar_2r(0.9 * s, 0.55 * s), q2, None),
+                               ("translation", spatial_3r, np.array([[0.3, 0.6, -1.2]]), None),
+                               ("full", spatial_3r, np.array([[0.3, 0.6, -1.2]]), 1.3)):
+        kinds = [0] * q.shape[1]
+        small, big = arm_of(1.0), arm_of(1000.0)
+        for name in ("manipulability", "min_sv", "condition", "inverse_condition"):
+            unit = Q.unit_of(name, rows, kinds)
+            p = {"": 0, "m": 1, "m^2": 2, "m^3": 3}[unit]
+            a = measures(small.jacobian(q), rows=rows, length=L or 1.0)[name]
+            b = measures(big.jacobian(q), rows=rows, length=1000.0 * (L or 1.0))[name]
+            np.testing.assert_allclose(b, a * 1000.0 ** p, rtol=1e-9, err_msg=f"{name} {rows}: unit {unit!r}")
+    assert Q.unit_of("manipulability", "vx,vy", [0, 0]) == "m^2"
+    assert Q.unit_of("manipulability", "translation", [0, 0, 0]) == "m^3"
+    assert Q.unit_of("min_sv", "translation", [0, 0, 0]) == "m"
+
+
+def test_prismatic_and_mixed_arms():
+    # one prismatic joint along the tool's x: J translation column = the unit axis, so the single
+    # singular value is 1 whatever the length unit: unitless (m/m)
+    arm = Arm(parse_arm_dict({"arm": {"name": "slide", "geometry": "dh"},
+                              "joint": [{"name": "s", "type": "prismatic", "a": 0.0, "alpha": 0.0, "d": 0.0,
+                                         "theta": 0.0, "limits": [0.0, 1.0]}]}, source_name="slide"))
+    m = measures(arm.jacobian(np.array([[0.2]])), rows="vz")
+    assert m["min_sv"][0] == pytest.approx(1.0) and Q.unit_of("min_sv", "vz", ["prismatic"]) == ""
+    # a revolute and a prismatic joint on translation rows: entries m/rad and m/m differ: no unit
+    assert Q.unit_of("manipulability", "translation", [0, 1]) is None
+    assert Q.unit_of("payload") == "kg" and Q.unit_of("clearance") == "m"
+
+
+def test_reduced_fields_and_unknown_names():
+    q = Q.quantity("condition_min")
+    assert q.better == "lower" and q.log and "min over the other joints" in q.label
+    assert Q.best_of("condition_mean") == "min" and Q.best_of("inverse_condition_max") == "max"
+    u = Q.quantity("no_such_thing")
+    assert u.label == "no such thing" and u.better is None and u.unit == ""
+    assert Q.axis_label("condition") == "log10 condition number k"
+    assert Q.axis_label("payload") == "payload (kg)"
+    with pytest.raises(ValueError):
+        Q.Quantity("x", "x", better="up")
+
+
