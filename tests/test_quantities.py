@@ -117,3 +117,79 @@ def test_reduced_fields_and_unknown_names():
         Q.Quantity("x", "x", better="up")
 
 
+# ---- consumers read the registry ------------------------------------------------------------------
+
+@pytest.fixture
+def relabel(monkeypatch):
+    def do(name, **changes):
+        from dataclasses import replace
+
+        monkeypatch.setitem(Q.QUANTITIES, name, replace(Q.QUANTITIES[name], **changes))
+    return do
+
+
+def _sweep_spec(tmp_path, rows="vx,vy"):
+    from pathlib import Path
+
+    from workbench.studies.spec import read_study_file
+
+    root = Path(__file__).resolve().parents[1]
+    p = tmp_path / "s.toml"
+    p.write_text(f'[study]\nname = "q"\nkind = "joint_sweep"\narm = "{(root / "arms" / "demo_planar2r.toml").as_posix()}"\n'
+                 f'[settings]\nmode = "grid"\njoints = ["th1", "th2"]\nranges = [[0, 90], [-90, 90]]\n'
+                 f'steps = [3, 5]\nrows = "{rows}"\n')
+    return read_study_file(str(p)), p
+
+
+def test_studies_take_descriptions_and_units_from_the_registry(tmp_path, relabel):
+    from workbench.runner import prepare
+
+    relabel("manipulability", description="w as the registry says")
+    spec, _ = _sweep_spec(tmp_path)
+    plan = prepare(spec).plan
+    f = {x.name: x for x in plan.fields}
+    assert f["manipulability"].description == "w as the registry says"
+    assert f["manipulability"].unit == "m^2" and f["min_sv"].unit == "m" and f["condition"].unit == ""
+
+
+def test_reduced_sweep_best_pose_follows_the_better_side():
+    # best_q / worst_q of a reduced sweep are the poses with the best / worst value of best_by:
+    # for the condition number (lower is better) the smallest / largest k, checked against a
+    # brute-force numpy SVD (k = s1 / sm) of every pose of one cell
+    from workbench import load_arm
+    from workbench.studies import StudySpec, get_kind
+
+    from pathlib import Path
+
+    path = str(Path(__file__).resolve().parents[1] / "arms" / "demo_s6.toml")
+    arm, kind = load_arm(path), get_kind("joint_sweep")
+    spec = StudySpec("joint_sweep", path, settings={"mode": "reduce", "joints": ["j3", "j5"], "steps": [2, 2],
+                                                    "ranges": [[45, 120], [30, 80]], "coarse_steps": [2, 3, 2, 2],
+                                                    "best_by": "condition"})
+    plan = kind.plan(spec, arm, None)
+    parts = [kind.compute_chunk(plan, arm, None, c) for c in plan.chunks]
+    out = {k: np.concatenate([p[k] for p in parts]) for k in ("best_q", "worst_q")}
+    others = [0, 1, 3, 5]
+    L = arm.nominal_reach()
+
+    def cond(q):
+        J = arm.jacobian(q).copy()
+        J[..., :3, :] /= L                                          # full rows: translation / L
+        sv = np.linalg.svd(J, compute_uv=False)
+        return sv[..., 0] / sv[..., -1]
+
+    for cell in range(4):
+        i, j = np.unravel_index(cell, plan.shape)
+        grids = [np.linspace(arm.lower[k], arm.upper[k], c) for k, c in zip(others, plan.settings.coarse_steps)]
+        q = np.zeros((2 * 3 * 2 * 2, 6))
+        q[:, others] = np.stack([m.ravel() for m in np.meshgrid(*grids, indexing="ij")], axis=-1)
+        q[:, 2], q[:, 4] = plan.axes[0].values[i], plan.axes[1].values[j]
+        k = cond(q)
+        assert np.all(k < 1e3) and k.max() > 1.05 * k.min()      # no singular pose; k varies over the others
+        # j1 turns the whole arm (k does not change): compare the k of the pose picked, not the pose
+        assert cond(out["best_q"][cell]) == pytest.approx(k.min(), rel=1e-9)
+        assert cond(out["worst_q"][cell]) == pytest.approx(k.max(), rel=1e-9)
+    f = {x.name: x for x in plan.fields}
+    assert "best condition" in f["best_q"].description
+
+
