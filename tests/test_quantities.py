@@ -193,3 +193,36 @@ def test_reduced_sweep_best_pose_follows_the_better_side():
     assert "best condition" in f["best_q"].description
 
 
+def test_report_tables_and_maps_read_the_registry(relabel):
+    from workbench.report.content import human, results_table
+    from workbench.studies.base import Table
+
+    t = Table(columns={"payload": np.array([1.5, 2.0]), "rank": np.array([1, 2])}, units={"payload": "kg"},
+              title="t")
+    assert results_table(t).header[0] == "payload (kg)"
+    relabel("payload", label="largest load held")
+    assert results_table(t).header[0] == "largest load held (kg)" and human("payload") == "largest load held"
+
+
+def test_report_map_of_a_log_quantity_is_log10_and_reduced_to_the_best(relabel):
+    from types import SimpleNamespace
+
+    from workbench.report import content as C
+    from workbench.studies.base import Axis, Field
+
+    # 2 x 2 x 3 condition numbers; the map keeps the best (smallest) over the first axis, in log10
+    Z = np.array([[[1.0, 10.0, 100.0], [2.0, 3.0, 4.0]], [[5.0, 1.0, 1000.0], [1.0, 30.0, 40.0]]])
+    axes = (Axis("a", np.arange(2.0), "", "a"), Axis("y", np.arange(2.0), "m", "y"), Axis("x", np.arange(3.0), "m", "x"))
+    r = SimpleNamespace(axes=axes, fields=(Field("condition", (), "float64", "", "k"),), arrays={"condition": Z})
+    seen = {}
+    orig = C.G.map_figure
+    try:
+        C.G.map_figure = lambda Zm, ax_x, ax_y, label, **kw: seen.update(Z=Zm, label=label) or None
+        relabel("condition", label="conditioning")
+        C._measure_maps(r, None)
+    finally:
+        C.G.map_figure = orig
+    np.testing.assert_allclose(seen["Z"], np.log10(np.minimum(Z[0], Z[1])))
+    assert seen["label"] == "log10 conditioning"
+
+
