@@ -226,3 +226,36 @@ def test_report_map_of_a_log_quantity_is_log10_and_reduced_to_the_best(relabel):
     assert seen["label"] == "log10 conditioning"
 
 
+def test_cli_jacobian_prints_the_registry_labels_and_units(capsys, relabel):
+    from pathlib import Path
+
+    from workbench.cli import main
+
+    arm = Path(__file__).resolve().parents[1] / "arms" / "demo_planar2r.toml"
+    relabel("manipulability", label="w of the registry")
+    assert main(["jacobian", str(arm), "--q", "0,90", "--rows", "vx,vy"]) == 0
+    out = capsys.readouterr().out
+    line = next(s for s in out.splitlines() if "w of the registry" in s)
+    # the printed value is the engine's w for these rows (planar 2R, translation rows: m^2)
+    from workbench import load_arm
+
+    assert line.split(":")[0].strip() == "w of the registry (m^2)"
+    J = load_arm(str(arm)).jacobian(np.radians([0.0, 90.0]))[:2]
+    assert float(line.split(":")[1]) == pytest.approx(math.sqrt(np.linalg.det(J @ J.T)), rel=1e-5)
+
+
+def test_cli_export_png_colour_bar_reads_the_registry(tmp_path, relabel, monkeypatch):
+    from workbench import results as R
+    from workbench.runner import run_study
+
+    spec, p = _sweep_spec(tmp_path)
+    run_study(str(p), out=str(tmp_path / "r.h5"), executor="inprocess")
+    res = R.read_results(str(tmp_path / "r.h5"))
+    labels = []
+    from matplotlib.figure import Figure
+
+    orig = Figure.colorbar
+    monkeypatch.setattr(Figure, "colorbar", lambda self, *a, **kw: labels.append(kw.get("label")) or orig(self, *a, **kw))
+    relabel("manipulability", label="registry w")
+    R.export_png(res, str(tmp_path / "m.png"), measure="manipulability")
+    assert labels == ["registry w (m^2)"]
