@@ -10,7 +10,7 @@ import time
 import numpy as np
 from PySide6 import QtCore, QtGui, QtWidgets
 
-from .. import __version__
+from .. import __version__, quantities
 from ..document import Document, with_mount
 from ..errors import WorkbenchError
 from .arm_panel import ArmPanel
@@ -54,7 +54,10 @@ def tables_html(tables, max_rows=15) -> str:
     parts = []
     for name, t in tables.items():
         cols = list(t.columns)
-        head = "".join(f"<th>{html.escape(c)}{' (' + t.units[c] + ')' if t.units.get(c) else ''}</th>" for c in cols)
+        # a column that is a registered quantity gets its label (workbench/quantities.py)
+        head = "".join(f"<th>{html.escape(quantities.axis_label(c, unit=t.units.get(c) or '', log=False))}</th>"
+                       if c in quantities.QUANTITIES else
+                       f"<th>{html.escape(c)}{' (' + t.units[c] + ')' if t.units.get(c) else ''}</th>" for c in cols)
         rows = []
         scale = {}
         for c in cols:

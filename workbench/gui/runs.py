@@ -91,6 +91,7 @@ class StudySession(StudyResults):
                           joint_names=tuple(arm.names), joint_kinds=tuple(j.kind for j in arm.model.joints),
                           title=(self.spec.name if self.spec is not None else "") or self.kind.title,
                           threshold_measure=key)
+        data.units = {f.name: f.unit for f in plan.fields if f.name in measures}
         data.extras["mount_full_index"] = full
         data.pose_fn = self._mount_pose
         data.mount_fn = self._mount_of_cell
@@ -170,6 +171,7 @@ class StudySession(StudyResults):
                           joint_kinds=tuple(j.kind for j in arm.model.joints),
                           title=(self.spec.name if self.spec is not None else "") or self.kind.title,
                           threshold_measure=thr)
+        data.units = {f.name: f.unit for f in plan.fields if f.name in measures}
         # which map axes are joints (their values are also the joint columns of the pose list)
         names = list(arm.names)
         ax_x = axes[1] if len(axes) == 2 else (axes[0] if len(axes) == 1 else None)
