@@ -748,7 +748,7 @@ class MainWindow(QtWidgets.QMainWindow):
                                         f"follow when the run ends; the map shows every chunk")
         out = project.new_run_path(spec.name)
         self.worker = StudyWorker(spec, out, executor=self.executor)
-        self.worker.chunk_finished.connect(self._on_chunk)
+        self.worker.partial.connect(self._on_chunk)
         self.worker.cells.connect(self._on_cells)
         self._progress_t = 0.0
         self._slow_refresh_t = time.perf_counter()
@@ -765,10 +765,11 @@ class MainWindow(QtWidgets.QMainWindow):
             self.worker.cancel()
             self.status.showMessage("cancelling: the finished chunks are kept", 5000)
 
-    def _on_chunk(self, start, stop, arrays):
+    def _on_chunk(self, part):
+        """A :class:`~workbench.gui.runs.ChunkResult` of the running study (the worker's partial)."""
         if self.session is None or self.worker is None:
             return
-        self.doc.store_chunk(start, stop, arrays)     # "chunk": the redraw timer starts
+        self.doc.store_chunk(part.start, part.stop, part.arrays)     # "chunk": the redraw timer starts
 
     def _on_cells(self, done, total, left):
         """Progress of the run: the bar and the time left, at most every PROGRESS_S (the last always)."""
