@@ -32,7 +32,7 @@ from .errors import WorkbenchError
 from .kinematics import kernels, lanes
 from .kinematics.rows import parse_rows, row_scale
 
-__all__ = ["measures", "measures_from_sv", "pose_measures", "MEASURE_NAMES", "MEASURE_INFO",
+__all__ = ["measures", "measures_from_sv", "pose_measures", "MEASURE_NAMES",
            "svd_directions", "Ellipsoid", "velocity_ellipsoid", "force_ellipsoid",
            "joint_limit_penalty", "joint_limit_factors", "penalty_of_product", "limit_aware_manipulability",
            "SingularityNote", "singularity_note",
@@ -41,12 +41,6 @@ __all__ = ["measures", "measures_from_sv", "pose_measures", "MEASURE_NAMES", "ME
            "largest_force", "largest_payload"]
 
 MEASURE_NAMES = ("manipulability", "condition", "inverse_condition", "min_sv")
-MEASURE_INFO = {
-    "manipulability": ("manipulability w", "product of singular values; larger is better"),
-    "condition": ("condition number", "s1/sm; 1 is isotropic, large near singular"),
-    "inverse_condition": ("inverse condition 1/k", "0 singular .. 1 isotropic"),
-    "min_sv": ("minimum singular value", "smallest gain; 0 at a singularity"),
-}
 
 
 def measures_from_sv(sv) -> dict:

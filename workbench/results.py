@@ -1058,7 +1058,12 @@ def export_png(results: Results, path, measure: str | None = None, dpi: int = 12
         return f"{a.label} [{a.display_unit}]" if a.display_unit else a.label
 
     finite = v[np.isfinite(v)]
-    worse_high = measure == "condition" or measure.startswith("condition_")
+    # label, unit and which way is better: the quantity registry (workbench/quantities.py)
+    from . import quantities
+
+    fld = next((f for f in results.fields if f.name == measure), None)
+    mlabel = quantities.axis_label(measure, unit=fld.unit if fld is not None else None, log=False)
+    worse_high = quantities.better(measure) == "lower"
     vmax = float(np.percentile(finite, 99.5)) if finite.size and worse_high else None
     axes = list(results.axes)
     if axes and axes[0].name == "sample" and len(axes) == 1:
@@ -1069,10 +1074,10 @@ def export_png(results: Results, path, measure: str | None = None, dpi: int = 12
             ax.set_xlabel("x [m]")
             ax.set_ylabel("y [m]")
             ax.set_aspect("equal", adjustable="datalim")
-            fig.colorbar(sc, ax=ax, label=measure)
+            fig.colorbar(sc, ax=ax, label=mlabel)
         else:
             ax.hist(finite, bins=100)
-            ax.set_xlabel(measure)
+            ax.set_xlabel(mlabel)
             ax.set_ylabel("samples")
     else:
         keep = [i for i, a in enumerate(axes) if a.size > 1]
@@ -1092,17 +1097,17 @@ def export_png(results: Results, path, measure: str | None = None, dpi: int = 12
             title += "\n" + "; ".join(fixed)
         if len(axes) == 0:
             ax.bar([0], [float(v.reshape(-1)[0])])
-            ax.set_ylabel(measure)
+            ax.set_ylabel(mlabel)
         elif len(axes) == 1:
             ax.plot(axes[0].display_values(), v)
             ax.set_xlabel(lab(axes[0]))
-            ax.set_ylabel(measure)
+            ax.set_ylabel(mlabel)
         else:
             a0, a1 = axes
             x, y = a0.display_values(), a1.display_values()
             dy, dx = (y[-1] - y[0]) / (y.size - 1), (x[-1] - x[0]) / (x.size - 1)  # cell centres on the values
             ext = [y[0] - dy / 2, y[-1] + dy / 2, x[0] - dx / 2, x[-1] + dx / 2]
-            cmap, vmin, extend, cblabel = "viridis", None, "neither", measure
+            cmap, vmin, extend, cblabel = "viridis", None, "neither", mlabel
             fin = np.isfinite(v)
             if measure == "rank_value" and fin.any():
                 # the colours span the candidates serving the most work points; fewer: grey

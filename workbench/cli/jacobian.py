@@ -15,6 +15,7 @@ import re
 import numpy as np
 
 from ..errors import WorkbenchError
+from ..quantities import axis_label, unit_of
 from .info import add_arm_arguments, fmt_num, fmt_pose, joint_unit, json_value, load, pose_dict
 
 _ROW_LABELS = ("vx", "vy", "vz", "wx", "wy", "wz")
@@ -112,6 +113,9 @@ def run(args) -> int:
         "condition": float(res["condition"]),
         "inverse_condition": float(res["inverse_condition"]),
         "min_sv": float(res["min_sv"]),
+        # units of the measures of these rows on this arm (workbench/quantities.py); None: no single unit
+        "units": {k: unit_of(k, rows, [j.kind for j in m.joints])
+                  for k in ("manipulability", "condition", "inverse_condition", "min_sv")},
         "tcp": {**pose_dict(tcp), "matrix": tcp.tolist()},
         "frame_pose": {**pose_dict(frame_T), "matrix": frame_T.tolist()},
         "outside_limits": [m.names[k] for k in outside],
@@ -185,13 +189,24 @@ def format_jacobian(data: dict, J: np.ndarray, arm) -> str:
     sv = data["singular_values"]
     tiny = 1e-12 * max(sv[0], 1e-300) if sv else 0.0
     shown = [("0" if s <= tiny else f"{s:.6g}") for s in sv]
-    lines.append(f"  singular values:       {'  '.join(shown)}")
-    lines.append(f"  manipulability w:      {'0' if sv and sv[-1] <= tiny else format(data['manipulability'], '.6g')}")
+    units = data.get("units", {})
+
+    sv_unit = units.get("min_sv") or ""
+    heads = {name: axis_label(name, unit=units.get(name) or "", log=False) + ":"
+             for name in ("manipulability", "condition", "inverse_condition", "min_sv")}
+    heads["sv"] = "singular values" + (f" ({sv_unit})" if sv_unit else "") + ":"
+    width = max(23, max(len(h) for h in heads.values()) + 1)
+
+    def head(name):         # the registry's label and the unit of these rows: "manipulability w (m^3):"
+        return f"  {heads[name]:<{width}}"
+
+    lines.append(f"{head('sv')}{'  '.join(shown)}")
+    lines.append(f"{head('manipulability')}{'0' if sv and sv[-1] <= tiny else format(data['manipulability'], '.6g')}")
     cond = data["condition"]
     singular = math.isinf(cond) or (sv and sv[-1] <= tiny)
-    lines.append(f"  condition number:      {'inf (singular)' if singular else f'{cond:.6g}'}")
-    lines.append(f"  inverse condition:     {'0' if singular else format(data['inverse_condition'], '.6g')}")
-    lines.append(f"  min singular value:    {shown[-1] if shown else '-'}")
+    lines.append(f"{head('condition')}{'inf (singular)' if singular else f'{cond:.6g}'}")
+    lines.append(f"{head('inverse_condition')}{'0' if singular else format(data['inverse_condition'], '.6g')}")
+    lines.append(f"{head('min_sv')}{shown[-1] if shown else '-'}")
     lines.append("")
     T = np.array(data["tcp"]["matrix"])
     lines.append(f"  TCP pose:   {fmt_pose(T)}")

@@ -10,7 +10,7 @@ import time
 import numpy as np
 from PySide6 import QtCore, QtGui, QtWidgets
 
-from .. import __version__
+from .. import __version__, quantities
 from ..document import Document, with_mount
 from ..errors import WorkbenchError
 from .arm_panel import ArmPanel
@@ -54,7 +54,10 @@ def tables_html(tables, max_rows=15) -> str:
     parts = []
     for name, t in tables.items():
         cols = list(t.columns)
-        head = "".join(f"<th>{html.escape(c)}{' (' + t.units[c] + ')' if t.units.get(c) else ''}</th>" for c in cols)
+        # a column that is a registered quantity gets its label (workbench/quantities.py)
+        head = "".join(f"<th>{html.escape(quantities.axis_label(c, unit=t.units.get(c) or '', log=False))}</th>"
+                       if c in quantities.QUANTITIES else
+                       f"<th>{html.escape(c)}{' (' + t.units[c] + ')' if t.units.get(c) else ''}</th>" for c in cols)
         rows = []
         scale = {}
         for c in cols:
@@ -745,7 +748,7 @@ class MainWindow(QtWidgets.QMainWindow):
                                         f"follow when the run ends; the map shows every chunk")
         out = project.new_run_path(spec.name)
         self.worker = StudyWorker(spec, out, executor=self.executor)
-        self.worker.chunk_finished.connect(self._on_chunk)
+        self.worker.partial.connect(self._on_chunk)
         self.worker.cells.connect(self._on_cells)
         self._progress_t = 0.0
         self._slow_refresh_t = time.perf_counter()
@@ -762,10 +765,11 @@ class MainWindow(QtWidgets.QMainWindow):
             self.worker.cancel()
             self.status.showMessage("cancelling: the finished chunks are kept", 5000)
 
-    def _on_chunk(self, start, stop, arrays):
+    def _on_chunk(self, part):
+        """A :class:`~workbench.gui.runs.ChunkResult` of the running study (the worker's partial)."""
         if self.session is None or self.worker is None:
             return
-        self.doc.store_chunk(start, stop, arrays)     # "chunk": the redraw timer starts
+        self.doc.store_chunk(part.start, part.stop, part.arrays)     # "chunk": the redraw timer starts
 
     def _on_cells(self, done, total, left):
         """Progress of the run: the bar and the time left, at most every PROGRESS_S (the last always)."""

@@ -14,7 +14,8 @@ from PySide6 import QtCore, QtGui, QtWidgets
 from ..measures import NEAR_SINGULAR
 
 from .formlogic import fmt_number
-from .resultdata import MEASURE_LABELS, ResultData
+from .. import quantities
+from .resultdata import ResultData
 from .style import FlowLayout, Legend
 from .selection import Brush, Selection, rows_mask
 
@@ -25,7 +26,6 @@ SEL_RGBA = (255, 140, 0, 150)
 BRUSHED_ENTRY = (SEL_RGBA, "fill", "brushed")
 PICKED_ENTRY = ((220, 0, 0), "ring", "picked cell")
 CONTOUR_MAX_CELLS = 160          # the contour is traced on a grid of at most this many cells a side
-LOG_MEASURES = ("condition",)
 #: while a run goes on, a map with more cells than this is drawn from every k-th row and column
 #: (at most LIVE_SIDE a side); the final redraw shows every cell
 LIVE_MAX_CELLS = 250_000
@@ -52,15 +52,17 @@ def _hint_stack(plot, text):
     return stack, hint
 
 
-def measure_label(name) -> str:
-    base = MEASURE_LABELS.get(name, name.replace("_", " "))
-    return f"log10 {base}" if name in LOG_MEASURES else base
+def measure_label(name, data: ResultData | None = None, log=None) -> str:
+    """The axis / colour-bar / combo label of measure ``name``: the registry's label
+    (workbench/quantities.py), the unit it was stored with, "log10" when shown on a log scale."""
+    unit = data.units.get(name) if data is not None else None
+    return quantities.axis_label(name, unit=unit, log=log)
 
 
 def display_values(data: ResultData, name) -> np.ndarray:
-    """(N,) values as shown: log10 for the condition number; inf -> NaN."""
+    """(N,) values as shown: log10 where the registry says so (the condition number); inf -> NaN."""
     v = data.measures[name]
-    if name in LOG_MEASURES:
+    if quantities.is_log(name):
         with np.errstate(divide="ignore", invalid="ignore"):
             v = np.log10(v)
     return np.where(np.isfinite(v), v, np.nan)
@@ -187,8 +189,8 @@ class MapView(QtWidgets.QWidget):
         d = self.data
         head = (d.title or d.kind) if d is not None else ""
         if head and self.width() >= 480:
-            return f"{head}: {measure_label(self.measure)}"
-        return measure_label(self.measure)
+            return f"{head}: {measure_label(self.measure, d)}"
+        return measure_label(self.measure, d)
 
     def resizeEvent(self, ev):
         super().resizeEvent(ev)
@@ -206,7 +208,7 @@ class MapView(QtWidgets.QWidget):
         self.measure_combo.blockSignals(True)
         self.measure_combo.clear()
         for m in data.measure_names:
-            self.measure_combo.addItem(measure_label(m), m)
+            self.measure_combo.addItem(measure_label(m, data), m)
         pref = data.threshold_measure if data.threshold_measure in data.measures else data.measure_names[0]
         self.measure_combo.setCurrentIndex(data.measure_names.index(pref))
         self.measure_combo.blockSignals(False)
@@ -235,7 +237,7 @@ class MapView(QtWidgets.QWidget):
         self.measure_combo.blockSignals(True)
         self.measure_combo.clear()
         for m in data.measure_names:
-            self.measure_combo.addItem(measure_label(m), m)
+            self.measure_combo.addItem(measure_label(m, data), m)
         if data.threshold_measure in data.measures:
             self.measure_combo.setCurrentIndex(data.measure_names.index(data.threshold_measure))
         self.measure_combo.blockSignals(False)
@@ -539,7 +541,7 @@ class HistogramView(QtWidgets.QWidget):
         self.bin_index = idx
         self.all_counts = np.bincount(idx, minlength=HIST_BINS + 1)[:HIST_BINS]
         self.all_item.setData(self.edges, self.all_counts)
-        self.plot.setLabel("bottom", measure_label(measure))
+        self.plot.setLabel("bottom", measure_label(measure, d))
         if threshold is not None and measure == "inverse_condition":
             self.thr_line.setValue(threshold)
             self.thr_line.show()
@@ -644,7 +646,7 @@ class PoseTableModel(QtCore.QAbstractTableModel):
         if data.is_map and "y" not in joint_axes:
             cols.append((data.y_label, "y"))
         for m in data.measure_names:
-            cols.append((MEASURE_LABELS.get(m, m), ("m", m)))
+            cols.append((measure_label(m, data, log=False), ("m", m)))   # the list shows the values as stored
         if data.has_poses and data.joint_names:
             kinds = data.joint_kinds or ("revolute",) * len(data.joint_names)
             for k, (name, kind) in enumerate(zip(data.joint_names, kinds)):

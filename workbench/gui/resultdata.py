@@ -11,27 +11,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-__all__ = ["ResultData", "MEASURE_LABELS"]
-
-MEASURE_LABELS = {
-    "manipulability": "manipulability w",
-    "condition": "condition number k",
-    "inverse_condition": "inverse condition 1/k",
-    "min_sv": "min. singular value",
-    "limit_margin": "joint-limit margin",
-    "limit_aware_manipulability": "limit-aware manipulability",
-    "reachable": "reachable",
-    "rank_value": "rank value (points served + quality)",
-    "served": "work points served",
-    "score": "quality Q",
-    "payload": "payload (kg)",
-    "speed_ratio": "joint-speed ratio",
-    "reached_fraction": "reached",
-    "worst_measure": "worst measure",
-    "min_margin": "min. margin",
-    "margin": "limit margin",
-    "own_load": "own load",
-}
+__all__ = ["ResultData"]
 
 
 @dataclass
@@ -50,6 +30,9 @@ class ResultData:
     x_label, y_label : str
         Axis names with units.
     measures : dict of str -> (N,) float arrays
+        Labels, units, log scale and which way is better come from
+        :mod:`workbench.quantities`; ``units`` holds the unit a field was stored with where it
+        depends on the study (a singular value's unit follows the task rows).
     q : (N, n) float array or None
         Joint values (rad / m) behind each cell, NaN where none.
     """
@@ -72,6 +55,7 @@ class ResultData:
     pose_fn: object = None          # fn(flat indices (k,)) -> (k, n) joint values, when q is None
     tcp: np.ndarray | None = None   # (N, 3) TCP points of sample studies (m), or None
     mount_fn: object = None         # fn(flat cell) -> (4, 4) arm mount for that cell, or None
+    units: dict = field(default_factory=dict)   # measure -> unit as stored (the plan's fields)
 
     def __post_init__(self):
         if self.done is None:

@@ -10,6 +10,7 @@ the chunks already finished (the file is closed and marked incomplete).
 from __future__ import annotations
 
 import os
+from dataclasses import dataclass
 
 import numpy as np
 from PySide6 import QtCore
@@ -20,7 +21,7 @@ from ..presenters import presenter
 from .resultdata import ResultData
 from .workers import Worker
 
-__all__ = ["StudySession", "StudyWorker", "session_from_spec", "session_from_results",
+__all__ = ["StudySession", "StudyWorker", "ChunkResult", "session_from_spec", "session_from_results",
            "GUI_CHUNK_SECONDS"]
 
 #: the runner sizes chunks to about this many seconds: results show up four times a second, and a
@@ -91,6 +92,7 @@ class StudySession(StudyResults):
                           joint_names=tuple(arm.names), joint_kinds=tuple(j.kind for j in arm.model.joints),
                           title=(self.spec.name if self.spec is not None else "") or self.kind.title,
                           threshold_measure=key)
+        data.units = {f.name: f.unit for f in plan.fields if f.name in measures}
         data.extras["mount_full_index"] = full
         data.pose_fn = self._mount_pose
         data.mount_fn = self._mount_of_cell
@@ -170,6 +172,7 @@ class StudySession(StudyResults):
                           joint_kinds=tuple(j.kind for j in arm.model.joints),
                           title=(self.spec.name if self.spec is not None else "") or self.kind.title,
                           threshold_measure=thr)
+        data.units = {f.name: f.unit for f in plan.fields if f.name in measures}
         # which map axes are joints (their values are also the joint columns of the pose list)
         names = list(arm.names)
         ax_x = axes[1] if len(axes) == 2 else (axes[0] if len(axes) == 1 else None)
@@ -200,21 +203,30 @@ def session_from_results(res) -> StudySession:
     return results_from_file(res, cls=StudySession)
 
 
+@dataclass(frozen=True)
+class ChunkResult:
+    """A finished chunk of a study run: flat cells ``start``..``stop`` and ``{field: array}``."""
+    start: int
+    stop: int
+    arrays: dict
+
+
 class StudyWorker(Worker):
     """Runs a study with :func:`workbench.runner.run_study` in a worker thread; signals only
-    (the :class:`~workbench.gui.workers.Worker` ones, and two of its own).
+    (the :class:`~workbench.gui.workers.Worker` ones, and one of its own).
 
     Signals
     -------
-    chunk_finished(int, int, object)
-        start, stop, ``{field: array}`` of a finished chunk.
+    partial(object)
+        a :class:`ChunkResult` per finished chunk (copies: the runner may reuse its buffers).
+    progress(float, str)
+        fraction of the cells done.
     cells(int, int, float)
         cells done, cells total, seconds left (NaN while unknown).
     finished(str, object)
         "done", "cancelled" or "failed: <message>", and the results file path (or None).
     """
 
-    chunk_finished = QtCore.Signal(int, int, object)
     cells = QtCore.Signal(int, int, float)
 
     def __init__(self, spec, out_path, executor="inprocess", chunk_seconds=GUI_CHUNK_SECONDS):
@@ -232,7 +244,8 @@ class StudyWorker(Worker):
         from ..runner import prepare, run_study
 
         def on_chunk(chunk, arrays):
-            self.chunk_finished.emit(chunk.start, chunk.stop, {k: np.array(v) for k, v in arrays.items()})
+            self.partial.emit(ChunkResult(int(chunk.start), int(chunk.stop),
+                                          {k: np.array(v) for k, v in arrays.items()}))
 
         def progress(done, total, eta):
             self.cells.emit(int(done), int(total), float(eta))

@@ -35,7 +35,7 @@ def show_series(view, data, threshold):
         view.measure_combo.blockSignals(True)
         view.measure_combo.clear()
         for m in data.measure_names:
-            view.measure_combo.addItem(measure_label(m), m)
+            view.measure_combo.addItem(measure_label(m, data), m)
         view.measure_combo.setCurrentIndex(max(0, data.measure_names.index(data.threshold_measure)
                                                if data.threshold_measure in data.measures else 0))
         view.measure_combo.blockSignals(False)
@@ -63,7 +63,7 @@ def show_series(view, data, threshold):
         plot.addItem(pts)
         view._series_items.append(pts)
     plot.setLabel("bottom", data.x_label)
-    plot.setLabel("left", measure_label(m))
+    plot.setLabel("left", measure_label(m, data))
     plot.setTitle(data.title or data.kind)
     brushed = ((255, 140, 0), "dot", "brushed samples")
     view.legend.set_entries([brushed, ((40, 150, 60), "dot", "TCP points in the scene (colour: measure)")]

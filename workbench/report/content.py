@@ -18,38 +18,38 @@ from ..decision import (FAIL, LIMIT_MARGIN, NOT_CHECKED, SENSITIVITY_DROP, fmt_d
                         fmt_percent)
 from . import document as D
 from . import figures as G
+from .. import quantities
 from ..presenters import presenter
 from ..results import recommended_mount
 
 KIND_TITLES = {"mount_search": "Mount search", "path_audit": "Path audit", "load_map": "Load map",
                "reach_slice": "Reach slice", "joint_sweep": "Joint sweep"}
 
-#: human names of results-table columns (units come from the table)
+#: human names of results-table columns that are not quantities (units come from the table);
+#: quantities (measures, margins, payloads ...) take their label from workbench/quantities.py
 COLUMN_LABELS = {
-    "rank": "rank", "reached": "work points reached", "worst_measure": "worst measure",
-    "min_margin": "smallest limit margin", "map_score": "map score (first solution)", "score": "quality Q",
+    "rank": "rank", "reached": "work points reached", "map_score": "map score (first solution)",
     "grid_score": "score on the grid", "evaluations": "evaluations", "point": "work point", "measure": "measure",
-    "margin": "limit margin", "path": "path", "from": "from", "to": "to",
-    "min_inverse_condition": "lowest inverse condition", "at": "at", "worst_speed_ratio": "worst speed needed / limit",
+    "path": "path", "from": "from", "to": "to", "at": "at",
     "note": "note", "length": "length", "tool_speed": "tool speed", "joint": "joint",
     "unreached": "samples not reached", "branch_flips": "branch flips", "forced": "samples re-solved",
     "step": "largest joint step", "joints": "joints", "reached_cells": "points reached",
-    "min_payload": "smallest payload", "median_payload": "median payload", "max_payload": "largest payload",
     "cannot_hold_itself": "points where the arm cannot hold itself", "cells": "grid points",
-    "inverse_condition": "inverse condition", "min_sv": "minimum singular value", "manipulability": "manipulability",
-    "condition": "condition number", "reached_fraction": "fraction reached", "offset": "offset",
-    "worst_score": "worst quality", "score_drop": "quality lost", "nominal_score": "quality at the mount",
-    "rank_value": "rank value", "served": "work points served", "grid_rank_value": "rank value on the grid",
+    "offset": "offset", "worst_score": "worst quality", "score_drop": "quality lost", "nominal_score": "quality at the mount",
+    "grid_rank_value": "rank value on the grid",
     "grid_x": "from grid x", "grid_y": "from grid y", "grid_yaw": "from grid yaw", "points_lost": "work points lost",
 }
 
 
 def human(name: str) -> str:
-    """A column or field name for people (never raw snake_case)."""
+    """A column or field name for people (never raw snake_case): the quantity registry's label,
+    else the column's."""
     name = str(name)
     if name.startswith("q_"):
         return name[2:]
-    return COLUMN_LABELS.get(name, name.replace("_", " "))
+    if name in COLUMN_LABELS:
+        return COLUMN_LABELS[name]
+    return quantities.label(name)
 
 
 #: columns shown with 6 significant digits (the rank value's fraction is the quality)
@@ -367,15 +367,14 @@ def point_table(dec) -> D.Table:
     has_c = any(p.clearance is not None for p in pts)
     has_t = any(p.torque_margin is not None for p in pts)
     header = ["work point"] + [f"{n} ({'deg' if rev else 'mm'})" for n, rev in zip(dec.joint_names, dec.joint_revolute)]
-    header += ["inverse condition", "minimum singular value", "manipulability", "limit margin", "nearest limit"]
+    header += [human(k) for k in ("inverse_condition", "min_sv", "manipulability", "limit_margin")] + ["nearest limit"]
     if has_c:
         header.append("clearance (mm)")
     if has_t:
         header.append("torque margin")
     header.append("checks")
     rows = []
-    labels = {"points_served": "not served", "inverse_condition": "inverse condition",
-              "limit_margin": "limit margin", "clearance": "clearance", "torque_margin": "torque"}
+    labels = {"points_served": "not served", "torque_margin": "torque"}
     for p in pts:
         if p.reached:
             js = [fmt_deg(v) if rev else fmt_mm(v) for v, rev in zip(p.q, dec.joint_revolute)]
@@ -389,7 +388,7 @@ def point_table(dec) -> D.Table:
             vals.append("-" if p.clearance is None else fmt_mm(p.clearance))
         if has_t:
             vals.append("-" if p.torque_margin is None else fmt_percent(p.torque_margin))
-        bad = [labels.get(k, k) for k, s in p.checks.items() if s == FAIL]
+        bad = [labels.get(k) or human(k) for k, s in p.checks.items() if s == FAIL]
         vals.append("fail: " + ", ".join(bad) if bad else "pass")
         rows.append([p.name] + js + vals)
     n = len(dec.joint_names)
@@ -580,7 +579,7 @@ def _mount_doc(r, dec, csv_name, progress) -> D.Document:
                                   "serving fewer points can rank above one serving all, so read the 'Work points "
                                   "served' verdict.")))
     meas_word = str(getattr(r.plan.settings, "measure", "") if r.plan is not None else "") or _measure_setting(r)
-    labels = {"worst_measure": f"worst {meas_word.replace('_', ' ')}"} if meas_word else {}
+    labels = {"worst_measure": f"worst {human(meas_word)}"} if meas_word else {}
     ref = r.tables.get("refined")
     if ref is not None and ref.rows:
         body.append(D.Heading("Refined mounts", 2))
@@ -742,6 +741,20 @@ def _load_doc(r, dec, progress) -> D.Document:
     return D.Document(f"Layout report: {_s(r.name)}", "load map", page1, body)
 
 
+def _shown(name, values) -> np.ndarray:
+    """Values of quantity ``name`` as drawn: log10 where the registry says so; inf -> NaN."""
+    Z = np.asarray(values, float)
+    if quantities.is_log(name):
+        with np.errstate(divide="ignore", invalid="ignore"):
+            Z = np.log10(Z)
+    return np.where(np.isfinite(Z), Z, np.nan)
+
+
+def _best(name, flat) -> np.ndarray:
+    """The best value over the first axis of ``flat``: the smallest where lower is better."""
+    return np.nanmin(flat, axis=0) if quantities.best_of(name) == "min" else np.nanmax(flat, axis=0)
+
+
 def _measure_maps(r, dec, skip=()) -> list:
     """A map (or chart) per scalar measure field, with human labels and units."""
     out = []
@@ -749,15 +762,15 @@ def _measure_maps(r, dec, skip=()) -> list:
     for f in r.fields:
         if f.kind != "measure" or f.shape != () or f.name in skip:
             continue
-        Z = np.asarray(r.arrays[f.name], float)
-        label = human(f.name) + (f" ({f.unit})" if f.unit else "")
+        Z = _shown(f.name, r.arrays[f.name])
+        label = quantities.axis_label(f.name, unit=f.unit)      # the registry: label, unit, log10
         cap = (_s(f.description) or label)
         cap = cap[:1].upper() + cap[1:]
         if len(axes) >= 2:
             note = ""
             if Z.ndim > 2:
                 flat = Z.reshape(-1, *Z.shape[-2:])
-                Z = np.nanmax(flat, axis=0) if np.isfinite(Z).any() else flat[0]
+                Z = _best(f.name, flat) if np.isfinite(Z).any() else flat[0]
                 note = f", the best over {', '.join(a.label for a in axes[:-2])}"
             out.append(D.Heading(label[:1].upper() + label[1:], 2))
             out.append(D.Figure(G.map_figure(Z, axes[-1], axes[-2], label, height=3.6),
@@ -993,13 +1006,12 @@ def _compare_maps(results, decisions, L) -> list:
                 continue
             Zs = []
             for r in results:
-                Z = np.asarray(r.arrays[fname], float)
-                Zs.append(np.nanmax(Z.reshape(-1, *Z.shape[-2:]), axis=0) if Z.ndim > 2 else Z)
+                Z = _shown(fname, r.arrays[fname])
+                Zs.append(_best(fname, Z.reshape(-1, *Z.shape[-2:])) if Z.ndim > 2 else Z)
             fin = [z[np.isfinite(z)] for z in Zs]
             lo = min(float(v.min()) for v in fin if v.size) if any(v.size for v in fin) else 0.0
             hi = max(float(v.max()) for v in fin if v.size) if any(v.size for v in fin) else 1.0
-            unit = results[0].field(fname).unit
-            label = human(fname) + (f" ({unit})" if unit else "")
+            label = quantities.axis_label(fname, unit=results[0].field(fname).unit)
             out.append(D.Figure(G.side_by_side_maps(Zs, [f"option {l}" for l in L], [r.axes[-1] for r in results],
                                                     [r.axes[-2] for r in results], label, lo, hi),
                                 f"{label[:1].upper() + label[1:]} of every option on one colour scale."))

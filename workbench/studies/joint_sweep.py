@@ -34,6 +34,8 @@ import numpy as np
 from ..limits import MAX_CELLS as _LIMIT_CELLS
 from ..measures import NEAR_SINGULAR as _NEAR_DEFAULT
 from ..measures import joint_limit_factors, penalty_of_product, pose_measures
+from ..quantities import quantity, sign_of_better
+from ..quantities import unit_of as quantity_unit
 from .base import Axis, Chunk, Field, Plan, StudyError, StudyKind, Table, block_rng, check_rows
 
 __all__ = ["JointSweep", "JointSweepSettings", "MAX_CELLS", "MAX_POSES"]
@@ -296,15 +298,9 @@ class JointSweep(StudyKind):
             axes = tuple(Axis(arm.names[k], np.linspace(lo, hi, s), unit_of(k), f"joint {arm.names[k]}")
                          for k, (lo, hi), s in zip(st.joints, st.ranges, st.steps))
         m = len(st.rows)
-        desc = {
-            "manipulability": "product of singular values (Yoshikawa 1985); 0 at a singularity",
-            "condition": "s1 / sm; 1 is isotropic, inf at a singularity",
-            "inverse_condition": "sm / s1 in [0, 1]; 0 singular, 1 isotropic",
-            "min_sv": "smallest singular value; 0 at a singularity",
-            "limit_margin": "smallest distance to a joint limit as a fraction of the half range (1 mid, 0 at a limit)",
-            "limit_aware_manipulability": "manipulability times the joint-limit penalty of Tsai 1986 "
-                                          "(workbench.measures.joint_limit_penalty); 0 at a limit",
-        }
+        # labels, descriptions and units of the measures: the one registry (workbench/quantities.py)
+        desc = {name: quantity(name).description for name in _SCALARS}
+        unit = {name: quantity_unit(name, st.rows, arm.kinds) or "" for name in _SCALARS}
         fields = []
         if st.mode == "reduce":
             others = [k for k in range(n) if k not in st.joints]
@@ -317,15 +313,15 @@ class JointSweep(StudyKind):
             data.update(others=np.array(others, dtype=np.int64), coarse=coarse)
             for name in _SCALARS:
                 for op in st.reduce:
-                    fields.append(Field(f"{name}_{op}", (), dt, "", f"{op} over the other joints of: {desc[name]}"))
-            fields.append(Field("best_q", (n,), "float64", "rad/m", f"joint values with the highest {st.best_by}",
+                    fields.append(Field(f"{name}_{op}", (), dt, unit[name], quantity(f"{name}_{op}").description))
+            fields.append(Field("best_q", (n,), "float64", "rad/m", f"joint values with the best {st.best_by}",
                                 kind="pose"))
-            fields.append(Field("worst_q", (n,), "float64", "rad/m", f"joint values with the lowest {st.best_by}",
+            fields.append(Field("worst_q", (n,), "float64", "rad/m", f"joint values with the worst {st.best_by}",
                                 kind="pose"))
             poses_per_cell = coarse.shape[0]
         else:
             for name in _SCALARS:
-                fields.append(Field(name, (), dt, "", desc[name]))
+                fields.append(Field(name, (), dt, unit[name], desc[name]))
             if st.store_sv:
                 fields.append(Field("sv", (m,), dt, "", "singular values of the scaled, selected rows, descending",
                                     kind="other"))
@@ -437,7 +433,7 @@ class JointSweep(StudyKind):
                 with np.errstate(invalid="ignore"):
                     r = getattr(np, op)(v, axis=1)
                 out[f"{name}_{op}"] = r.astype(st.dtype)
-        key = m[st.best_by]
+        key = sign_of_better(st.best_by) * m[st.best_by]       # largest at the best (condition: lowest)
         rows = np.arange(chunk.size)
         out["best_q"] = q[rows, np.argmax(key, axis=1)]
         out["worst_q"] = q[rows, np.argmin(key, axis=1)]

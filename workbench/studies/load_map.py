@@ -52,6 +52,7 @@ import numpy as np
 
 from ..arm.transforms import inverse_transform, make_transform
 from ..limits import grid_count
+from ..quantities import quantity
 from .base import MAX_SEEDS, Axis, Field, Plan, StudyError, StudyKind, Table
 from . import collide
 
@@ -319,7 +320,7 @@ class LoadMap(StudyKind):
                   f"({', '.join(f'{v * 1000:g}' for v in load['com'])} mm from the TCP) within the joint torque limits"),
             Field("limiting_joint", (), "int32", "", "joint (0-based) whose torque limit sets the payload; -1 none",
                   kind="other", fill=-1),
-            Field("own_load", (), "float64", "", "largest |gravity torque of the arm itself| / torque limit"),
+            Field("own_load", (), "float64", "", quantity("own_load").description),
             Field("reached", (), "uint8", "", "1 where the pose exists (always 1 on a joint grid)", kind="status",
                   flags={1: "reached", 2: COLLIDING_TEXT}),
             Field("q", (n,), "float64", "rad", "pose of the grid cell", kind="pose"),

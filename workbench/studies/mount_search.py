@@ -49,6 +49,7 @@ from typing import Mapping
 
 import numpy as np
 
+from ..quantities import label, unit_of
 from .base import MAX_SEEDS, Axis, Field, Plan, StudyError, StudyKind, Table, check_rows
 from . import collide
 from .cell import WorkPoint, candidate_grid, mount_transforms, relative_targets
@@ -692,8 +693,8 @@ class MountSearch(StudyKind):
             Field("served", (), "float64", "", f"number of work points served (of {P})"),
             Field("score", (), "float64", "", quality_formula(s), kind="measure"),
             Field("reached_fraction", (), "float64", "", "fraction of work points served"),
-            Field("worst_measure", (), "float64", "",
-                  f"worst {s.measure.replace('_', ' ')} ({_rows_text(s.rows)} rows) over the served work points"),
+            Field("worst_measure", (), "float64", unit_of(s.measure, s.rows, arm.kinds) or "",
+                  f"worst {label(s.measure)} ({_rows_text(s.rows)} rows) over the served work points"),
             Field("min_margin", (), "float64", "", "smallest joint-limit margin over the served work points"),
             Field("point_reached", (P,), "uint8", "", "1 where that work point is served", kind="other"),
             Field("point_measure", (P,), "float64", "", "measure at each work point (0 if not served)",

@@ -44,6 +44,7 @@ import numpy as np
 
 from ..arm.transforms import inverse_transform, make_transform
 from ..measures import NEAR_SINGULAR as _NEAR_DEFAULT
+from ..quantities import label, quantity, unit_of
 from . import collide
 from .base import MAX_SEEDS, Axis, Field, Plan, StudyError, StudyKind, Table, check_rows
 from ..limits import MAX_PATH_SAMPLES
@@ -422,14 +423,15 @@ class PathAudit(StudyKind):
             Field("path_index", (), "int32", "", "which path (0-based, see the plan's names)", kind="other"),
             Field("q", (n,), "float64", "rad", "tracked joint values", kind="pose"),
             Field("flags", (), "uint8", "", "sample flags", kind="status", flags=dict(FLAGS)),
-            Field("inverse_condition", (), "float64", "", f"inverse condition ({_rows_text(s.rows)} rows)"),
-            Field("min_sv", (), "float64", "", "minimum singular value"),
-            Field("manipulability", (), "float64", "", "manipulability"),
+            # labels and units: the one registry (workbench/quantities.py)
+            *(Field(name, (), "float64", unit_of(name, s.rows, arm.kinds) or "",
+                    f"{label(name)} ({_rows_text(s.rows)} rows)")
+              for name in ("inverse_condition", "min_sv", "manipulability")),
             Field("qdot", (n,), "float64", "rad/s", "joint speeds needed for the tool speed (pseudo-inverse)",
                   kind="other"),
-            Field("speed_ratio", (), "float64", "", "largest |joint speed| / joint speed limit"),
+            Field("speed_ratio", (), "float64", "", quantity("speed_ratio").description),
             Field("speed_joint", (), "int32", "", "joint (0-based) with the largest speed ratio", kind="other"),
-            Field("margin", (), "float64", "", "joint-limit margin (1 mid range, 0 at a limit)"),
+            Field("margin", (), "float64", "", quantity("margin").description),
             Field("pos_err", (), "float64", "m", "TCP position error of the tracked solution", kind="other"),
             Field("xyz", (3,), "float64", "m", "sample position in the cell frame", kind="point"),
         )

@@ -57,6 +57,7 @@ import numpy as np
 from ..arm.transforms import inverse_transform, make_transform
 from ..measures import NEAR_SINGULAR as _NEAR_DEFAULT
 from . import collide
+from ..quantities import label, quantity, sign_of_better, unit_of
 from .base import Axis, Chunk, Field, Plan, StudyError, StudyKind, Table, check_rows
 
 __all__ = ["ReachSlice", "ReachSettings", "sphere_orientations", "bench_reach_slice",
@@ -67,7 +68,8 @@ _KEYS = {"grid", "plane", "at", "origin", "plane_rpy", "u", "v", "x", "y", "z", 
          "orientation", "rpy", "axis", "directions", "spins", "seeds", "frame", "rows", "length", "best",
          "distinct_tol", "near_singular", "mount_xyz", "mount_rpy", "neighbour_seeds"} | collide.KEYS
 _PLANES = {"xy": (0, 1, 2), "xz": (0, 2, 1), "yz": (1, 2, 0)}
-_BEST = {"inverse_condition": 1.0, "manipulability": 1.0, "min_sv": 1.0, "condition": -1.0}
+#: the measures that can pick the best solution (which way is better: workbench/quantities.py)
+_BEST = ("inverse_condition", "manipulability", "min_sv", "condition")
 MAX_POINTS = 4_000_000
 MAX_TARGETS = 50_000_000
 
@@ -354,18 +356,14 @@ class ReachSlice(StudyKind):
         else:
             xs, ys, zs = s.axes_values
             axes = (Axis("z", zs, "m", "cell z"), Axis("y", ys, "m", "cell y"), Axis("x", xs, "m", "cell x"))
-        what = f"at the best solution (highest {s.best})" if s.best != "condition" else \
-            "at the best solution (lowest condition)"
+        what = f"at the best solution ({'lowest' if sign_of_better(s.best) < 0 else 'highest'} {s.best})"
         fields = [
             Field("status", (), "uint8", "", "status bits", kind="status", flags=dict(_FLAGS)),
-            Field("manipulability", (), "float64", "", f"manipulability w {what}"),
-            Field("inverse_condition", (), "float64", "", f"inverse condition 1/k {what}"),
-            Field("condition", (), "float64", "", f"condition number k {what}"),
-            Field("min_sv", (), "float64", "", f"smallest singular value {what}"),
-            Field("limit_margin", (), "float64", "", "smallest joint-limit margin (1 mid-range, 0 at a limit) "
-                  "of the best solution"),
-            Field("limit_aware_manipulability", (), "float64", "", "manipulability times the joint-limit "
-                  "penalty of Tsai 1986 (workbench.measures.joint_limit_penalty) of the best solution"),
+            # labels and units: the one registry (workbench/quantities.py)
+            *(Field(name, (), "float64", unit_of(name, s.rows, arm.kinds) or "",
+                    f"{label(name)} {what}" if name in _BEST else f"{quantity(name).description} of the best solution")
+              for name in ("manipulability", "inverse_condition", "condition", "min_sv", "limit_margin",
+                           "limit_aware_manipulability")),
         ]
         if s.orientation == "sampled":
             fields.append(Field("reachability", (), "float64", "",
@@ -528,7 +526,7 @@ class ReachSlice(StudyKind):
                 self._neighbour_pass(plan, arm, idx, q, status, ok)
             count = ok.sum(axis=1).astype(np.int16)
         meas = pose_measures(marm, q, frame=s.frame, rows=s.rows, length=s.length, world=True)
-        key = np.where(ok, _BEST[s.best] * meas[s.best], -np.inf)
+        key = np.where(ok, sign_of_better(s.best) * meas[s.best], -np.inf)
         pick = np.argmax(key, axis=1)
         reached = ok.any(axis=1)
         rows = np.arange(M)
