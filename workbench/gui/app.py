@@ -8,8 +8,29 @@ import sys
 __all__ = ["main", "make_app"]
 
 
+def _load_models_first():
+    """Import the Qt-free layers the first window needs before PySide6 is imported.
+
+    Once PySide6 is imported, its import hook reads the source text of every module imported after
+    it (``inspect.getsource``, to see whether the module uses PySide6's optional features): for
+    numpy, numba, scipy and our own model layers that is several hundred files, about 0.4-0.8 s of
+    a cold start on this 2-core machine. Modules imported before PySide6 are not read. These are the
+    modules the first window loads anyway (the demo arm's kinematics, the document, the cell and its
+    paths, whose orientations go through scipy's rotations), so nothing extra is loaded; the results
+    file reader (h5py), the report and Dask stay unloaded until used.
+    """
+    import numpy  # noqa: F401
+
+    from .. import document, measures  # noqa: F401
+    from ..kinematics import kernels  # noqa: F401
+    from ..studies import cell  # noqa: F401
+    from scipy.spatial import transform  # noqa: F401
+
+
 def make_app(argv=None):
     """The QApplication (created once), with our organisation/app names for QSettings."""
+    if "PySide6" not in sys.modules:
+        _load_models_first()
     from PySide6 import QtWidgets
     import pyqtgraph as pg
 

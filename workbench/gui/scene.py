@@ -120,21 +120,22 @@ class Scene2D(QtWidgets.QWidget):
                 "keepout": KeepOutItem(pen=pg.mkPen(KEEP_OUT_COLOUR, width=1.5, style=QtCore.Qt.DashLine),
                                        connect="pairs"),
                 "floor": pg.PlotDataItem(pen=pg.mkPen((150, 110, 60), width=2)),
-                "shapes": pg.PlotDataItem(pen=pg.mkPen(SHAPE_COLOUR + (120,), width=1), connect="pairs"),
-                "close": pg.PlotDataItem(pen=pg.mkPen(CLOSE_COLOUR, width=2), connect="pairs"),
+                # what moves with the arm (redrawn on every slider step) is made of plain curves and
+                # scatters: PlotDataItem costs several times as much per setData as PlotCurveItem
+                "shapes": pg.PlotCurveItem(pen=pg.mkPen(SHAPE_COLOUR + (120,), width=1), connect="pairs"),
+                "close": pg.PlotCurveItem(pen=pg.mkPen(CLOSE_COLOUR, width=2), connect="pairs"),
                 "rec": RecommendedItem(size=20, symbol="star", brush=REC_COLOUR, pen=pg.mkPen("k", width=1)),
                 "paths": pg.PlotDataItem(pen=pg.mkPen((40, 150, 60), width=2), connect="finite"),
                 "points": pg.ScatterPlotItem(size=8, symbol="s", brush=(40, 150, 60), pen="k"),
                 "cands": pg.ScatterPlotItem(size=7, symbol="o", pen=None),
                 "ghosts": pg.PlotDataItem(pen=pg.mkPen(GHOST_COLOUR + (110,), width=1), connect="finite"),
-                "ellipse": pg.PlotDataItem(pen=pg.mkPen((150, 60, 170), width=2),
-                                           fillLevel=None, brush=(150, 60, 170, 50)),
-                "arm": pg.PlotDataItem(pen=pg.mkPen(ARM_COLOUR, width=4), symbol="o", symbolSize=8,
-                                       symbolBrush=ARM_COLOUR),
-                "tcp": [pg.PlotDataItem(pen=pg.mkPen(c, width=2)) for c in ("r", "g", "b")],
+                "ellipse": pg.PlotCurveItem(pen=pg.mkPen((150, 60, 170), width=2)),
+                "arm": pg.PlotCurveItem(pen=pg.mkPen(ARM_COLOUR, width=4)),
+                "joints": pg.ScatterPlotItem(size=8, symbol="o", brush=ARM_COLOUR, pen=pg.mkPen((200, 200, 200))),
+                "tcp": [pg.PlotCurveItem(pen=pg.mkPen(c, width=2)) for c in ("r", "g", "b")],
             }
             for key in ("floor", "boxes", "pillars", "keepout", "paths", "points", "cands", "rec", "ghosts",
-                        "shapes", "close", "ellipse", "arm"):
+                        "shapes", "close", "ellipse", "arm", "joints"):
                 pw.addItem(it[key])
             for t in it["tcp"]:
                 pw.addItem(t)
@@ -177,6 +178,7 @@ class Scene2D(QtWidgets.QWidget):
         for plane, it in zip(self.planes, self._items):
             p = info.points[:, list(plane)]
             it["arm"].setData(p[:, 0], p[:, 1])
+            it["joints"].setData(p[:, 0], p[:, 1])
             colour = NEAR_COLOUR if info.near_singular else ARM_COLOUR
             if it.get("arm_colour") != colour:  # a new pen only when the colour changes
                 it["arm"].setPen(pg.mkPen(colour, width=4))

@@ -118,6 +118,58 @@ def _load_q(Q, start, stop, q):
                 q[j, l] = 0.0
 
 
+# cos / sin of joint angles in the lanes. numba's np.cos / np.sin call the scalar C library once
+# per lane (about 11 ns each here, the larger part of the chain), so the lanes use a reduction and
+# polynomials the compiler can vectorise:
+# * q = k pi/2 + r, k = round(q 2/pi), |r| <= pi/4 (plus rounding), with pi/2 split in three
+#   parts (Cody & Waite, "Software Manual for the Elementary Functions", 1980): the first two
+#   have 33 significant bits, so k * part is exact for |k| < 2^20, and the three sum to pi/2
+#   within 1e-37 (computed with mpmath at 300 bits; tests/test_lanes.py checks the sum);
+# * sin r, cos r by their Taylor series up to r^17 / r^18 (the first omitted terms are below
+#   |r|^19/19! < 1e-19 for |r| <= pi/4), Horner form in r^2, coefficients 1/n! rounded once;
+# * the quadrant k mod 4 picks (+-sin r, +-cos r) branch-free.
+# Beyond |q| = SINCOS_REDUCED the three-part reduction loses bits; those lanes are recomputed with
+# np.cos / np.sin (a lane's value depends on its own q only).
+_PIO2_1 = 1.5707963267341256       # 0x1.921fb544p+0: pi/2 to 33 bits
+_PIO2_2 = 6.077100506303966e-11    # the next 33 bits
+_PIO2_3 = 2.0222662487959506e-21   # the rest, rounded
+_TWO_OVER_PI = 0.6366197723675814
+SINCOS_REDUCED = 1.0e5             # |q| (rad) up to which the reduction above is used
+
+
+def _inv_fact(n):
+    from fractions import Fraction
+    from math import factorial
+
+    return float(Fraction(1, factorial(n)))
+
+
+_S3, _S5, _S7, _S9, _S11, _S13, _S15, _S17 = (_inv_fact(n) for n in (3, 5, 7, 9, 11, 13, 15, 17))
+_C2, _C4, _C6, _C8, _C10, _C12, _C14, _C16, _C18 = (_inv_fact(n) for n in (2, 4, 6, 8, 10, 12, 14, 16, 18))
+
+
+@njit(cache=True, error_model="numpy", fastmath=_FAST)
+def _sincos(q, c, s):
+    """c[l] = cos(q[l]), s[l] = sin(q[l]) for the LANES lanes (see the notes above)."""
+    for l in range(LANES):
+        x = q[l]
+        kf = np.floor(x * _TWO_OVER_PI + 0.5)
+        r = ((x - kf * _PIO2_1) - kf * _PIO2_2) - kf * _PIO2_3
+        z = r * r
+        sr = r - r * z * (_S3 - z * (_S5 - z * (_S7 - z * (_S9 - z * (_S11 - z * (_S13 - z * (_S15 - z * _S17)))))))
+        cr = 1.0 - z * (_C2 - z * (_C4 - z * (_C6 - z * (_C8 - z * (_C10 - z * (_C12 - z * (_C14 - z * (_C16 - z * _C18))))))))
+        m = kf - 4.0 * np.floor(kf * 0.25)  # k mod 4 in {0, 1, 2, 3}
+        odd = m == 1.0 or m == 3.0
+        sv = cr if odd else sr
+        cv = sr if odd else cr
+        s[l] = -sv if m >= 2.0 else sv
+        c[l] = -cv if (m == 1.0 or m == 2.0) else cv
+    for l in range(LANES):
+        if not abs(q[l]) <= SINCOS_REDUCED:  # also nan
+            c[l] = np.cos(q[l])
+            s[l] = np.sin(q[l])
+
+
 @njit(cache=True, error_model="numpy", fastmath=_FAST)
 def _chain(q, G, kinds, upto, R, T, tmp, Z, O, c, s):
     """Walk the lane chain up to joint ``upto``: T (3, 4, L) = R @ frame upto; Z, O (n, 3, L)
@@ -148,10 +200,7 @@ def _chain(q, G, kinds, upto, R, T, tmp, Z, O, c, s):
                 Z[j, r, l] = tmp[r, 2, l]
                 O[j, r, l] = tmp[r, 3, l]
         if kinds[j] == 0:
-            for l in range(L):
-                c[l] = np.cos(q[j, l])
-            for l in range(L):
-                s[l] = np.sin(q[j, l])
+            _sincos(q[j], c, s)
             for r in range(3):
                 for l in range(L):
                     a0 = tmp[r, 0, l]
