@@ -12,6 +12,7 @@ import tomllib
 
 import numpy as np
 from hypothesis import HealthCheck, given, settings
+import pytest
 from hypothesis import strategies as st
 
 from workbench.arm import ArmFileError, dumps_arm, parse_arm_dict, parse_arm_text, same_arm
@@ -246,3 +247,11 @@ def test_info_and_jacobian_commands_handle_random_valid_arms(d, seed):
         jacobian.load = _info.load
     # "singular values (m):" for translation rows of revolute joints (the unit: workbench/quantities.py)
     assert re.search(r"^  singular values( \([^)]*\))?: ", buf.getvalue(), re.M)
+
+
+def test_a_key_with_a_newline_is_named_on_one_line():
+    # found by test_random_dicts_only_raise_arm_file_errors: the key went raw into the error line
+    for d in ({"arm": {"a\nb": 1}}, {"arm": {"name": "x"}, "joint": [{"a\nb": 1}]}):
+        with pytest.raises(ArmFileError) as info:
+            parse_arm_dict(d, "garbage.toml")
+        assert "\n" not in str(info.value) and "'a\\nb'" in str(info.value)

@@ -195,7 +195,8 @@ class _Ctx:
         head = f"{self.name}:{line}" if line else self.name
         if label is None:
             label = f"[{table}]" if table else ""
-        where = " ".join(p for p in (label, f"'{key}'" if key else "") if p)
+        shown = (f"'{key}'" if str(key).isprintable() else repr(str(key))) if key else ""  # control characters escaped: one line
+        where = " ".join(p for p in (label, shown) if p)
         return ArmFileError(f"{head}: {where}: {msg}" if where else f"{head}: {msg}")
 
 
